@@ -1,0 +1,58 @@
+"""Atomic file writes: write to a temporary name beside the target, then rename.
+
+A run that fails part-way never leaves a half-written file under a final name.
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from pathlib import Path
+
+__all__ = ["atomic_path", "write_bytes", "write_text"]
+
+
+@contextmanager
+def atomic_path(target: Path | str, suffix: str | None = None) -> Iterator[Path]:
+    """Yield a temporary path beside ``target``; rename it onto ``target`` if the block succeeds.
+
+    The temporary name keeps the target's suffix so writers that infer the format from the
+    extension (GIF, MP4, GeoPackage) still work.
+    """
+    target = Path(target)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(
+        prefix=f".{target.stem}.", suffix=suffix if suffix is not None else target.suffix, dir=target.parent
+    )
+    os.close(fd)
+    tmp_path = Path(tmp)
+    try:
+        yield tmp_path
+        os.replace(tmp_path, target)
+    finally:
+        if tmp_path.exists():
+            tmp_path.unlink()
+
+
+def write_bytes(target: Path, data: bytes) -> Path:
+    with atomic_path(target) as tmp:
+        tmp.write_bytes(data)
+    return target
+
+
+def write_text(target: Path, text: str) -> Path:
+    with atomic_path(target) as tmp:
+        tmp.write_text(text, encoding="utf-8", newline="\n")
+    return target
+
+
+def write_with(target: Path, writer: Callable[[Path], object]) -> Path:
+    """Call ``writer(tmp_path)`` and rename the result onto ``target``."""
+    with atomic_path(target) as tmp:
+        writer(tmp)
+    return target
+
+
+__all__.append("write_with")

@@ -1,0 +1,105 @@
+"""The typer application, global options and the error-to-exit-code mapping."""
+
+from __future__ import annotations
+
+import functools
+import logging
+from collections.abc import Callable
+from typing import Any, Optional, TypeVar
+
+import typer
+
+from mapdrift import __version__
+from mapdrift.errors import MapdriftError
+
+__all__ = ["app", "command", "main", "state"]
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+app = typer.Typer(
+    name="mapdrift",
+    help=(
+        "Comparable animated choropleths and change detection for a value mapped over many "
+        "periods.\n\nExit codes: 0 success (warnings allowed); 1 input problem; 2 usage or config "
+        "error; 3 output exists (use --force); 4 a step or encoder failed."
+    ),
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+    context_settings={"help_option_names": ["-h", "--help"]},
+)
+
+#: Global flags set by the callback (debug shows tracebacks).
+state: dict[str, bool] = {"debug": False, "quiet": False}
+
+
+def _version(value: bool) -> None:
+    if value:
+        typer.echo(f"mapdrift {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def _main(
+    debug: bool = typer.Option(False, "--debug", help="Show tracebacks and debug logging."),
+    verbose: bool = typer.Option(False, "--verbose", "-v", help="More progress messages."),
+    quiet: bool = typer.Option(False, "--quiet", "-q", help="Only errors (for scheduled jobs)."),
+    version: Optional[bool] = typer.Option(
+        None, "--version", callback=_version, is_eager=True, help="Print the version and exit."
+    ),
+) -> None:
+    state["debug"] = debug
+    state["quiet"] = quiet
+    level = logging.DEBUG if debug else logging.INFO if verbose else logging.WARNING
+    if quiet:
+        level = logging.ERROR
+    logging.basicConfig(level=level, format="%(levelname)s %(name)s: %(message)s", force=True)
+
+
+def command(name: str, **kwargs: Any) -> Callable[[F], F]:
+    """Register a command whose MapdriftError becomes one red line and its exit code.
+
+    Doing the mapping here (not only in :func:`main`) keeps exit codes right under typer's
+    CliRunner too, which the tests use.
+    """
+
+    def decorator(func: F) -> F:
+        @functools.wraps(func)
+        def wrapper(*args: Any, **kw: Any) -> Any:
+            try:
+                return func(*args, **kw)
+            except MapdriftError as exc:
+                if state["debug"]:
+                    raise
+                typer.secho(f"error: {exc}", fg=typer.colors.RED, err=True)
+                raise typer.Exit(exc.exit_code) from None
+
+        app.command(name, **kwargs)(wrapper)
+        return func
+
+    return decorator
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point of the console script; returns the exit code."""
+    try:
+        rv = app(args=argv, standalone_mode=False)
+    except MapdriftError as exc:  # raised outside a command (e.g. in the callback)
+        if state["debug"]:
+            raise
+        typer.secho(f"error: {exc}", fg=typer.colors.RED, err=True)
+        return exc.exit_code
+    except typer.Abort:
+        typer.secho("aborted", fg=typer.colors.RED, err=True)
+        return 130
+    except typer.TyperException as exc:  # usage errors (bad option, missing argument)
+        show = getattr(exc, "show", None)
+        if callable(show):
+            show()
+        else:
+            typer.secho(f"error: {exc}", fg=typer.colors.RED, err=True)
+        return int(getattr(exc, "exit_code", 2) or 2)
+    except KeyboardInterrupt:
+        typer.secho("interrupted", fg=typer.colors.RED, err=True)
+        return 130
+    return rv if isinstance(rv, int) else 0

@@ -1,0 +1,203 @@
+"""The run configuration (TOML): typed sections validated with clear errors.
+
+A config file has one table per section, e.g. ``[inputs]`` (keys mirror the input flags of every
+command), ``[classes]`` (scheme, k, basis, breaks file). Each section maps onto a frozen dataclass;
+unknown keys and wrong types are errors naming the key, the file and its line. Paths are taken
+relative to the config file. Command-line flags override keys (see :func:`merge`).
+Parsed with :mod:`tomllib` only.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import re
+import sys
+import types
+import typing
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from importlib import import_module
+from pathlib import Path
+from typing import Any
+
+from mapdrift.errors import ConfigError
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+__all__ = ["ClassSpec", "Config", "SECTIONS", "load_config", "merge", "section_from_dict"]
+
+
+@dataclass(frozen=True)
+class ClassSpec:
+    """How to classify: scheme, number of classes, basis, or a saved breaks file."""
+
+    scheme: str = "quantile"
+    k: int = 5
+    basis: str = "pooled"
+    values: tuple[float, ...] = ()
+    isolate_zeros: bool = False
+    breaks_file: Path | None = None
+
+
+#: Section name -> "module:Class" of its dataclass (imported when a file uses the section).
+SECTIONS: dict[str, str] = {
+    "inputs": "mapdrift.panel:InputSpec",
+    "classes": "mapdrift.config:ClassSpec",
+}
+
+
+@dataclass(frozen=True)
+class Config:
+    """A parsed config: its path and each section as a dict of validated, typed values."""
+
+    path: Path | None = None
+    sections: dict[str, dict[str, Any]] = field(default_factory=dict)
+
+    def section(self, name: str) -> dict[str, Any]:
+        return dict(self.sections.get(name, {}))
+
+
+def _line_of(text: str, section: str | None, key: str) -> int | None:
+    """1-based line where ``key`` is set (inside ``[section]`` when given), for messages."""
+    current: str | None = None
+    for no, line in enumerate(text.splitlines(), 1):
+        head = re.match(r"\s*\[([^\]]+)\]", line)
+        if head:
+            current = head.group(1).strip()
+            continue
+        if re.match(rf"\s*{re.escape(key)}\s*=", line) and (section is None or current == section):
+            return no
+    return None
+
+
+def _where(path: Path | None, text: str, section: str | None, key: str) -> str:
+    if path is None:
+        return f"key {key!r}"
+    line = _line_of(text, section, key)
+    return f"{path}{f':{line}' if line else ''}: key {key!r}" + (f" in [{section}]" if section else "")
+
+
+def _type_name(tp: Any) -> str:
+    return getattr(tp, "__name__", str(tp))
+
+
+def _coerce(value: Any, tp: Any, base: Path | None) -> Any:
+    """Check ``value`` against the annotation ``tp``; convert paths and tuples. Raise TypeError."""
+    origin = typing.get_origin(tp)
+    if origin in (typing.Union, types.UnionType):
+        args = [a for a in typing.get_args(tp) if a is not type(None)]
+        errors = []
+        for a in args:
+            try:
+                return _coerce(value, a, base)
+            except TypeError as exc:
+                errors.append(str(exc))
+        raise TypeError(" or ".join(_type_name(a) for a in args))
+    if origin is tuple:
+        (item, *_rest) = typing.get_args(tp) or (Any,)
+        if isinstance(value, str) and item in (float, int):
+            value = [v for v in value.split(",") if v.strip()]
+        if not isinstance(value, list | tuple):
+            raise TypeError(f"a list of {_type_name(item)}")
+        return tuple(_coerce(v, item, base) for v in value)
+    if tp is Any:
+        return value
+    if tp is bool:
+        if not isinstance(value, bool):
+            raise TypeError("true or false")
+        return value
+    if tp is int:
+        if isinstance(value, bool) or not isinstance(value, int):
+            raise TypeError("a whole number")
+        return value
+    if tp is float:
+        if isinstance(value, bool):
+            raise TypeError("a number")
+        if isinstance(value, str):
+            try:
+                return float(value)
+            except ValueError:
+                raise TypeError("a number") from None
+        if not isinstance(value, int | float):
+            raise TypeError("a number")
+        return float(value)
+    if tp is str:
+        if not isinstance(value, str | int):
+            raise TypeError("a string")
+        return str(value)
+    if tp is Path:
+        if not isinstance(value, str):
+            raise TypeError("a path string")
+        p = Path(value).expanduser()
+        return p if p.is_absolute() or base is None else base / p
+    if isinstance(tp, type) and isinstance(value, tp):
+        return value
+    raise TypeError(_type_name(tp))
+
+
+def _dataclass_for(section: str) -> type:
+    module, cls = SECTIONS[section].split(":")
+    return getattr(import_module(module), cls)
+
+
+def section_from_dict(
+    section: str, raw: Mapping[str, Any], *, path: Path | None = None, text: str = ""
+) -> dict[str, Any]:
+    """Validate one section's keys and types; return the typed values given (not the defaults)."""
+    cls = _dataclass_for(section)
+    hints = typing.get_type_hints(cls)
+    names = {f.name for f in dataclasses.fields(cls)}
+    out: dict[str, Any] = {}
+    base = path.parent if path is not None else None
+    for key, value in raw.items():
+        if key not in names:
+            valid = ", ".join(sorted(names))
+            raise ConfigError(f"{_where(path, text, section, key)} is not a known key; valid keys: {valid}")
+        try:
+            out[key] = _coerce(value, hints[key], base)
+        except TypeError as exc:
+            raise ConfigError(
+                f"{_where(path, text, section, key)} should be {exc}, got {value!r}"
+            ) from None
+    return out
+
+
+def load_config(path: Path | str) -> Config:
+    """Parse and validate a TOML run configuration."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ConfigError(f"{path}: config file not found; check the path given to --config") from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"{path}: not valid TOML ({exc})") from None
+    sections: dict[str, dict[str, Any]] = {}
+    for name, raw in data.items():
+        if name not in SECTIONS:
+            if not isinstance(raw, dict):
+                raise ConfigError(
+                    f"{_where(path, text, None, name)} is not a known key; keys belong in a section "
+                    f"such as [{', '.join(SECTIONS)}]"
+                )
+            raise ConfigError(
+                f"{path}: section [{name}] is not known; valid sections: {', '.join(SECTIONS)}"
+            )
+        if not isinstance(raw, dict):
+            raise ConfigError(f"{_where(path, text, None, name)} must be a section [{name}]")
+        sections[name] = section_from_dict(name, raw, path=path, text=text)
+    return Config(path=path, sections=sections)
+
+
+def merge(cls: type, config_values: Mapping[str, Any], overrides: Mapping[str, Any]) -> Any:
+    """Build ``cls`` from config values, with non-None ``overrides`` (command-line flags) winning."""
+    values = dict(config_values)
+    values.update({k: v for k, v in overrides.items() if v is not None})
+    try:
+        return cls(**values)
+    except TypeError as exc:
+        raise ConfigError(f"{cls.__name__}: {exc}") from None

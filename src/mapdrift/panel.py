@@ -1,0 +1,216 @@
+"""The Panel: units x periods values aligned to polygons, plus everything found on the way.
+
+``load_panel(spec)`` reads a polygon layer and a values table, aligns them by unit ID and period
+and returns an immutable :class:`Panel`. Every problem a real file has becomes a
+:class:`~mapdrift.findings.Finding`; error-level findings raise :class:`~mapdrift.errors.InputError`.
+Every input unit is accounted for: layer units without values are kept as no data; table rows
+that match no polygon are listed in a finding.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from mapdrift.findings import Finding
+
+if TYPE_CHECKING:
+    import geopandas as gpd
+    import pandas as pd
+
+__all__ = ["InputSpec", "Panel", "PanelMeta", "load_panel", "period_label"]
+
+
+def period_label(period: Any) -> str:
+    """Text for a period: ``2019`` -> ``'2019'``, ``Period('2020Q1')`` -> ``'2020Q1'``."""
+    return str(period)
+
+
+@dataclass(frozen=True)
+class PanelMeta:
+    """What the values are: variable name, unit label and source line for titles and captions."""
+
+    variable: str = "value"
+    unit_label: str = ""
+    source: str = ""
+
+
+@dataclass(frozen=True, eq=False)
+class Panel:
+    """Values of one variable for ``units`` (the geometry's order) over sorted ``periods``.
+
+    ``values`` is a read-only float64 array ``[n_units, n_periods]``; NaN means missing.
+    ``geometry`` is a GeoSeries aligned to ``units`` in the map CRS (projected, metres when the
+    input was geographic). ``numerator``/``denominator`` hold the counts when the values are rates
+    computed from counts (same shape; used by rate smoothing), else ``None``.
+    ``inputs`` lists the files read (the manifest hashes them).
+    """
+
+    units: tuple[str, ...]
+    periods: tuple[Any, ...]
+    values: np.ndarray
+    geometry: gpd.GeoSeries
+    names: tuple[str, ...] = ()
+    findings: tuple[Finding, ...] = ()
+    meta: PanelMeta = field(default_factory=PanelMeta)
+    numerator: np.ndarray | None = None
+    denominator: np.ndarray | None = None
+    inputs: tuple[Path, ...] = ()
+
+    def __post_init__(self) -> None:
+        values = np.array(self.values, dtype=np.float64)  # copy: the caller's array stays theirs
+        if values.shape != (len(self.units), len(self.periods)):
+            raise ValueError(
+                f"values shape {values.shape} does not match {len(self.units)} units x "
+                f"{len(self.periods)} periods"
+            )
+        values.flags.writeable = False
+        object.__setattr__(self, "values", values)
+        for name in ("numerator", "denominator"):
+            arr = getattr(self, name)
+            if arr is not None:
+                arr = np.array(arr, dtype=np.float64)
+                arr.flags.writeable = False
+                object.__setattr__(self, name, arr)
+        if not self.names:
+            object.__setattr__(self, "names", tuple(self.units))
+        if len(self.names) != len(self.units):
+            raise ValueError("names must have one entry per unit")
+        if len(self.geometry) != len(self.units):
+            raise ValueError("geometry must have one entry per unit")
+
+    # -- shape -----------------------------------------------------------------------------
+    @property
+    def n_units(self) -> int:
+        return len(self.units)
+
+    @property
+    def n_periods(self) -> int:
+        return len(self.periods)
+
+    @property
+    def period_labels(self) -> tuple[str, ...]:
+        return tuple(period_label(p) for p in self.periods)
+
+    def period_index(self, period: Any) -> int:
+        """Column of ``period`` (accepts the period itself or its text, e.g. ``'2019'``)."""
+        labels = self.period_labels
+        key = period_label(period)
+        if key not in labels:
+            from mapdrift.errors import ConfigError
+            from mapdrift.findings import examples
+
+            raise ConfigError(f"period {key!r} is not in the data; periods are {examples(labels, 8)}")
+        return labels.index(key)
+
+    # -- derived panels --------------------------------------------------------------------
+    def with_values(self, values: np.ndarray, *, finding: Finding | None = None, **meta: str) -> Panel:
+        """A new Panel with other values (smoothed, relative...), optionally noting why."""
+        findings = self.findings + ((finding,) if finding else ())
+        new_meta = replace(self.meta, **meta) if meta else self.meta
+        return replace(self, values=values, findings=findings, meta=new_meta)
+
+    def with_findings(self, extra: Sequence[Finding]) -> Panel:
+        return replace(self, findings=self.findings + tuple(extra))
+
+    # -- summaries ---------------------------------------------------------------------------
+    def completeness(self) -> pd.DataFrame:
+        """Per period: units with a value, missing, and share present."""
+        import pandas as pd
+
+        present = (~np.isnan(self.values)).sum(axis=0)
+        return pd.DataFrame(
+            {
+                "period": list(self.period_labels),
+                "with_value": present,
+                "missing": self.n_units - present,
+                "share_present": present / max(self.n_units, 1),
+            }
+        )
+
+    def to_frame(self) -> pd.DataFrame:
+        """Long table: unit, name, period, value (NaN kept)."""
+        import pandas as pd
+
+        n_u, n_p = self.values.shape
+        return pd.DataFrame(
+            {
+                "unit": np.repeat(np.array(self.units, dtype=object), n_p),
+                "name": np.repeat(np.array(self.names, dtype=object), n_p),
+                "period": list(self.period_labels) * n_u,
+                "value": self.values.ravel(),
+            }
+        )
+
+    @classmethod
+    def from_arrays(
+        cls,
+        values: np.ndarray,
+        geometry: Any,
+        *,
+        units: Sequence[str] | None = None,
+        periods: Sequence[Any] | None = None,
+        crs: Any = None,
+        **kwargs: Any,
+    ) -> Panel:
+        """Build a Panel from arrays and shapes (for notebooks and tests); no validation."""
+        import geopandas as gpd
+
+        values = np.asarray(values, dtype=np.float64)
+        n_u, n_p = values.shape
+        units = tuple(str(u) for u in (units if units is not None else range(n_u)))
+        periods = tuple(periods if periods is not None else range(n_p))
+        if not isinstance(geometry, gpd.GeoSeries):
+            geometry = gpd.GeoSeries(list(geometry), crs=crs)
+        geometry = geometry.reset_index(drop=True)
+        return cls(units=units, periods=periods, values=values, geometry=geometry, **kwargs)
+
+
+@dataclass(frozen=True)
+class InputSpec:
+    """Where the data are and how to read them; mirrors the command-line input options.
+
+    Long tables name ``period`` and ``value`` columns; wide tables give ``columns`` as a glob
+    pattern such as ``rate_*`` (the period is parsed from the rest of the name); with neither,
+    columns whose names carry a year are used. ``numerator``/``denominator`` turn counts into
+    rates ``per`` so many (patterns such as ``filings_*`` for wide tables).
+    """
+
+    geometry: Path
+    table: Path | None = None
+    layer: str | None = None
+    id: str | None = None
+    table_id: str | None = None
+    name: str | None = None
+    period: str | None = None
+    value: str | None = None
+    columns: str | None = None
+    numerator: str | None = None
+    denominator: str | None = None
+    per: float = 1000.0
+    min_base: float = 20.0
+    duplicates: str = "error"
+    missing: tuple[float, ...] = ()
+    crs: str | None = None
+    map_crs: str | None = None
+    id_width: int | None = None
+    variable: str | None = None
+    unit_label: str | None = None
+    source: str | None = None
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "geometry", Path(self.geometry))
+        if self.table is not None:
+            object.__setattr__(self, "table", Path(self.table))
+        object.__setattr__(self, "missing", tuple(float(x) for x in self.missing))
+
+
+def load_panel(spec: InputSpec) -> Panel:
+    """Read, align and validate; raise InputError on error-level findings."""
+    from mapdrift._loader import load
+
+    return load(spec)
