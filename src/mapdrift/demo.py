@@ -11,23 +11,24 @@ open ocean (lon 0.2-0.9, lat 0.1-0.6, roughly 60 x 50 km).
 Planted stories for the default seed 20261201 (layer IDs):
 
 * emerging hot cluster, rates rise from 2018, high-high by 2021-2024:
-  07069 07070 07071 07072 07079 07080 07081 07082 07089 07090 07091 07098
+  07071 07072 07089 07090 07091 07092 07093 07106 07107 07108 07109 07110
 * cooling cluster, high in 2012-2016, back to average by 2020:
-  07100 07101 07108 07109 07110 07116 07117 07118 07124 07125
-* single-year jump that stays up (~5 -> ~35 per 1,000): 07021 in 2019,
-  07133 in 2021
-* one-year spike (2017 only, looks like a data error): 07055
+  07114 07115 07116 07117 07119 07129 07130 07131 07132 07133
+* single-year jump that stays up (~5 -> ~35 per 1,000): 07074 in 2019,
+  07141 in 2021
+* one-year spike (2017 only, looks like a data error): 07031
 * sentinel zeros: in 2016 the "Tamsivar court district" block reports
-  filings = 0 exactly: 07012 07013 07014 07022 07023 07024 07025 07032 07033
-  07034 07035 07043
-* small base (< 20 mortgaged parcels): 07052 07076 07145
-* rows absent from filings.csv: 07010 (2013-2015), 07059 (2013),
-  07066 (2022-2023), 07146 (2021-2023)
-* layer unit with no rows at all: 07038; table ID with no polygon: 07999
-* island unit (a small islet off the coast): 07150
-* new jumper in filings_2025.csv (>= 2 pooled quintile classes up): 07120
-* 15 ``(S)`` suppressed cells and 5 blank cells among ordinary units, and
-  about 40% of rows with the leading zero dropped ("7001"), in both tables.
+  filings = 0 exactly (its neighbours do not): 07007 07008 07009 07021 07022
+  07023 07024 07025 07026 07042 07043 07044
+* small base (< 20 mortgaged parcels): 07038 07066 07101
+* rows absent from filings.csv: 07013 (2018-2020), 07077 (2013-2015),
+  07103 (2018-2020), 07142 (2016)
+* layer unit with no rows at all: 07039; table ID with no polygon: 07999
+* island unit (a small islet off the east coast): 07150
+* new jumper in filings_2025.csv (2nd to top pooled quintile, 3 classes): 07124
+* 15 ``(S)`` suppressed cells (counts 1-4) and 5 blank cells among ordinary
+  units of filings.csv; in both tables about 40% of rows lost the leading
+  zero ("7001").
 """
 
 from __future__ import annotations
@@ -73,6 +74,8 @@ scheme = "quantile"
 k = 5
 basis = "pooled"
 """
+_COMMAND = ("PYTHONPATH=src python -c \"from pathlib import Path; "
+            "from mapdrift.demo import generate; generate(Path('demo_data'))\"")
 
 
 @dataclass(frozen=True)
@@ -133,7 +136,7 @@ def _neighbours(geoms: np.ndarray) -> list[set[int]]:
     """Queen contiguity (shared edge or vertex) as a list of neighbour index sets."""
     left, right = shapely.STRtree(geoms).query(geoms, predicate="intersects")
     nb: list[set[int]] = [set() for _ in geoms]
-    for i, j in zip(left, right):
+    for i, j in zip(left, right, strict=True):
         if i != j:
             nb[i].add(int(j))
     return nb
@@ -208,33 +211,34 @@ def generate(out_dir: Path, *, seed: int = 20261201) -> DemoFiles:
     m, T = n + 1, len(YEARS)
     u, v = ((np.vstack([xy, CENTER]) - CENTER) / AXES).T
     ph = rng.uniform(0, 2 * np.pi, 3)
-    spatial = np.exp(0.3 * np.sin(1.7 * u + ph[0]) + 0.25 * np.cos(1.3 * v + ph[1])
-                     + 0.15 * np.sin(1.1 * (u + v) + ph[2]) + rng.normal(0, 0.08, m))
+    spatial = np.exp(0.45 * np.sin(1.7 * u + ph[0]) + 0.35 * np.cos(1.3 * v + ph[1])
+                     + 0.2 * np.sin(1.1 * (u + v) + ph[2]) + rng.normal(0, 0.12, m))
     spatial[blocks["emerging_hot"] + blocks["cooling"]] = 1.0
     rate = spatial[:, None] * _cycle(YEARS)[None, :]
     rate[blocks["emerging_hot"]] *= 1 + 2.8 * np.clip((YEARS - 2017) / 4, 0, 1)
     rate[blocks["cooling"]] *= 1 + 2.2 * np.clip((2020 - YEARS) / 4, 0, 1)
     for key, year in (("jump_2019", 2019), ("jump_2021", 2021)):
-        rate[singles[key]] = np.where(YEARS >= year, 35.0, 5.0)
+        rate[singles[key]] = np.where(year > YEARS, 5.0, 35.0)
     rate[singles["spike_2017"], YEARS == 2017] *= 6.0
-    base = np.exp(rng.uniform(np.log(300), np.log(3000), m))
+    base = 300.0 * 10.0 ** np.sqrt(rng.random(m))  # 300-3000, most above 1,000
     base[big] = rng.uniform(1500, 3000, len(big))
     growth = rng.uniform(-0.01, 0.015, m)
     parcels = np.rint(base[:, None] * (1 + growth[:, None] * (YEARS - 2012))).astype(int)
     parcels[singles["small_base"]] = rng.integers(8, 20, (3, 1))
     filings = rng.poisson(rate * parcels / 1000.0)
     t16 = int(np.flatnonzero(YEARS == 2016)[0])
-    filings[blocks["sentinel_zeros_2016"], t16] = 0  # not-reported code
-    for i in {j for k in blocks["sentinel_zeros_2016"] for j in nb[k]} - set(blocks["sentinel_zeros_2016"]):
+    zero = blocks["sentinel_zeros_2016"]
+    filings[zero, t16] = 0  # not-reported code
+    for i in sorted({j for k in zero for j in nb[k]} - set(zero)):
         while filings[i, t16] == 0:  # the block must stand out against reporting neighbours
             filings[i, t16] = rng.poisson(rate[i, t16] * parcels[i, t16] / 1000.0)
 
     # --- 2025 newcomer: a low unit in 2024 that lands in the top pooled quintile
     obs = filings[:n, :-1] / parcels[:n, :-1] * 1000.0
-    q40, q80 = np.quantile(obs, [0.4, 0.8])
-    cands = [i for i in range(n) if i not in blocked and obs[i, -1] < q40 and base[i] > 800]
-    nj = int(rng.choice(cands))
-    filings[nj, -1] = rng.poisson(2.2 * q80 * parcels[nj, -1] / 1000.0)
+    q80 = np.quantile(obs, 0.8)
+    free = [i for i in range(n) if i not in blocked and base[i] > 1500]
+    nj = int(rng.choice(sorted(free, key=lambda i: obs[i, -1])[:5]))  # among the 5 lowest
+    filings[nj, -1] = rng.poisson(2.0 * q80 * parcels[nj, -1] / 1000.0)
 
     # --- long tables with the planted defects
     all_ids = np.append(ids, ORPHAN_ID)
@@ -256,16 +260,17 @@ def generate(out_dir: Path, *, seed: int = 20261201) -> DemoFiles:
     def frame(rows: list[tuple[int, int]], text: dict[tuple[int, int], str]) -> pd.DataFrame:
         uid = [all_ids[i] for i, _ in rows]
         drop = rng.random(len(rows)) < 0.4  # spreadsheet ate the leading zero
-        return pd.DataFrame({"unit_id": [s[1:] if d else s for s, d in zip(uid, drop)],
+        return pd.DataFrame({"unit_id": [s[1:] if d else s for s, d in zip(uid, drop, strict=True)],
                              "year": [int(YEARS[t]) for _, t in rows],
                              "filings": [text[c] for c in rows],
                              "mortgaged_parcels": [int(parcels[c]) for c in rows]})
 
+    stories = {k: tuple(sorted(map(str, ids[v]))) for k, v in (blocks | singles).items()}
+    stories |= {"island": (str(ids[n - 1]),), "new_jumper_2025": (str(ids[nj]),),
+                "orphan_table_id": (ORPHAN_ID,)}
     files = DemoFiles(out_dir / "county_units.gpkg", out_dir / "filings.csv",
                       out_dir / "filings_2025.csv", out_dir / "demo.toml", out_dir / "README.md",
-                      stories={k: tuple(ids[v]) for k, v in {**blocks, **singles}.items()}
-                      | {"island": (ids[n - 1],), "new_jumper_2025": (ids[nj],),
-                         "orphan_table_id": (ORPHAN_ID,)})
+                      stories=stories)
     frame(keep, cells_txt).to_csv(files.table, index=False, lineterminator="\n")
     nxt = [(i, T - 1) for i in range(m) if i not in singles["no_rows"]]
     frame(nxt, {c: str(filings[c]) for c in nxt}).to_csv(
@@ -311,7 +316,7 @@ place is depicted, and every number is simulated.
 
 Generated by `mapdrift.demo.generate` with seed {seed}:
 
-    PYTHONPATH=src python -c "from pathlib import Path; from mapdrift.demo import generate; generate(Path('demo_data'))"
+    {_COMMAND}
 
 Filings are Poisson draws around a county-wide cycle (peak 2012, trough about
 2018, mild rise after) with smooth spatial variation. Defects on purpose: 15

@@ -11,7 +11,7 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
-__all__ = ["LEVELS", "Finding", "examples", "raise_errors"]
+__all__ = ["LEVELS", "Finding", "examples", "plural", "raise_errors"]
 
 Level = Literal["error", "warning", "note"]
 LEVELS: tuple[str, ...] = ("error", "warning", "note")
@@ -60,3 +60,8 @@ def raise_errors(findings: Sequence[Finding], error_cls: type[Exception]) -> Non
     if errors:
         extra = f" (and {len(errors) - 1} more errors)" if len(errors) > 1 else ""
         raise error_cls(errors[0].message + extra)
+
+
+def plural(n: int, word: str, words: str | None = None) -> str:
+    """``plural(1, "ID")`` -> ``'1 ID'``; ``plural(3, "unit")`` -> ``'3 units'``."""
+    return f"{n:,} {word if n == 1 else (words or word + 's')}"
