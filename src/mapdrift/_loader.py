@@ -344,8 +344,9 @@ def load(spec: InputSpec) -> Panel:
             Finding(
                 "warning",
                 "ids-table-only",
-                f"{tpath.name}: {plural(len(table_only), 'ID')} ({plural(rows, 'row')}) match no polygon and are not mapped: "
-                f"{examples(table_only)}{hint}",
+                f"{tpath.name}: table IDs with no polygon, not mapped: {examples(table_only)}{hint} "
+                f"({plural(len(table_only), 'ID')}, {plural(rows, 'row')}); check for a boundary "
+                "vintage change or typos",
                 tuple(table_only),
             )
         )
@@ -356,8 +357,8 @@ def load(spec: InputSpec) -> Panel:
             Finding(
                 "warning",
                 "units-no-values",
-                f"{plural(len(no_rows), 'layer unit')} {'has' if len(no_rows) == 1 else 'have'} no row in the table and are shown as no data: "
-                f"{examples(no_rows)}",
+                f"layer units with no row in the table, kept and shown as no data: {examples(no_rows)} "
+                f"({plural(len(no_rows), 'unit')})",
                 tuple(no_rows),
             )
         )

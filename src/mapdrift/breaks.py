@@ -205,14 +205,23 @@ class Breaks:
 
 
 def _decimals(edges: Sequence[float]) -> int:
-    """Fewest decimals (>= 1 unless all edges are whole) that keep every edge distinct."""
+    """Fewest decimals that keep edges distinct and each within 1 % of the narrowest class.
+
+    Whole-number edges get none; otherwise at least one. Rounding must not misplace a value
+    visibly: 4.25 is not shown as 4.2 when the classes are only a few units wide.
+    """
     finite = [e for e in edges if math.isfinite(e)]
     if finite and all(float(e).is_integer() for e in finite):
         return 0
-    for d in range(1, 8):
+    gaps = [b - a for a, b in zip(finite, finite[1:]) if b > a]
+    tol = 0.01 * min(gaps) if gaps else 0.0
+    for d in range(1, 5):
         rounded = [round(e, d) for e in finite]
-        if len(set(rounded)) == len(rounded):
+        if len(set(rounded)) == len(rounded) and all(abs(r - e) <= tol + 1e-12 for r, e in zip(rounded, finite)):
             return d
+    for d in range(1, 9):
+        if len({round(e, d) for e in finite}) == len(finite):
+            return max(d, 4)
     return 8
 
 

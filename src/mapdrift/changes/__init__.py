@@ -1,0 +1,348 @@
+"""Class-change detection: transitions, Markov summaries, jumps, trajectories, spatial context.
+
+One entry point, :func:`analyse_changes` ``(panel, classes, options)``, returns a
+:class:`ChangeResult` (arrays, DataFrames and findings); :func:`write_changes` writes its files
+(``transitions.csv``, ``transition_probabilities.csv``, ``transitions_by_pair.csv``,
+``markov.json``, ``jumps.csv``, ...). Transitions use exactly the class codes of the
+:class:`~mapdrift.breaks.Classes` handed in, so they match the maps. For "who moved relative to
+the county" questions, classify :func:`relative_panel` instead of the panel.
+
+Missing data: class ``-1`` (no data) never makes a transition or a move; such unit pairs are
+counted in the findings. Steps across a gap in the series count only with ``bridge_gaps``.
+"""
+
+from __future__ import annotations
+
+import logging
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from mapdrift.changes.markov import (
+    HomogeneityTest,
+    MarkovSummary,
+    first_passage_times,
+    homogeneity_test,
+    markov_summary,
+    stationary_distribution,
+)
+from mapdrift.changes.spatial_markov import SpatialMarkov, spatial_markov
+from mapdrift.changes.trajectories import FLAG_LABELS, UnitChanges, rank_mobility, unit_changes
+from mapdrift.changes.transitions import Transitions, class_labels, count_transitions
+from mapdrift.errors import ConfigError
+from mapdrift.findings import Finding, examples
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+    from mapdrift.breaks import Classes
+    from mapdrift.panel import Panel
+    from mapdrift.weights import SpatialWeights
+
+__all__ = [
+    "FLAG_LABELS",
+    "RELATIVE_CHOICES",
+    "ChangeOptions",
+    "ChangeResult",
+    "HomogeneityTest",
+    "MarkovSummary",
+    "SpatialMarkov",
+    "Transitions",
+    "analyse_changes",
+    "count_transitions",
+    "first_passage_times",
+    "homogeneity_test",
+    "markov_summary",
+    "relative_panel",
+    "spatial_markov",
+    "stationary_distribution",
+    "write_changes",
+]
+
+log = logging.getLogger(__name__)
+
+#: Accepted values of ``relative`` / ``--relative``.
+RELATIVE_CHOICES: tuple[str, ...] = ("mean", "median")
+
+
+@dataclass(frozen=True)
+class ChangeOptions:
+    """Options of the change step (the config's ``[changes]`` section maps onto these).
+
+    ``jump``: classes moved in one step to flag a jump. ``spike_window``: period columns after a
+    jump within which a move back makes it a spike. ``persist``: last periods a unit must stay
+    in the top/bottom class. ``bridge_gaps``: count steps across missing periods. ``relative``:
+    ``mean``/``median`` to divide each period by its mean/median before classing (applied by the
+    caller with :func:`relative_panel`). ``spatial``: compute spatially conditioned transitions
+    with ``weights`` (a kind of :func:`mapdrift.weights.build_weights`).
+    """
+
+    jump: int = 2
+    spike_window: int = 2
+    persist: int = 3
+    bridge_gaps: bool = False
+    relative: str | None = None
+    spatial: bool = True
+    weights: str = "queen"
+
+    def __post_init__(self) -> None:
+        for name in ("jump", "spike_window", "persist"):
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, int | np.integer) or v < 1:
+                flag = "--" + name.replace("_", "-")
+                raise ConfigError(f"{flag} must be a whole number >= 1, got {v!r}; e.g. {flag} 2")
+        if self.relative is not None and self.relative not in RELATIVE_CHOICES:
+            raise ConfigError(
+                f"--relative {self.relative!r} is not a valid option, must be one of "
+                f"{', '.join(RELATIVE_CHOICES)}"
+            )
+
+
+@dataclass(frozen=True, eq=False)
+class ChangeResult:
+    """Everything the change step found (see :func:`analyse_changes`).
+
+    ``net_change`` (float per unit, NaN = no data in the first or last period) and ``flag``
+    (index into ``flag_labels`` per unit, -1 = no data at all) feed the change map and the
+    flagged-units map. ``warning`` is the per-period-breaks text every output must carry.
+    """
+
+    transitions: Transitions
+    markov: MarkovSummary
+    homogeneity: HomogeneityTest
+    units: pd.DataFrame
+    jumps: pd.DataFrame
+    rank_mobility: pd.DataFrame
+    spatial: SpatialMarkov | None
+    net_change: np.ndarray
+    flag: np.ndarray
+    options: ChangeOptions
+    labels: tuple[str, ...]
+    period_labels: tuple[str, ...]
+    class_shares: np.ndarray
+    warning: str | None = None
+    findings: tuple[Finding, ...] = field(default=())
+
+    def markov_json(self) -> dict[str, Any]:
+        """The content of ``markov.json``."""
+        from mapdrift.changes.io import markov_document
+
+        return markov_document(self)
+
+
+def relative_panel(panel: Panel, how: str = "mean") -> Panel:
+    """Each period's values divided by that period's mean (or median) over units.
+
+    NaN stays NaN; a period whose mean/median is zero or missing gets NaN values throughout and
+    a warning finding. The result is a derived Panel (``panel.with_values``) whose values are
+    ratios (1 = the period's typical value).
+    """
+    if how not in RELATIVE_CHOICES:
+        raise ConfigError(
+            f"--relative {how!r} is not a valid option, must be one of {', '.join(RELATIVE_CHOICES)}"
+        )
+    v = panel.values
+    with np.errstate(invalid="ignore", divide="ignore"):
+        centre = np.nanmean(v, axis=0) if how == "mean" else np.nanmedian(v, axis=0)
+    bad = ~np.isfinite(centre) | (centre == 0)
+    safe = np.where(bad, np.nan, centre)
+    rel = v / safe
+    if bad.any():
+        periods = [panel.period_labels[j] for j in np.flatnonzero(bad)]
+        finding = Finding(
+            "warning",
+            "relative-undefined",
+            f"the {how} is zero or missing in {int(bad.sum())} periods ({examples(periods)}); "
+            "their relative values are no data",
+        )
+    else:
+        finding = Finding(
+            "note",
+            "relative-values",
+            f"values are divided by each period's {how} (1 = the period's {how})",
+        )
+    return panel.with_values(
+        rel,
+        finding=finding,
+        variable=f"{panel.meta.variable} relative to the period {how}",
+        unit_label=f"x the period {how}",
+    )
+
+
+def _findings(
+    tr: Transitions, mk: MarkovSummary, hom: HomogeneityTest, uc: UnitChanges, classes: Classes,
+    spatial: SpatialMarkov | None, units: tuple[str, ...], jump: int,
+) -> list[Finding]:
+    out: list[Finding] = []
+    if classes.warning:
+        out.append(Finding("warning", "changes-per-period-breaks", classes.warning))
+    if tr.skipped_steps:
+        pairs = [f"{tr.period_labels[a]}-{tr.period_labels[b]}" for a, b in tr.skipped_steps]
+        out.append(
+            Finding(
+                "warning",
+                "changes-gap-skipped",
+                f"{len(pairs)} steps span missing periods ({examples(pairs)}) and were not "
+                "counted; pass --bridge-gaps to count them",
+            )
+        )
+    if any(tr.gap_steps):
+        pairs = [tr.step_label(s) for s, g in enumerate(tr.gap_steps) if g]
+        out.append(
+            Finding("note", "changes-gap-bridged", f"steps across gaps counted: {examples(pairs)}")
+        )
+    miss = int(tr.n_missing.sum())
+    if miss:
+        out.append(
+            Finding(
+                "note",
+                "changes-missing-pairs",
+                f"{miss:,} unit steps have no data in one of their periods and were left out "
+                f"({tr.n_pairs:,} counted)",
+            )
+        )
+    if not tr.steps:
+        out.append(
+            Finding("warning", "changes-no-steps", "no pair of consecutive periods to compare")
+        )
+    for note in mk.notes:
+        out.append(Finding("note", "changes-markov", note))
+    if hom.p_LR is not None:
+        differ = hom.p_LR < 0.05
+        out.append(
+            Finding(
+                "note",
+                "changes-homogeneity",
+                (
+                    "transition probabilities differ between steps"
+                    if differ
+                    else "no evidence that transition probabilities differ between steps"
+                )
+                + f" (likelihood ratio {hom.LR:.1f}, df {hom.df}, p = {hom.p_LR:.3g})",
+            )
+        )
+    if spatial is not None and spatial.test.p_LR is not None:
+        t = spatial.test
+        differ = t.p_LR < 0.05
+        out.append(
+            Finding(
+                "note",
+                "changes-spatial-context",
+                (
+                    "transitions depend on the neighbourhood's class"
+                    if differ
+                    else "no evidence that transitions depend on the neighbourhood's class"
+                )
+                + f" (likelihood ratio {t.LR:.1f}, df {t.df}, p = {t.p_LR:.3g})",
+            )
+        )
+    uid = np.array(units, dtype=object)
+    spikes = uc.table["spike"].to_numpy()
+    if spikes.any():
+        ids = tuple(uid[spikes])
+        out.append(
+            Finding(
+                "warning",
+                "changes-spikes",
+                f"{len(ids)} units jumped and came straight back ({examples(ids)}); "
+                "check these values for data errors",
+                ids,
+            )
+        )
+    jumped = uc.table["jump"].to_numpy()
+    if jumped.any():
+        ids = tuple(uid[jumped])
+        out.append(
+            Finding(
+                "note",
+                "changes-jumps",
+                f"{len(ids)} units moved {jump} or more classes in one step ({examples(ids)})",
+                ids,
+            )
+        )
+    return out
+
+
+def analyse_changes(
+    panel: Panel,
+    classes: Classes,
+    options: ChangeOptions | None = None,
+    *,
+    weights: SpatialWeights | None = None,
+) -> ChangeResult:
+    """Run every change computation on ``classes`` (computed from ``panel``).
+
+    ``weights`` (optional) are reused for the spatially conditioned transitions; without them
+    and with ``options.spatial`` they are built from the panel's geometry. ``options.relative``
+    is *not* applied here: classify :func:`relative_panel` first.
+    """
+    options = options or ChangeOptions()
+    codes = np.asarray(classes.codes)
+    if codes.shape != panel.values.shape:
+        raise ValueError(
+            f"classes shape {codes.shape} does not match the panel's {panel.values.shape}"
+        )
+    k = classes.k
+    labels = class_labels(classes)
+    per = panel.period_labels
+    tr = count_transitions(
+        codes, k, periods=panel.periods, labels=labels, bridge_gaps=options.bridge_gaps
+    )
+    mk = markov_summary(tr.counts, labels)
+    hom = homogeneity_test(tr.by_step, what="steps", labels=labels)
+    top = [classes.breaks_for(j).k - 1 for j in range(panel.n_periods)]
+    uc = unit_changes(
+        codes,
+        panel.values,
+        tr.steps,
+        units=panel.units,
+        names=panel.names,
+        period_labels=per,
+        top=top,
+        class_labels=labels,
+        jump=options.jump,
+        spike_window=options.spike_window,
+        persist=options.persist,
+    )
+    rm = rank_mobility(panel.values, tr.steps, per)
+    sm = None
+    if options.spatial and tr.steps:
+        if weights is None:
+            from mapdrift.weights import build_weights
+
+            weights = build_weights(panel.geometry, options.weights, units=panel.units)
+        sm = spatial_markov(panel.values, classes, weights, tr.steps, labels=labels)
+    shares = classes.counts().astype(np.float64)
+    tot = shares.sum(axis=1, keepdims=True)
+    shares = np.divide(shares, tot, out=np.zeros_like(shares), where=tot > 0)
+    findings = _findings(tr, mk, hom, uc, classes, sm, panel.units, options.jump)
+    if weights is not None and sm is not None:
+        findings.extend(weights.findings)
+    log.info(
+        "changes: %d steps, %d unit pairs, %d jumps", len(tr.steps), tr.n_pairs, len(uc.jumps)
+    )
+    return ChangeResult(
+        transitions=tr,
+        markov=mk,
+        homogeneity=hom,
+        units=uc.table,
+        jumps=uc.jumps,
+        rank_mobility=rm,
+        spatial=sm,
+        net_change=uc.net_change,
+        flag=uc.flag,
+        options=options,
+        labels=labels,
+        period_labels=per,
+        class_shares=shares,
+        warning=classes.warning,
+        findings=tuple(findings),
+    )
+
+
+def write_changes(*args: Any, **kwargs: Any) -> list[Any]:
+    """Write the change tables; see :func:`mapdrift.changes.io.write_changes`."""
+    from mapdrift.changes.io import write_changes as _write
+
+    return _write(*args, **kwargs)

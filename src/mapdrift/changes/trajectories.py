@@ -1,0 +1,266 @@
+"""Per-unit class histories: trajectory, moves, jumps, spikes and persistence flags.
+
+Definitions (ours; they use the same steps as the transition counts, so a step across an
+unbridged gap or with a no-data cell is never a move):
+
+- *trajectory*: the 1-based class per period joined by ``-`` (``2-2-3-5-5``); ``_`` = no data.
+- *class changes*: steps whose class differs; *largest move*: the signed move with the largest
+  size (the earliest when tied), with its periods; *net change*: class in the last period minus
+  class in the first period (NaN when either is no data).
+- ``jump``: a step of ``jump`` or more classes (up or down).
+- ``spike``: a jump followed, within ``spike_window`` period columns after it landed, by a move
+  back of at least ``jump`` classes from the landing class (``2-5-2``, ``2-5-5-3`` with a window
+  of 2): often a data error worth checking.
+- ``persistent-top`` / ``persistent-bottom``: in the highest / lowest class in each of the last
+  ``persist`` periods (no data in any of them -> not flagged).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+__all__ = [
+    "FLAG_LABELS",
+    "UnitChanges",
+    "flag_codes",
+    "rank_mobility",
+    "trajectories",
+    "unit_changes",
+]
+
+#: Categories of the flagged-units map, in drawing order; a unit shows its first matching flag.
+FLAG_LABELS: tuple[str, ...] = (
+    "spike (check data)",
+    "jumps up and down",
+    "jump up",
+    "jump down",
+    "persistent top",
+    "persistent bottom",
+    "no flag",
+)
+
+
+def trajectories(codes: np.ndarray) -> np.ndarray:
+    """Trajectory text per unit (object array), e.g. ``'2-2-_-5'``; classes are shown 1-based."""
+    codes = np.asarray(codes)
+    n_u, n_p = codes.shape
+    if n_p == 0:
+        return np.full(n_u, "", dtype=object)
+    if codes.max(initial=-1) < 9:  # one character per class: build the bytes directly
+        chars = np.where(codes >= 0, codes + ord("1"), ord("_")).astype(np.uint8)
+        buf = np.full((n_u, 2 * n_p - 1), ord("-"), dtype=np.uint8)
+        buf[:, ::2] = chars
+        raw = np.ascontiguousarray(buf).view(f"S{2 * n_p - 1}").ravel()
+        return raw.astype(str).astype(object)
+    tokens = np.where(codes >= 0, (codes + 1).astype(str), "_")
+    return np.array(["-".join(row) for row in tokens], dtype=object)
+
+
+@dataclass(frozen=True, eq=False)
+class UnitChanges:
+    """Per-unit change columns and the table of flagged moves.
+
+    ``table`` has one row per unit (the ``units.csv`` change columns); ``jumps`` one row per
+    move of ``jump`` classes or more. ``net_change`` (float, NaN = no data) and ``flag`` (index
+    into :data:`FLAG_LABELS`, -1 = no data at all) feed the change map and the flagged map.
+    """
+
+    table: pd.DataFrame
+    jumps: pd.DataFrame
+    net_change: np.ndarray
+    flag: np.ndarray
+
+
+def unit_changes(
+    codes: np.ndarray,
+    values: np.ndarray,
+    steps: Sequence[tuple[int, int]],
+    *,
+    units: Sequence[str],
+    names: Sequence[str],
+    period_labels: Sequence[str],
+    top: Sequence[int],
+    class_labels: Sequence[str],
+    jump: int = 2,
+    spike_window: int = 2,
+    persist: int = 3,
+) -> UnitChanges:
+    """Trajectories, moves and flags for every unit (vectorised over units and steps).
+
+    ``top[j]`` is the highest class code in period column ``j`` (``k - 1``, or per period when
+    breaks differ by period). ``-1`` codes are no data: never part of a move.
+    """
+    import pandas as pd
+
+    codes = np.asarray(codes).astype(np.int64)
+    values = np.asarray(values, dtype=np.float64)
+    n_u, n_p = codes.shape
+    per = np.array(period_labels, dtype=object)
+    j0 = np.array([s[0] for s in steps], dtype=np.int64)
+    j1 = np.array([s[1] for s in steps], dtype=np.int64)
+    a, b = codes[:, j0], codes[:, j1]
+    valid = (a >= 0) & (b >= 0)
+    move = np.where(valid, b - a, 0)
+    size = np.abs(move)
+    n_valid = valid.sum(axis=1)
+    n_changes = (move != 0).sum(axis=1)
+
+    # largest move: argmax of size picks the earliest step among ties
+    if len(steps):
+        best = np.argmax(np.where(valid, size, -1), axis=1)
+        rows = np.arange(n_u)
+        largest = move[rows, best].astype(np.float64)
+        has = n_valid > 0
+        largest[~has] = np.nan
+        lfrom = np.where(has & (size[rows, best] > 0), per[j0[best]], "")
+        lto = np.where(has & (size[rows, best] > 0), per[j1[best]], "")
+    else:
+        largest = np.full(n_u, np.nan)
+        lfrom = lto = np.full(n_u, "", dtype=object)
+
+    first, last = codes[:, 0], codes[:, -1]
+    net = np.where((first >= 0) & (last >= 0), last - first, np.nan).astype(np.float64)
+
+    # jumps
+    ju, js = np.nonzero(valid & (size >= jump))
+    jmove = move[ju, js]
+    sign = np.sign(jmove)
+    land = b[ju, js]
+    back_col = np.full(len(ju), -1, dtype=np.int64)
+    for w in range(1, spike_window + 1):
+        col = j1[js] + w
+        inside = (col < n_p) & (back_col < 0)
+        if not inside.any():
+            continue
+        c = np.full(len(ju), -1, dtype=np.int64)
+        c[inside] = codes[ju[inside], col[inside]]
+        back = inside & (c >= 0) & (sign * (land - c) >= jump)
+        back_col[back] = col[back]
+    spike = back_col >= 0
+    lab = np.array(class_labels, dtype=object)
+    jumps = pd.DataFrame(
+        {
+            "unit": np.array(units, dtype=object)[ju],
+            "name": np.array(names, dtype=object)[ju],
+            "from_period": per[j0[js]],
+            "to_period": per[j1[js]],
+            "from_class": a[ju, js] + 1,
+            "to_class": land + 1,
+            "from_label": lab[a[ju, js]] if len(ju) else np.array([], dtype=object),
+            "to_label": lab[land] if len(ju) else np.array([], dtype=object),
+            "size": jmove,
+            "direction": np.where(jmove > 0, "up", "down"),
+            "value_before": values[ju, j0[js]],
+            "value_after": values[ju, j1[js]],
+            "spike": spike,
+            "back_by": np.where(spike, per[np.maximum(back_col, 0)], ""),
+        }
+    )
+    n_jumps = np.bincount(ju, minlength=n_u)
+    up = np.bincount(ju[jmove > 0], minlength=n_u) > 0
+    down = np.bincount(ju[jmove < 0], minlength=n_u) > 0
+    unit_spike = np.bincount(ju[spike], minlength=n_u) > 0
+
+    persist = min(persist, n_p)
+    tail = codes[:, n_p - persist :]
+    top_tail = np.asarray(top, dtype=np.int64)[n_p - persist :]
+    p_top = (tail == top_tail).all(axis=1)
+    p_bottom = (tail == 0).all(axis=1)
+
+    flag = flag_codes(unit_spike, up, down, p_top, p_bottom, (codes >= 0).any(axis=1))
+    texts = []
+    for parts in zip(
+        np.where(up | down, "jump", ""),
+        np.where(unit_spike, "spike", ""),
+        np.where(p_top, "persistent-top", ""),
+        np.where(p_bottom, "persistent-bottom", ""),
+    ):
+        texts.append(";".join(p for p in parts if p))
+    table = pd.DataFrame(
+        {
+            "unit": np.array(units, dtype=object),
+            "name": np.array(names, dtype=object),
+            "trajectory": trajectories(codes),
+            "class_changes": n_changes,
+            "largest_move": largest,
+            "largest_move_from": lfrom,
+            "largest_move_to": lto,
+            "net_change": net,
+            "jumps": n_jumps,
+            "jump": up | down,
+            "spike": unit_spike,
+            "persistent_top": p_top,
+            "persistent_bottom": p_bottom,
+            "flags": texts,
+        }
+    )
+    return UnitChanges(table=table, jumps=jumps, net_change=net, flag=flag)
+
+
+def flag_codes(
+    spike: np.ndarray,
+    up: np.ndarray,
+    down: np.ndarray,
+    top: np.ndarray,
+    bottom: np.ndarray,
+    has_data: np.ndarray,
+) -> np.ndarray:
+    """One category per unit for the flagged map (index into :data:`FLAG_LABELS`, -1 = no data)."""
+    out = np.full(len(spike), FLAG_LABELS.index("no flag"), dtype=np.int16)
+    # assign from the lowest priority up so the highest-priority flag wins
+    out[bottom] = FLAG_LABELS.index("persistent bottom")
+    out[top] = FLAG_LABELS.index("persistent top")
+    out[down] = FLAG_LABELS.index("jump down")
+    out[up] = FLAG_LABELS.index("jump up")
+    out[up & down] = FLAG_LABELS.index("jumps up and down")
+    out[spike] = FLAG_LABELS.index("spike (check data)")
+    out[~np.asarray(has_data, dtype=bool)] = -1
+    return out
+
+
+def rank_mobility(
+    values: np.ndarray, steps: Sequence[tuple[int, int]], period_labels: Sequence[str]
+) -> pd.DataFrame:
+    """Kendall's tau-b (scipy) of the values between each step's periods and first-to-last.
+
+    Units missing (NaN) in either period are left out; fewer than 3 units give NaN. A tau near 1
+    means units kept their rank order; lower values mean more reshuffling.
+    """
+    import pandas as pd
+    from scipy.stats import kendalltau
+
+    values = np.asarray(values, dtype=np.float64)
+    n_p = values.shape[1]
+    pairs = [(a, b, "step") for a, b in steps]
+    if n_p >= 2:
+        pairs.append((0, n_p - 1, "first-last"))
+    rows = []
+    for a, b, kind in pairs:
+        x, y = values[:, a], values[:, b]
+        ok = ~(np.isnan(x) | np.isnan(y))
+        n = int(ok.sum())
+        if n >= 3:
+            res = kendalltau(x[ok], y[ok])
+            tau, p = float(res.statistic), float(res.pvalue)
+        else:
+            tau = p = float("nan")
+        rows.append(
+            {
+                "from_period": period_labels[a],
+                "to_period": period_labels[b],
+                "kind": kind,
+                "n_units": n,
+                "kendall_tau": tau,
+                "p_value": p,
+            }
+        )
+    return pd.DataFrame(
+        rows, columns=["from_period", "to_period", "kind", "n_units", "kendall_tau", "p_value"]
+    )

@@ -1,0 +1,99 @@
+"""The command line: exit codes and one-line messages on bad input, JSON output, import cost."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+
+from conftest import DEMO, long_rows
+
+from mapdrift.cli import app
+
+YEARS = [2018, 2019, 2020]
+
+
+def test_help_lists_commands(runner):
+    r = runner.invoke(app, ["--help"])
+    assert r.exit_code == 0
+    for cmd in ("check", "breaks", "demo"):
+        assert cmd in r.output
+
+
+def test_cli_import_is_light():
+    # `mapdrift --help` must not import the heavy libraries (typer's own import-cost test does
+    # the same for rich).
+    code = "import sys, mapdrift.cli; print([m for m in ('matplotlib', 'geopandas', 'esda', 'libpysal', 'pandas') if m in sys.modules])"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    assert out.strip() == "[]"
+
+
+def test_scheme_choices_mirror_library():
+    from mapdrift.breaks import Scheme
+    from mapdrift.cli._options import SchemeChoice
+
+    assert [s.value for s in SchemeChoice] == [s.value for s in Scheme]
+
+
+def test_check_demo_ok_and_json(runner):
+    r = runner.invoke(app, ["check", "--config", str(DEMO / "demo.toml")])
+    assert r.exit_code == 0, r.output
+    assert "ids-zero-padded" in r.output and "values-zero-block" in r.output
+    r = runner.invoke(app, ["check", "--config", str(DEMO / "demo.toml"), "--json"])
+    data = json.loads(r.output)
+    assert data["units"] == 150 and len(data["periods"]) == 13
+    assert {f["code"] for f in data["findings"]} >= {"ids-zero-padded", "units-no-values"}
+
+
+def test_flags_override_config(runner):
+    r = runner.invoke(app, ["check", "--config", str(DEMO / "demo.toml"), "--per", "100", "--json"])
+    assert r.exit_code == 0
+
+
+def test_bad_inputs_exit_1_with_one_line(runner, layer_file, table_file):
+    layer = layer_file(n_side=2)
+    t = table_file(long_rows(["A", "B", "C", "D"], YEARS))
+    r = runner.invoke(app, ["check", str(layer), str(t), "--id", "unit_id", "--period", "year", "--value", "rate"])
+    assert r.exit_code == 1
+    assert "only 0 of 4 layer units match" in r.output
+    assert "Traceback" not in r.output
+    r = runner.invoke(app, ["check", str(layer.with_name("missing.gpkg"))])
+    assert r.exit_code == 1 and "geometry file not found" in r.output
+    t2 = table_file(long_rows([f"{i + 1:05d}" for i in range(4)], YEARS), "ok.csv")
+    r = runner.invoke(app, ["check", str(layer), str(t2), "--id", "unit_id", "--period", "yr", "--value", "rate"])
+    assert r.exit_code == 1 and "no column 'yr' (--period)" in r.output
+
+
+def test_usage_errors_exit_2(runner, layer_file):
+    r = runner.invoke(app, ["check"])
+    assert r.exit_code == 2 and "no polygon layer given" in r.output
+    r = runner.invoke(app, ["breaks", "--config", str(DEMO / "demo.toml"), "-k", "12"])
+    assert r.exit_code == 2 and "choose k from 2 to 9" in r.output
+    r = runner.invoke(app, ["breaks", "--config", str(DEMO / "demo.toml"), "--scheme", "jenks"])
+    assert r.exit_code == 2
+
+
+def test_debug_shows_traceback(runner, layer_file):
+    r = runner.invoke(app, ["--debug", "check", str(layer_file(n_side=2).with_name("nope.gpkg"))])
+    assert r.exit_code != 0 and r.exception is not None
+
+
+def test_breaks_save_and_force(runner, tmp_path):
+    out = tmp_path / "breaks.json"
+    args = ["breaks", "--config", str(DEMO / "demo.toml"), "--save", str(out)]
+    r = runner.invoke(app, args)
+    assert r.exit_code == 0, r.output
+    assert json.loads(out.read_text())["format"] == "mapdrift-breaks/1"
+    r = runner.invoke(app, args)
+    assert r.exit_code == 3 and "--force" in r.output
+    assert runner.invoke(app, [*args, "--force"]).exit_code == 0
+    r = runner.invoke(app, ["breaks", "--config", str(DEMO / "demo.toml"), "--basis", "per-period"])
+    assert r.exit_code == 0 and "frames are not comparable" in r.output
+
+
+def test_main_returns_exit_codes(capsys):
+    from mapdrift.cli import main
+
+    assert main(["check", "/nonexistent.gpkg"]) == 1
+    assert "geometry file not found" in capsys.readouterr().err
+    assert main(["--version"]) == 0

@@ -1,0 +1,40 @@
+"""The TOML config: unknown keys and wrong types name the key, file and line."""
+
+from __future__ import annotations
+
+import pytest
+
+from mapdrift.config import load_config
+from mapdrift.errors import ConfigError
+
+
+def test_demo_config_parses():
+    from conftest import DEMO
+
+    cfg = load_config(DEMO / "demo.toml")
+    assert cfg.section("inputs")["geometry"] == DEMO / "county_units.gpkg"
+    assert cfg.section("classes")["k"] == 5
+
+
+def test_unknown_key_names_line(tmp_path):
+    p = tmp_path / "c.toml"
+    p.write_text('[inputs]\ngeometry = "a.gpkg"\n\n[classes]\nk = 5\nshceme = "quantile"\n')
+    with pytest.raises(ConfigError, match=r"c.toml:6: key 'shceme' in \[classes\] is not a known key"):
+        load_config(p)
+
+
+def test_wrong_type(tmp_path):
+    p = tmp_path / "c.toml"
+    p.write_text('[classes]\nk = "five"\n')
+    with pytest.raises(ConfigError, match=r"c.toml:2: key 'k' in \[classes\] should be a whole number"):
+        load_config(p)
+
+
+def test_unknown_section_and_bad_toml(tmp_path):
+    p = tmp_path / "c.toml"
+    p.write_text("[paint]\ncolour = 1\n")
+    with pytest.raises(ConfigError, match=r"section \[paint\] is not known"):
+        load_config(p)
+    p.write_text("[inputs\n")
+    with pytest.raises(ConfigError, match="not valid TOML"):
+        load_config(p)
