@@ -139,9 +139,8 @@ def relative_panel(panel: Panel, how: str = "mean") -> Panel:
     ratios (1 = the period's typical value).
     """
     if how not in RELATIVE_CHOICES:
-        raise ConfigError(
-            f"--relative {how!r} is not a valid option, must be one of {', '.join(RELATIVE_CHOICES)}"
-        )
+        valid = ", ".join(RELATIVE_CHOICES)
+        raise ConfigError(f"--relative {how!r} is not a valid option, must be one of {valid}")
     v = panel.values
     with np.errstate(invalid="ignore", divide="ignore"):
         centre = np.nanmean(v, axis=0) if how == "mean" else np.nanmedian(v, axis=0)
@@ -171,8 +170,14 @@ def relative_panel(panel: Panel, how: str = "mean") -> Panel:
 
 
 def _findings(
-    tr: Transitions, mk: MarkovSummary, hom: HomogeneityTest, uc: UnitChanges, classes: Classes,
-    spatial: SpatialMarkov | None, units: tuple[str, ...], jump: int,
+    tr: Transitions,
+    mk: MarkovSummary,
+    hom: HomogeneityTest,
+    uc: UnitChanges,
+    classes: Classes,
+    spatial: SpatialMarkov | None,
+    units: tuple[str, ...],
+    jump: int,
 ) -> list[Finding]:
     out: list[Finding] = []
     if classes.warning:
@@ -183,8 +188,8 @@ def _findings(
             Finding(
                 "warning",
                 "changes-gap-skipped",
-                f"{len(pairs)} steps span missing periods ({examples(pairs)}) and were not "
-                "counted; pass --bridge-gaps to count them",
+                f"{len(pairs)} step(s) between periods span missing periods "
+                f"({examples(pairs)}) and were not counted; pass --bridge-gaps to count them",
             )
         )
     if any(tr.gap_steps):
@@ -319,9 +324,7 @@ def analyse_changes(
     findings = _findings(tr, mk, hom, uc, classes, sm, panel.units, options.jump)
     if weights is not None and sm is not None:
         findings.extend(weights.findings)
-    log.info(
-        "changes: %d steps, %d unit pairs, %d jumps", len(tr.steps), tr.n_pairs, len(uc.jumps)
-    )
+    log.info("changes: %d steps, %d unit pairs, %d jumps", len(tr.steps), tr.n_pairs, len(uc.jumps))
     return ChangeResult(
         transitions=tr,
         markov=mk,

@@ -91,7 +91,7 @@ def stationary_distribution(P: np.ndarray) -> tuple[np.ndarray | None, list[np.n
     """
     P = np.asarray(P, dtype=np.float64)
     _, members, closed = _communicating(P)
-    per_closed = [_stationary_closed(P, m) for m, c in zip(members, closed) if c]
+    per_closed = [_stationary_closed(P, m) for m, c in zip(members, closed, strict=True) if c]
     return (per_closed[0] if len(per_closed) == 1 else None), per_closed
 
 
@@ -240,7 +240,7 @@ def markov_summary(counts: np.ndarray, labels: Sequence[str] | None = None) -> M
         P_full[np.ix_(keep, keep)] = P
         _, members, closed = _communicating(P)
         comm = [tuple(int(keep[i]) for i in m) for m in members]
-        closed_cls = [c for c, cl in zip(comm, closed) if cl]
+        closed_cls = [c for c, cl in zip(comm, closed, strict=True) if cl]
         pi_sub, per_sub = stationary_distribution(P)
         if pi_sub is not None:
             stationary = np.full(k, np.nan)
@@ -252,7 +252,7 @@ def markov_summary(counts: np.ndarray, labels: Sequence[str] | None = None) -> M
         fpt[np.ix_(keep, keep)] = first_passage_times(P)
         ergodic = len(members) == 1
         if len(members) > 1:
-            transient = [c for c, cl in zip(comm, closed) if not cl]
+            transient = [c for c, cl in zip(comm, closed, strict=True) if not cl]
             notes.append(
                 f"the chain is reducible ({len(members)} communicating groups of classes); "
                 "some first passage times are infinite (null)"
@@ -366,7 +366,14 @@ def homogeneity_test(
         )
     if df == 0:
         return HomogeneityTest(
-            what, n_r, None, None, 0, None, None, tuple(per_row),
+            what,
+            n_r,
+            None,
+            None,
+            0,
+            None,
+            None,
+            tuple(per_row),
             note="nothing to compare: every from-class has a single regime or a single outcome",
         )
     return HomogeneityTest(

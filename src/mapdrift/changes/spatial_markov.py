@@ -93,7 +93,10 @@ class SpatialMarkov:
         return {
             "method": "spatially conditioned transitions (Rey 2001)",
             "weights": self.weights,
-            "context": "class of the spatial lag at the start of each step (same breaks as the map)",
+            "context": (
+                "class of the spatial lag at the start of each step (same breaks as the map "
+                "unless other lag breaks were given)"
+            ),
             "pairs_without_lag": self.n_no_lag,
             "pairs_with_no_data": self.n_missing,
             "test": self.test.to_dict(),

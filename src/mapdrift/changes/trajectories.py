@@ -175,14 +175,14 @@ def unit_changes(
     p_bottom = (tail == 0).all(axis=1)
 
     flag = flag_codes(unit_spike, up, down, p_top, p_bottom, (codes >= 0).any(axis=1))
-    texts = []
-    for parts in zip(
-        np.where(up | down, "jump", ""),
-        np.where(unit_spike, "spike", ""),
-        np.where(p_top, "persistent-top", ""),
-        np.where(p_bottom, "persistent-bottom", ""),
-    ):
-        texts.append(";".join(p for p in parts if p))
+    texts = _flag_texts(
+        [
+            (up | down, "jump"),
+            (unit_spike, "spike"),
+            (p_top, "persistent-top"),
+            (p_bottom, "persistent-bottom"),
+        ]
+    )
     table = pd.DataFrame(
         {
             "unit": np.array(units, dtype=object),
@@ -202,6 +202,15 @@ def unit_changes(
         }
     )
     return UnitChanges(table=table, jumps=jumps, net_change=net, flag=flag)
+
+
+def _flag_texts(flags: list[tuple[np.ndarray, str]]) -> np.ndarray:
+    """``'jump;spike'`` per unit from boolean masks (empty text for no flag)."""
+    out = np.full(len(flags[0][0]), "", dtype=object)
+    for mask, name in flags:
+        sep = np.where(out[mask] == "", "", ";")
+        out[mask] = out[mask] + sep + name
+    return out
 
 
 def flag_codes(
