@@ -97,7 +97,9 @@ def moran_global(
     return MoranGlobal(n, I, EI, var_n, var_r, float(z_n), float(z_r), p_r, p_perm, permutations)
 
 
-def _permuted(W: sp.csr_matrix, Z: np.ndarray, permutations: int, rng: np.random.Generator) -> np.ndarray:
+def _permuted(
+    W: sp.csr_matrix, Z: np.ndarray, permutations: int, rng: np.random.Generator
+) -> np.ndarray:
     """``z_p' W z_p`` for each column of ``Z`` [n, T] and each permutation -> [T, permutations].
 
     The same permutations are applied to every column (drawn once, in chunks).
@@ -144,7 +146,9 @@ def moran_global_panel(
                 p = np.nan
                 if np.isfinite(s.I) and S0 > 0:
                     p = float(permutation_p(np.array(s.I), sims[j] * (len(Y) / S0) / zz[j]))
-                stats_[j] = MoranGlobal(**{**s.__dict__, "p_permutation": p, "permutations": permutations})
+                stats_[j] = MoranGlobal(
+                    **{**s.__dict__, "p_permutation": p, "permutations": permutations}
+                )
         for j, c in enumerate(cols):
             results[c] = stats_[j]
     return [r for r in results if r is not None]

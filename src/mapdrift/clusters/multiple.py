@@ -23,9 +23,8 @@ CORRECTIONS: tuple[str, ...] = ("fdr", "bonferroni", "none")
 
 def _check(method: str) -> str:
     if method not in CORRECTIONS:
-        raise ConfigError(
-            f"--correction {method!r} is not a valid option, must be one of {', '.join(CORRECTIONS)}"
-        )
+        valid = ", ".join(CORRECTIONS)
+        raise ConfigError(f"--correction {method!r} is not a valid option, must be one of {valid}")
     return method
 
 

@@ -1,0 +1,289 @@
+"""The cluster step: options, result and :func:`analyse_clusters` (panel in, tables out)."""
+
+from __future__ import annotations
+
+import logging
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from mapdrift.clusters import labels as lab
+from mapdrift.clusters.local import LocalResult, gi_star_panel, local_moran_panel
+from mapdrift.clusters.moran import MoranGlobal, moran_global_panel
+from mapdrift.clusters.multiple import CORRECTIONS, adjust, describe
+from mapdrift.clusters.trends import TrendResult, period_times, trends
+from mapdrift.errors import ConfigError
+from mapdrift.findings import Finding, examples
+from mapdrift.weights import ISLAND_RULES, SpatialWeights, build_weights, parse_kind
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+    from mapdrift.panel import Panel
+
+__all__ = ["STATISTICS", "ClusterOptions", "ClusterResult", "analyse_clusters"]
+
+log = logging.getLogger(__name__)
+
+STATISTICS: tuple[str, ...] = ("local-moran", "gi-star")
+#: Default permutation seed (fixed, so reruns give identical tables).
+DEFAULT_SEED = 20240917
+
+
+@dataclass(frozen=True)
+class ClusterOptions:
+    """Options of the cluster step (the config section ``[clusters]`` maps onto these keys).
+
+    ``change_from`` / ``change_to`` choose the two periods of the local Moran of change (default
+    first and last). ``smooth`` (``eb`` or ``spatial-eb``) smooths rates from counts before the
+    statistics. ``cache_dir`` keeps the spatial weights between runs.
+    """
+
+    weights: str = "queen"
+    islands: str = "nearest"
+    permutations: int = 999
+    alpha: float = 0.05
+    correction: str = "fdr"
+    seed: int = DEFAULT_SEED
+    statistic: str = "local-moran"
+    persist: int = 3
+    change_from: str | None = None
+    change_to: str | None = None
+    smooth: str | None = None
+    min_periods: int = 4
+    cache_dir: Path | None = None
+
+    def __post_init__(self) -> None:
+        parse_kind(self.weights)
+        if self.islands not in ISLAND_RULES:
+            raise ConfigError(
+                f"--islands {self.islands!r} is not a valid option, must be one of "
+                f"{', '.join(ISLAND_RULES)}"
+            )
+        if self.correction not in CORRECTIONS:
+            raise ConfigError(
+                f"--correction {self.correction!r} is not a valid option, must be one of "
+                f"{', '.join(CORRECTIONS)}"
+            )
+        if self.statistic not in STATISTICS:
+            raise ConfigError(
+                f"--statistic {self.statistic!r} is not a valid option, must be one of "
+                f"{', '.join(STATISTICS)}"
+            )
+        if not 0 < self.alpha < 1:
+            raise ConfigError(f"--alpha must be between 0 and 1 (e.g. 0.05), got {self.alpha}")
+        if self.permutations < 0 or self.permutations > 99_999:
+            raise ConfigError(
+                f"--permutations must be 0 to 99999 (e.g. 999), got {self.permutations}"
+            )
+        if self.statistic == "local-moran" and 0 < self.permutations < 99:
+            raise ConfigError(
+                f"--permutations {self.permutations} is too few for p-values at --alpha "
+                f"{self.alpha}; use 99 or more (999 recommended)"
+            )
+        if self.persist < 1:
+            raise ConfigError(f"--persist must be 1 or more periods, got {self.persist}")
+        if self.smooth not in (None, "eb", "spatial-eb"):
+            raise ConfigError(
+                f"--smooth {self.smooth!r} is not a valid option, must be one of eb, spatial-eb"
+            )
+
+    @property
+    def significance(self) -> str:
+        """The sentence every output carries about alpha and the correction."""
+        return describe(self.alpha, self.correction) + " per period"
+
+
+@dataclass(frozen=True, eq=False)
+class ClusterResult:
+    """Everything the cluster step found: arrays for maps, DataFrames for files, findings.
+
+    ``codes`` are label codes ``[units, periods]`` (index into ``LABELS``; -1 = no data);
+    ``change_codes`` the labels of the local Moran of change; ``trend_codes`` index into
+    ``trend_labels`` for the trend map. DataFrames: ``clusters`` (long: unit, period, statistic,
+    p, adjusted p, label), ``global_moran`` (per period), ``changes`` (flags per unit),
+    ``transitions`` (label x label counts), ``trends`` (per unit), ``unit_columns`` (for
+    ``units.csv``).
+    """
+
+    options: ClusterOptions
+    units: tuple[str, ...]
+    period_labels: tuple[str, ...]
+    weights: SpatialWeights
+    local: LocalResult
+    p_adjusted: np.ndarray
+    codes: np.ndarray
+    global_stats: tuple[MoranGlobal, ...]
+    change_periods: tuple[str, str]
+    change_local: LocalResult
+    change_codes: np.ndarray
+    trend: TrendResult
+    trend_codes: np.ndarray
+    trend_labels: tuple[str, ...]
+    values: np.ndarray
+    findings: tuple[Finding, ...] = ()
+    frames: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def significance(self) -> str:
+        return self.options.significance
+
+    @property
+    def clusters(self) -> pd.DataFrame:
+        return self.frames["clusters"]
+
+    @property
+    def global_moran(self) -> pd.DataFrame:
+        return self.frames["global_moran"]
+
+    @property
+    def changes(self) -> pd.DataFrame:
+        return self.frames["changes"]
+
+    @property
+    def transitions(self) -> pd.DataFrame:
+        return self.frames["transitions"]
+
+    @property
+    def trends(self) -> pd.DataFrame:
+        return self.frames["trends"]
+
+    @property
+    def unit_columns(self) -> pd.DataFrame:
+        return self.frames["unit_columns"]
+
+
+def _local(values: np.ndarray, w: SpatialWeights, opt: ClusterOptions) -> LocalResult:
+    if opt.statistic == "gi-star":
+        return gi_star_panel(values, w)
+    return local_moran_panel(values, w, permutations=opt.permutations, seed=opt.seed)
+
+
+def _label(
+    res: LocalResult, values: np.ndarray, opt: ClusterOptions
+) -> tuple[np.ndarray, np.ndarray]:
+    p_adj = np.column_stack([adjust(res.p[:, t], opt.correction) for t in range(values.shape[1])])
+    with np.errstate(invalid="ignore"):
+        sig = (p_adj <= opt.alpha) & ~np.isnan(p_adj)
+    codes = lab.assign_labels(
+        res.z, res.lag, sig, res.isolated, ~np.isnan(values), statistic=opt.statistic, stat=res.stat
+    )
+    return p_adj, codes
+
+
+def _trend_map(tr: TrendResult, unit_label: str) -> tuple[np.ndarray, tuple[str, ...]]:
+    """Five classes on a diverging palette: two falling, neutral, two rising (significant
+    slopes only; the split is the median absolute significant slope)."""
+    codes = np.full(len(tr.slope), 2, dtype=np.int16)
+    codes[np.array([d == "too few periods" for d in tr.direction])] = -1
+    sig = tr.significant & np.isfinite(tr.slope)
+    mags = np.abs(tr.slope[sig])
+    m = float(np.median(mags)) if len(mags) else 0.0
+    codes[sig & (tr.slope < 0)] = 1
+    codes[sig & (tr.slope < -m)] = 0
+    codes[sig & (tr.slope > 0)] = 3
+    codes[sig & (tr.slope > m)] = 4
+    u = f" {unit_label}" if unit_label else ""
+    labels = (
+        f"falling, steep (slope < -{m:.3g}{u} per period)",
+        "falling",
+        "no significant trend",
+        "rising",
+        f"rising, steep (slope > {m:.3g}{u} per period)",
+    )
+    return codes, labels
+
+
+def analyse_clusters(
+    panel: Panel,
+    classes: Any = None,
+    options: ClusterOptions | None = None,
+    *,
+    weights: SpatialWeights | None = None,
+) -> ClusterResult:
+    """Global and local spatial autocorrelation per period, cluster changes and unit trends.
+
+    ``classes`` is accepted for the pipeline's uniform signature and not used (statistics use
+    the values, not the classes). Missing values are left out per period; ``weights`` may be
+    passed to reuse weights built elsewhere.
+    """
+    from mapdrift.clusters.tables import build_frames
+
+    opt = options or ClusterOptions()
+    findings: list[Finding] = []
+    if weights is None:
+        weights = build_weights(
+            panel.geometry,
+            opt.weights,
+            islands=opt.islands,
+            cache_dir=opt.cache_dir,
+            units=panel.units,
+        )
+    findings += weights.findings
+    values = np.array(panel.values, dtype=np.float64)
+    if opt.smooth:
+        from mapdrift.rates import smooth_panel
+
+        smoothed = smooth_panel(panel, opt.smooth, weights=weights)
+        values = np.array(smoothed.values)
+        findings.append(smoothed.findings[-1])
+    labels_p = panel.period_labels
+    n_t = len(labels_p)
+
+    local = _local(values, weights, opt)
+    p_adj, codes = _label(local, values, opt)
+    glob = tuple(moran_global_panel(values, weights, permutations=opt.permutations, seed=opt.seed))
+
+    # local Moran of change between two periods
+    a = panel.period_index(opt.change_from) if opt.change_from is not None else 0
+    b = panel.period_index(opt.change_to) if opt.change_to is not None else n_t - 1
+    if n_t < 2 or a == b:
+        raise ConfigError(
+            f"the change between periods needs two different periods; got --from "
+            f"{labels_p[a]} --to {labels_p[b]} (periods: {examples(labels_p, 6)})"
+        )
+    delta = (values[:, b] - values[:, a])[:, None]
+    ch_local = _local(delta, weights, opt)
+    _, ch_codes = _label(ch_local, delta, opt)
+
+    tr = trends(
+        values,
+        period_times(panel.periods),
+        alpha=opt.alpha,
+        correction=opt.correction,
+        min_periods=opt.min_periods,
+    )
+    t_codes, t_labels = _trend_map(tr, "")
+
+    n_hh = (codes == lab.HH).sum(axis=0)
+    findings.append(
+        Finding(
+            "note",
+            "clusters-summary",
+            f"{opt.statistic} with {weights.kind} weights, {opt.permutations} permutations, "
+            f"seed {opt.seed}, {opt.significance}: high-high units per period "
+            f"{', '.join(f'{p} {int(c)}' for p, c in zip(labels_p, n_hh, strict=True))}",
+        )
+    )
+    result = ClusterResult(
+        options=opt,
+        units=panel.units,
+        period_labels=labels_p,
+        weights=weights,
+        local=local,
+        p_adjusted=p_adj,
+        codes=codes,
+        global_stats=glob,
+        change_periods=(labels_p[a], labels_p[b]),
+        change_local=ch_local,
+        change_codes=ch_codes[:, 0],
+        trend=tr,
+        trend_codes=t_codes,
+        trend_labels=t_labels,
+        values=values,
+        findings=tuple(findings),
+    )
+    result.frames.update(build_frames(result, panel))
+    return result
