@@ -33,7 +33,15 @@ def _close_figures():
         sys.modules["matplotlib.pyplot"].close("all")
 
 
-def grid_layer(n_side: int = 4, *, size: float = 1000.0, crs: str | None = "EPSG:3857", ids=None, x0=0.0, y0=0.0):
+def grid_layer(
+    n_side: int = 4,
+    *,
+    size: float = 1000.0,
+    crs: str | None = "EPSG:3857",
+    ids=None,
+    x0=0.0,
+    y0=0.0,
+):
     """An n x n grid of square polygons (metres unless ``crs`` is geographic)."""
     import geopandas as gpd
     from shapely.geometry import box
@@ -41,7 +49,9 @@ def grid_layer(n_side: int = 4, *, size: float = 1000.0, crs: str | None = "EPSG
     geoms, names = [], []
     for r in range(n_side):
         for c in range(n_side):
-            geoms.append(box(x0 + c * size, y0 + r * size, x0 + (c + 1) * size, y0 + (r + 1) * size))
+            geoms.append(
+                box(x0 + c * size, y0 + r * size, x0 + (c + 1) * size, y0 + (r + 1) * size)
+            )
             names.append(f"cell {r}-{c}")
     ids = ids if ids is not None else [f"{i + 1:05d}" for i in range(n_side * n_side)]
     return gpd.GeoDataFrame({"unit_id": ids, "name": names}, geometry=geoms, crs=crs)
@@ -79,4 +89,6 @@ def table_file(tmp_path):
 
 
 def long_rows(ids, years, value=lambda i, y: float(i + (y - 2000))):
-    return [{"unit_id": u, "year": y, "rate": value(i, y)} for i, u in enumerate(ids) for y in years]
+    return [
+        {"unit_id": u, "year": y, "rate": value(i, y)} for i, u in enumerate(ids) for y in years
+    ]

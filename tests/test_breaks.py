@@ -108,7 +108,9 @@ def test_equal_interval_matches_mapclassify():
     import mapclassify
 
     x = np.random.default_rng(4).uniform(0, 37, 80)
-    np.testing.assert_allclose(fit_breaks(x, "equal-interval", 4).edges, mapclassify.EqualInterval(x, k=4).bins)
+    np.testing.assert_allclose(
+        fit_breaks(x, "equal-interval", 4).edges, mapclassify.EqualInterval(x, k=4).bins
+    )
 
 
 def test_std_dev_centred_on_mean_and_diverging():
@@ -158,7 +160,9 @@ def _panel(values, periods=(2019, 2020, 2021)):
     from shapely.geometry import box
 
     n = len(values)
-    return Panel.from_arrays(np.asarray(values, float), [box(i, 0, i + 1, 1) for i in range(n)], periods=periods)
+    return Panel.from_arrays(
+        np.asarray(values, float), [box(i, 0, i + 1, 1) for i in range(n)], periods=periods
+    )
 
 
 def test_bases_pooled_per_period_reference_and_file(tmp_path):

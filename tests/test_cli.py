@@ -7,7 +7,6 @@ import subprocess
 import sys
 
 from conftest import DEMO, long_rows
-
 from mapdrift.cli import app
 
 YEARS = [2018, 2019, 2020]
@@ -24,7 +23,9 @@ def test_cli_import_is_light():
     # `mapdrift --help` must not import the heavy libraries (typer's own import-cost test does
     # the same for rich).
     code = "import sys, mapdrift.cli; print([m for m in ('matplotlib', 'geopandas', 'esda', 'libpysal', 'pandas') if m in sys.modules])"
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    out = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, check=True
+    ).stdout
     assert out.strip() == "[]"
 
 
@@ -53,14 +54,18 @@ def test_flags_override_config(runner):
 def test_bad_inputs_exit_1_with_one_line(runner, layer_file, table_file):
     layer = layer_file(n_side=2)
     t = table_file(long_rows(["A", "B", "C", "D"], YEARS))
-    r = runner.invoke(app, ["check", str(layer), str(t), "--id", "unit_id", "--period", "year", "--value", "rate"])
+    r = runner.invoke(
+        app, ["check", str(layer), str(t), "--id", "unit_id", "--period", "year", "--value", "rate"]
+    )
     assert r.exit_code == 1
     assert "only 0 of 4 layer units match" in r.output
     assert "Traceback" not in r.output
     r = runner.invoke(app, ["check", str(layer.with_name("missing.gpkg"))])
     assert r.exit_code == 1 and "geometry file not found" in r.output
     t2 = table_file(long_rows([f"{i + 1:05d}" for i in range(4)], YEARS), "ok.csv")
-    r = runner.invoke(app, ["check", str(layer), str(t2), "--id", "unit_id", "--period", "yr", "--value", "rate"])
+    r = runner.invoke(
+        app, ["check", str(layer), str(t2), "--id", "unit_id", "--period", "yr", "--value", "rate"]
+    )
     assert r.exit_code == 1 and "no column 'yr' (--period)" in r.output
 
 

@@ -19,14 +19,18 @@ def test_demo_config_parses():
 def test_unknown_key_names_line(tmp_path):
     p = tmp_path / "c.toml"
     p.write_text('[inputs]\ngeometry = "a.gpkg"\n\n[classes]\nk = 5\nshceme = "quantile"\n')
-    with pytest.raises(ConfigError, match=r"c.toml:6: key 'shceme' in \[classes\] is not a known key"):
+    with pytest.raises(
+        ConfigError, match=r"c.toml:6: key 'shceme' in \[classes\] is not a known key"
+    ):
         load_config(p)
 
 
 def test_wrong_type(tmp_path):
     p = tmp_path / "c.toml"
     p.write_text('[classes]\nk = "five"\n')
-    with pytest.raises(ConfigError, match=r"c.toml:2: key 'k' in \[classes\] should be a whole number"):
+    with pytest.raises(
+        ConfigError, match=r"c.toml:2: key 'k' in \[classes\] should be a whole number"
+    ):
         load_config(p)
 
 

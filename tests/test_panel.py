@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import grid_layer, long_rows
 
+from conftest import grid_layer, long_rows
 from mapdrift.errors import ConfigError, InputError
 from mapdrift.panel import InputSpec, load_panel
 
@@ -86,7 +86,7 @@ def test_duplicates(layer_file, table_file):
 
 def test_suppression_markers_and_sentinels(layer_file, table_file):
     layer = layer_file(n_side=2)
-    csv = "unit_id,year,rate\n00001,2018,(D)\n00001,2019,*\n00002,2018,n/a\n00002,2019,-\n00003,2018,-999\n00003,2019,1\n00004,2018,\n00004,2019,\"1,234.5\"\n"
+    csv = 'unit_id,year,rate\n00001,2018,(D)\n00001,2019,*\n00002,2018,n/a\n00002,2019,-\n00003,2018,-999\n00003,2019,1\n00004,2018,\n00004,2019,"1,234.5"\n'
     p = load_panel(spec(layer, table_file(csv), missing=(-999,)))
     msg = find(p, "values-not-numeric").message
     for marker in ("'(D)' x1", "'*' x1", "'n/a' x1", "'-' x1", "'(blank)' x1"):
@@ -111,7 +111,11 @@ def test_zero_block_flagged(layer_file, table_file):
     ids = [f"{i + 1:05d}" for i in range(25)]
     years = list(range(2010, 2020))
     rng = np.random.default_rng(0)
-    rows = [{"unit_id": u, "year": y, "rate": round(float(rng.uniform(8, 14)), 2)} for u in ids for y in years]
+    rows = [
+        {"unit_id": u, "year": y, "rate": round(float(rng.uniform(8, 14)), 2)}
+        for u in ids
+        for y in years
+    ]
     for r in rows:
         if r["year"] == 2015 and r["unit_id"] in ids[:6]:
             r["rate"] = 0
@@ -125,13 +129,17 @@ def test_gaps_months_quarters_and_dates(layer_file, table_file):
     ids = [f"{i + 1:05d}" for i in range(4)]
     p = load_panel(spec(layer, table_file(long_rows(ids, [2015, 2016, 2019]))))
     assert "2017" in find(p, "periods-gap").message
-    rows = [{"unit_id": u, "year": q, "rate": 1.0} for u in ids for q in ["2020Q2", "2020Q1", "2019Q4"]]
+    rows = [
+        {"unit_id": u, "year": q, "rate": 1.0} for u in ids for q in ["2020Q2", "2020Q1", "2019Q4"]
+    ]
     p = load_panel(spec(layer, table_file(rows, "q.csv")))
     assert p.period_labels == ("2019Q4", "2020Q1", "2020Q2")
     rows = [{"unit_id": u, "year": m, "rate": 1.0} for u in ids for m in ["2020-03", "2020-01"]]
     p = load_panel(spec(layer, table_file(rows, "m.csv")))
     assert p.period_labels == ("2020-01", "2020-03") and "periods-gap" in codes(p)
-    rows = [{"unit_id": u, "year": d, "rate": 1.0} for u in ids for d in ["2021-01-01", "2020-01-01"]]
+    rows = [
+        {"unit_id": u, "year": d, "rate": 1.0} for u in ids for d in ["2021-01-01", "2020-01-01"]
+    ]
     assert load_panel(spec(layer, table_file(rows, "d.csv"))).periods == (2020, 2021)
     rows = [{"unit_id": u, "year": d, "rate": 1.0} for u in ids for d in ["2021", "spring"]]
     with pytest.raises(InputError, match="periods must be years"):
@@ -141,7 +149,9 @@ def test_gaps_months_quarters_and_dates(layer_file, table_file):
 def test_wide_table_and_auto_detect(layer_file, table_file):
     layer = layer_file(n_side=2)
     ids = [f"{i + 1:05d}" for i in range(4)]
-    wide = pd.DataFrame({"unit_id": ids, "rate_2019": [1, 2, 3, 4], "rate_2020": [5, 6, 7, 8], "note": list("abcd")})
+    wide = pd.DataFrame(
+        {"unit_id": ids, "rate_2019": [1, 2, 3, 4], "rate_2020": [5, 6, 7, 8], "note": list("abcd")}
+    )
     t = table_file(wide.to_dict("records"))
     p = load_panel(InputSpec(geometry=layer, table=t, id="unit_id", columns="rate_*"))
     assert p.periods == (2019, 2020) and p.values[3, 1] == 8
@@ -159,8 +169,21 @@ def test_values_in_layer_columns(layer_file):
 def test_rates_from_counts(layer_file, table_file):
     layer = layer_file(n_side=2)
     ids = [f"{i + 1:05d}" for i in range(4)]
-    rows = [{"unit_id": u, "year": 2020, "n": n, "base": b} for u, n, b in zip(ids, [5, 1, 0, 2], [1000, 10, 0, 400])]
-    p = load_panel(InputSpec(geometry=layer, table=table_file(rows), id="unit_id", period="year", numerator="n", denominator="base", per=1000))
+    rows = [
+        {"unit_id": u, "year": 2020, "n": n, "base": b}
+        for u, n, b in zip(ids, [5, 1, 0, 2], [1000, 10, 0, 400])
+    ]
+    p = load_panel(
+        InputSpec(
+            geometry=layer,
+            table=table_file(rows),
+            id="unit_id",
+            period="year",
+            numerator="n",
+            denominator="base",
+            per=1000,
+        )
+    )
     assert p.values[0, 0] == pytest.approx(5.0) and p.values[3, 0] == pytest.approx(5.0)
     assert np.isnan(p.values[2, 0])
     assert "rates-zero-base" in codes(p) and find(p, "rates-small-base").units == ("00002",)
@@ -178,7 +201,12 @@ def test_crs_assumed_missing_and_swapped(layer_file, table_file):
     metres = grid_layer(2, crs=None, x0=500000.0, y0=4000000.0)
     with pytest.raises(InputError, match="no CRS.*pass --crs"):
         load_panel(spec(layer_file("m.shp", gdf=metres), t))
-    assert load_panel(spec(layer_file("m2.shp", gdf=metres), t, crs="EPSG:26915")).geometry.crs.to_epsg() == 26915
+    assert (
+        load_panel(
+            spec(layer_file("m2.shp", gdf=metres), t, crs="EPSG:26915")
+        ).geometry.crs.to_epsg()
+        == 26915
+    )
     swapped = grid_layer(2, size=0.5, crs="EPSG:4326", x0=50.0, y0=120.0)
     with pytest.raises(InputError, match="swapped"):
         load_panel(spec(layer_file("s.gpkg", gdf=swapped), t))
@@ -205,16 +233,33 @@ def test_invalid_geometry_repaired_and_empty_reported(layer_file, table_file):
 def test_equal_area_reprojection_matches_geodesic_area(layer_file, table_file):
     # A 1 x 1 degree cell at the equator is 12,308.46 km^2 on WGS84 (closed form for the
     # ellipsoidal quadrangle; pyproj.Geod on densified edges agrees); EPSG:3857 would inflate it.
+    import geopandas as gpd
     from pyproj import Geod
     from shapely.geometry import box
 
-    import geopandas as gpd
-
-    gdf = gpd.GeoDataFrame({"unit_id": ["a", "b"]}, geometry=[box(0, 0, 1, 1), box(1, 0, 2, 1)], crs="EPSG:4326")
-    p = load_panel(InputSpec(geometry=layer_file("eq.gpkg", gdf=gdf), table=table_file([{"unit_id": "a", "year": 2020, "rate": 1}, {"unit_id": "b", "year": 2020, "rate": 2}]), id="unit_id", period="year", value="rate"))
+    gdf = gpd.GeoDataFrame(
+        {"unit_id": ["a", "b"]}, geometry=[box(0, 0, 1, 1), box(1, 0, 2, 1)], crs="EPSG:4326"
+    )
+    p = load_panel(
+        InputSpec(
+            geometry=layer_file("eq.gpkg", gdf=gdf),
+            table=table_file(
+                [
+                    {"unit_id": "a", "year": 2020, "rate": 1},
+                    {"unit_id": "b", "year": 2020, "rate": 2},
+                ]
+            ),
+            id="unit_id",
+            period="year",
+            value="rate",
+        )
+    )
     area_km2 = p.geometry.area.iloc[0] / 1e6
     assert area_km2 == pytest.approx(12308.46, rel=0.005)
-    geod_area = abs(Geod(ellps="WGS84").geometry_area_perimeter(gdf.geometry.iloc[0].segmentize(0.01))[0]) / 1e6
+    geod_area = (
+        abs(Geod(ellps="WGS84").geometry_area_perimeter(gdf.geometry.iloc[0].segmentize(0.01))[0])
+        / 1e6
+    )
     assert geod_area == pytest.approx(12308.46, rel=1e-4)
 
 
@@ -224,7 +269,13 @@ def test_natural_earth_areas_match_geodesic():
 
     import pyogrio
 
-    path = pathlib.Path(pyogrio.__file__).parent / "tests" / "fixtures" / "naturalearth_lowres" / "naturalearth_lowres.shp"
+    path = (
+        pathlib.Path(pyogrio.__file__).parent
+        / "tests"
+        / "fixtures"
+        / "naturalearth_lowres"
+        / "naturalearth_lowres.shp"
+    )
     if not path.exists():
         pytest.skip("pyogrio test fixtures not installed")
     import geopandas as gpd

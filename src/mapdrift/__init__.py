@@ -35,7 +35,20 @@ _LAZY = {
     "InputError": "mapdrift.errors",
 }
 
-__all__ = ["__version__", *_LAZY]
+__all__ = [
+    "Breaks",
+    "Classes",
+    "Finding",
+    "InputError",
+    "InputSpec",
+    "MapdriftError",
+    "Panel",
+    "Scheme",
+    "__version__",
+    "classify",
+    "fit_breaks",
+    "load_panel",
+]
 
 if TYPE_CHECKING:
     from mapdrift.breaks import Breaks, Classes, Scheme, classify, fit_breaks

@@ -7,7 +7,6 @@ with the first error's message.
 
 from __future__ import annotations
 
-import fnmatch
 import logging
 import re
 import warnings
@@ -147,7 +146,11 @@ def detect_zero_block(
         others = np.where(zeros | ~np.isfinite(values), np.nan, values)
         with np.errstate(all="ignore"), warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
-            unit_med = np.nanmedian(others, axis=1) if np.isfinite(others).any() else np.full(len(values), np.nan)
+            unit_med = (
+                np.nanmedian(others, axis=1)
+                if np.isfinite(others).any()
+                else np.full(len(values), np.nan)
+            )
             unit_min = np.nanmin(np.where(np.isfinite(others), others, np.inf), axis=1)
         n_other = np.isfinite(others).sum(axis=1)
         if denominator is not None:
@@ -167,7 +170,11 @@ def detect_zero_block(
     per_period = suspect.sum(axis=0)
     top = int(np.argmax(per_period))
     affected = tuple(units[i] for i in np.flatnonzero(suspect.any(axis=1)))
-    where = f"; {int(per_period[top])} of them in {labels[top]}" if per_period[top] >= 0.5 * suspect.sum() else ""
+    where = (
+        f"; {int(per_period[top])} of them in {labels[top]}"
+        if per_period[top] >= 0.5 * suspect.sum()
+        else ""
+    )
     return Finding(
         "warning",
         "values-zero-block",
@@ -224,7 +231,9 @@ def load(spec: InputSpec) -> Panel:
     if spec.table is not None:
         tpath = spec.table
         df = read_table(tpath)
-        t_id = _column(df, spec.table_id or id_col, tpath, "--table-id" if spec.table_id else "--id")
+        t_id = _column(
+            df, spec.table_id or id_col, tpath, "--table-id" if spec.table_id else "--id"
+        )
     else:
         tpath = gpath
         df = gdf.drop(columns=gdf.geometry.name).copy()
@@ -241,10 +250,15 @@ def load(spec: InputSpec) -> Panel:
     flags = {"value": "--columns", "num": "--numerator", "den": "--denominator"}
     if spec.period:
         if not roles and not spec.value:
-            raise ConfigError("a long table needs --value COL (or --numerator and --denominator) with --period")
+            raise ConfigError(
+                "a long table needs --value COL (or --numerator and --denominator) with --period"
+            )
         p_col = _column(df, spec.period, tpath, "--period")
         cols = {"value": spec.value} if spec.value else roles
-        cols = {r: _column(df, c, tpath, flags.get(r, "--value") if r != "value" else "--value") for r, c in cols.items()}
+        cols = {
+            r: _column(df, c, tpath, flags.get(r, "--value") if r != "value" else "--value")
+            for r, c in cols.items()
+        }
         long = df[[t_id, p_col, *cols.values()]].copy()
         long.columns = ["id", "period_text", *cols.keys()]
     else:
@@ -261,26 +275,42 @@ def load(spec: InputSpec) -> Panel:
     no_id = long["id"] == ""
     if no_id.any():
         findings.append(
-            Finding("warning", "ids-blank-rows", f"{tpath.name}: {int(no_id.sum())} rows have no unit ID and were left out")
+            Finding(
+                "warning",
+                "ids-blank-rows",
+                f"{tpath.name}: {int(no_id.sum())} rows have no unit ID and were left out",
+            )
         )
         long = long[~no_id]
     no_period = long["period_text"] == ""
     if no_period.any():
         findings.append(
-            Finding("warning", "periods-blank-rows", f"{tpath.name}: {int(no_period.sum())} rows have no period and were left out")
+            Finding(
+                "warning",
+                "periods-blank-rows",
+                f"{tpath.name}: {int(no_period.sum())} rows have no period and were left out",
+            )
         )
         long = long[~no_period]
     if spec.table is not None:
-        padded, pad_findings = pad_ids(long["id"].tolist(), layer_ids, width=spec.id_width, where=tpath.name)
+        padded, pad_findings = pad_ids(
+            long["id"].tolist(), layer_ids, width=spec.id_width, where=tpath.name
+        )
         long["id"] = padded
         findings += pad_findings
 
     # -- numbers --------------------------------------------------------------------------
     ids_arr = long["id"].to_numpy()
     num_cols = [c for c in ("value", "num", "den") if c in long.columns]
-    label = {"value": spec.value or spec.columns or "value", "num": spec.numerator, "den": spec.denominator}
+    label = {
+        "value": spec.value or spec.columns or "value",
+        "num": spec.numerator,
+        "den": spec.denominator,
+    }
     for c in num_cols:
-        nums, f = to_numbers(long[c], where=tpath.name, column=str(label[c]), missing_codes=spec.missing, ids=ids_arr)
+        nums, f = to_numbers(
+            long[c], where=tpath.name, column=str(label[c]), missing_codes=spec.missing, ids=ids_arr
+        )
         long[c] = nums
         findings += f
 
@@ -310,9 +340,13 @@ def load(spec: InputSpec) -> Panel:
                 "fix the table or pass --duplicates first|mean|sum"
             )
         if spec.duplicates not in ("first", "mean", "sum"):
-            raise ConfigError(f"--duplicates {spec.duplicates!r} must be one of error, first, mean, sum")
+            raise ConfigError(
+                f"--duplicates {spec.duplicates!r} must be one of error, first, mean, sum"
+            )
         agg = {c: spec.duplicates for c in num_cols}
-        long = long.groupby(["id", "period"], as_index=False, sort=False).agg(agg | {"period_text": "first"})
+        long = long.groupby(["id", "period"], as_index=False, sort=False).agg(
+            agg | {"period_text": "first"}
+        )
         findings.append(
             Finding(
                 "warning",
@@ -323,6 +357,22 @@ def load(spec: InputSpec) -> Panel:
             )
         )
 
+    # -- boundary vintage -----------------------------------------------------------------
+    if spec.crosswalk is not None:
+        from mapdrift.crosswalk import apply_crosswalk, read_crosswalk
+
+        xw = read_crosswalk(spec.crosswalk)
+        xw["from"], f_from = pad_ids(
+            xw["from"].tolist(), long["id"].tolist(), width=None, where=spec.crosswalk.name
+        )
+        xw["to"], f_to = pad_ids(
+            xw["to"].tolist(), layer_ids, width=spec.id_width, where=spec.crosswalk.name
+        )
+        long, xf = apply_crosswalk(
+            long, xw, num_cols, counts=bool(roles), where=spec.crosswalk.name
+        )
+        findings += f_from + f_to + xf
+
     # -- match IDs ------------------------------------------------------------------------
     layer_set = set(layer_ids)
     table_ids = list(dict.fromkeys(long["id"]))
@@ -330,7 +380,11 @@ def load(spec: InputSpec) -> Panel:
     matched = [u for u in layer_ids if u in set(table_ids)]
     if spec.table is not None and len(matched) < 0.5 * len(layer_ids):
         hints = closest(table_only, layer_ids)
-        hint = "; closest layer IDs: " + ", ".join(f"{a} ~ {b}" for a, b in hints.items()) if hints else ""
+        hint = (
+            "; closest layer IDs: " + ", ".join(f"{a} ~ {b}" for a, b in hints.items())
+            if hints
+            else ""
+        )
         raise InputError(
             f"{tpath}: only {len(matched)} of {len(layer_ids)} layer units match a table ID (column "
             f"{t_id!r}: e.g. {examples(table_ids[:5])}; layer {id_col!r}: e.g. {examples(layer_ids[:5])})"
@@ -338,7 +392,9 @@ def load(spec: InputSpec) -> Panel:
         )
     if table_only:
         hints = closest(table_only, [u for u in layer_ids if u not in set(table_ids)] or layer_ids)
-        hint = " (closest: " + ", ".join(f"{a} ~ {b}" for a, b in hints.items()) + ")" if hints else ""
+        hint = (
+            " (closest: " + ", ".join(f"{a} ~ {b}" for a, b in hints.items()) + ")" if hints else ""
+        )
         rows = int(long["id"].isin(table_only).sum())
         findings.append(
             Finding(
@@ -415,16 +471,20 @@ def load(spec: InputSpec) -> Panel:
     all_missing = [labels[j] for j in np.flatnonzero(~present.any(axis=0))]
     if all_missing:
         findings.append(
-            Finding("warning", "periods-empty", f"periods with no value at all: {examples(all_missing)}")
+            Finding(
+                "warning", "periods-empty", f"periods with no value at all: {examples(all_missing)}"
+            )
         )
 
     raise_errors(findings, InputError)
     variable = spec.variable or (
-        f"{spec.numerator} per {spec.per:g} {spec.denominator}" if roles else (spec.value or spec.columns or "value")
+        f"{spec.numerator} per {spec.per:g} {spec.denominator}"
+        if roles
+        else (spec.value or spec.columns or "value")
     )
     unit_label = spec.unit_label or (f"per {spec.per:,g} {spec.denominator}" if roles else "")
     geometry = gdf.geometry.reset_index(drop=True)
-    inputs = tuple(p for p in (gpath, spec.table) if p is not None)
+    inputs = tuple(p for p in (gpath, spec.table, spec.crosswalk) if p is not None)
     log.info("loaded %d units x %d periods from %s", len(layer_ids), len(periods), examples(inputs))
     return Panel(
         units=tuple(layer_ids),
@@ -462,7 +522,11 @@ def _rates(
         rate[zero] = np.nan
     if (den < 0).any():
         findings.append(
-            Finding("warning", "rates-negative-base", f"{int((den < 0).sum())} values of {spec.denominator!r} are negative")
+            Finding(
+                "warning",
+                "rates-negative-base",
+                f"{int((den < 0).sum())} values of {spec.denominator!r} are negative",
+            )
         )
     small = (den > 0) & (den < spec.min_base)
     if small.any():

@@ -24,7 +24,9 @@ def atomic_path(target: Path | str, suffix: str | None = None) -> Iterator[Path]
     target = Path(target)
     target.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(
-        prefix=f".{target.stem}.", suffix=suffix if suffix is not None else target.suffix, dir=target.parent
+        prefix=f".{target.stem}.",
+        suffix=suffix if suffix is not None else target.suffix,
+        dir=target.parent,
     )
     os.close(fd)
     tmp_path = Path(tmp)

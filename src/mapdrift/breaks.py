@@ -66,7 +66,9 @@ class Scheme(str, Enum):
             return cls(name)
         except ValueError:
             valid = ", ".join(s.value for s in cls)
-            raise ConfigError(f"scheme {name!r} is not a valid option, must be one of {valid}") from None
+            raise ConfigError(
+                f"scheme {name!r} is not a valid option, must be one of {valid}"
+            ) from None
 
     @property
     def diverging(self) -> bool:
@@ -182,7 +184,9 @@ class Breaks:
                 notes=tuple(d.get("notes", ())),
             )
         except (KeyError, TypeError, ValueError) as exc:
-            raise InputError(f"{source}: malformed breaks ({exc}); re-create it with `mapdrift breaks --save`") from None
+            raise InputError(
+                f"{source}: malformed breaks ({exc}); re-create it with `mapdrift breaks --save`"
+            ) from None
 
     def save(self, path: Path | str) -> Path:
         """Write our JSON breaks format atomically."""
@@ -196,7 +200,9 @@ class Breaks:
         try:
             data = json.loads(path.read_text(encoding="utf-8"))
         except FileNotFoundError:
-            raise InputError(f"{path}: breaks file not found; check the path or drop --breaks-file") from None
+            raise InputError(
+                f"{path}: breaks file not found; check the path or drop --breaks-file"
+            ) from None
         except json.JSONDecodeError as exc:
             raise InputError(f"{path}: not valid JSON ({exc.msg} at line {exc.lineno})") from None
         if isinstance(data, dict) and "breaks" in data and "format" not in data:
@@ -217,7 +223,9 @@ def _decimals(edges: Sequence[float]) -> int:
     tol = 0.01 * min(gaps) if gaps else 0.0
     for d in range(1, 5):
         rounded = [round(e, d) for e in finite]
-        if len(set(rounded)) == len(rounded) and all(abs(r - e) <= tol + 1e-12 for r, e in zip(rounded, finite)):
+        if len(set(rounded)) == len(rounded) and all(
+            abs(r - e) <= tol + 1e-12 for r, e in zip(rounded, finite)
+        ):
             return d
     for d in range(1, 9):
         if len({round(e, d) for e in finite}) == len(finite):
@@ -446,7 +454,9 @@ def fit_breaks(
             "equal values always share a class"
         )
     if scheme is Scheme.HEAD_TAIL and len(edges) < requested:
-        notes.append(f"head/tail breaks found {len(edges)} classes (the tail ended), not {requested}")
+        notes.append(
+            f"head/tail breaks found {len(edges)} classes (the tail ended), not {requested}"
+        )
     return Breaks(
         edges=tuple(edges),
         scheme=scheme.value,
@@ -563,7 +573,11 @@ def classify(
     else:
         kind, ref = _parse_basis(basis)
         kw: dict[str, Any] = dict(
-            scheme=scheme, k=k, manual_values=manual_values, isolate_zeros=isolate_zeros, variable=variable
+            scheme=scheme,
+            k=k,
+            manual_values=manual_values,
+            isolate_zeros=isolate_zeros,
+            variable=variable,
         )
         if kind == "pooled":
             all_b = (fit_breaks(vals, basis="pooled", **kw),)
@@ -610,7 +624,11 @@ def classify(
         )
     if max(b.k for b in all_b) > 7:
         findings.append(
-            Finding("warning", "breaks-many-classes", "more than 7 classes are hard to tell apart on a map")
+            Finding(
+                "warning",
+                "breaks-many-classes",
+                "more than 7 classes are hard to tell apart on a map",
+            )
         )
     return Classes(codes=codes, breaks=all_b, findings=tuple(findings))
 

@@ -36,7 +36,14 @@ def read_table(path: Path) -> pd.DataFrame:
     suffix = path.suffix.lower()
     try:
         if suffix in (".csv", ".txt"):
-            df = pd.read_csv(path, dtype=str, keep_default_na=False, sep=None, engine="python", encoding="utf-8-sig")
+            df = pd.read_csv(
+                path,
+                dtype=str,
+                keep_default_na=False,
+                sep=None,
+                engine="python",
+                encoding="utf-8-sig",
+            )
         elif suffix == ".tsv":
             df = pd.read_csv(path, dtype=str, keep_default_na=False, sep="\t", encoding="utf-8-sig")
         elif suffix == ".parquet":

@@ -27,7 +27,16 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover
     import tomli as tomllib
 
-__all__ = ["ClassSpec", "Config", "SECTIONS", "load_config", "merge", "section_from_dict"]
+__all__ = [
+    "BriefSpec",
+    "ClassSpec",
+    "Config",
+    "RunSpec",
+    "SECTIONS",
+    "load_config",
+    "merge",
+    "section_from_dict",
+]
 
 
 @dataclass(frozen=True)
@@ -42,10 +51,41 @@ class ClassSpec:
     breaks_file: Path | None = None
 
 
+@dataclass(frozen=True)
+class RunSpec:
+    """Keys at the top of a run config (outside any section).
+
+    ``previous`` points at last year's run folder (or its ``breaks.json``): its breaks are reused
+    so the new frames compare with last year's briefing, and the report says what is new.
+    ``rebreak`` refits the breaks deliberately (and every output says so).
+    """
+
+    previous: Path | None = None
+    out: Path | None = None
+    rebreak: bool = False
+    crosswalk: Path | None = None
+
+
+@dataclass(frozen=True)
+class BriefSpec:
+    """The briefing's words and which outputs to make."""
+
+    title: str | None = None
+    subtitle: str | None = None
+    author: str = ""
+    organisation: str = ""
+    source: str | None = None
+    date: str | None = None
+    formats: tuple[str, ...] = ("gif", "mp4", "png", "pptx", "html", "gpkg")
+
+
 #: Section name -> "module:Class" of its dataclass (imported when a file uses the section).
+#: The root section "run" holds the keys written at the top of the file, outside any [section].
 SECTIONS: dict[str, str] = {
+    "run": "mapdrift.config:RunSpec",
     "inputs": "mapdrift.panel:InputSpec",
     "classes": "mapdrift.config:ClassSpec",
+    "brief": "mapdrift.config:BriefSpec",
 }
 
 
@@ -77,7 +117,9 @@ def _where(path: Path | None, text: str, section: str | None, key: str) -> str:
     if path is None:
         return f"key {key!r}"
     line = _line_of(text, section, key)
-    return f"{path}{f':{line}' if line else ''}: key {key!r}" + (f" in [{section}]" if section else "")
+    return f"{path}{f':{line}' if line else ''}: key {key!r}" + (
+        f" in [{section}]" if section else ""
+    )
 
 
 def _type_name(tp: Any) -> str:
@@ -155,7 +197,9 @@ def section_from_dict(
     for key, value in raw.items():
         if key not in names:
             valid = ", ".join(sorted(names))
-            raise ConfigError(f"{_where(path, text, section, key)} is not a known key; valid keys: {valid}")
+            raise ConfigError(
+                f"{_where(path, text, section, key)} is not a known key; valid keys: {valid}"
+            )
         try:
             out[key] = _coerce(value, hints[key], base)
         except TypeError as exc:
@@ -171,26 +215,37 @@ def load_config(path: Path | str) -> Config:
     try:
         text = path.read_text(encoding="utf-8")
     except FileNotFoundError:
-        raise ConfigError(f"{path}: config file not found; check the path given to --config") from None
+        raise ConfigError(
+            f"{path}: config file not found; check the path given to --config"
+        ) from None
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ConfigError(f"{path}: not valid TOML ({exc})") from None
     sections: dict[str, dict[str, Any]] = {}
+    root = {k: v for k, v in data.items() if not isinstance(v, dict)}
+    if root:
+        sections["run"] = _root_section(root, path, text)
     for name, raw in data.items():
-        if name not in SECTIONS:
-            if not isinstance(raw, dict):
-                raise ConfigError(
-                    f"{_where(path, text, None, name)} is not a known key; keys belong in a section "
-                    f"such as [{', '.join(SECTIONS)}]"
-                )
-            raise ConfigError(
-                f"{path}: section [{name}] is not known; valid sections: {', '.join(SECTIONS)}"
-            )
         if not isinstance(raw, dict):
-            raise ConfigError(f"{_where(path, text, None, name)} must be a section [{name}]")
+            continue
+        if name not in SECTIONS or name == "run":
+            valid = ", ".join(s for s in SECTIONS if s != "run")
+            raise ConfigError(f"{path}: section [{name}] is not known; valid sections: {valid}")
         sections[name] = section_from_dict(name, raw, path=path, text=text)
     return Config(path=path, sections=sections)
+
+
+def _root_section(root: Mapping[str, Any], path: Path, text: str) -> dict[str, Any]:
+    names = {f.name for f in dataclasses.fields(_dataclass_for("run"))}
+    for key in root:
+        if key not in names:
+            raise ConfigError(
+                f"{_where(path, text, None, key)} is not a known top-level key (top-level keys: "
+                f"{', '.join(sorted(names))}); other keys belong in a section such as "
+                f"[{', '.join(s for s in SECTIONS if s != 'run')}]"
+            )
+    return section_from_dict("run", root, path=path, text=text)
 
 
 def merge(cls: type, config_values: Mapping[str, Any], overrides: Mapping[str, Any]) -> Any:

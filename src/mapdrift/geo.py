@@ -22,7 +22,16 @@ if TYPE_CHECKING:
 
 __all__ = ["GEOMETRY_SUFFIXES", "equal_area_crs", "prepare_geometry", "read_layer"]
 
-GEOMETRY_SUFFIXES = (".gpkg", ".geojson", ".json", ".shp", ".fgb", ".parquet", ".geoparquet", ".zip")
+GEOMETRY_SUFFIXES = (
+    ".gpkg",
+    ".geojson",
+    ".json",
+    ".shp",
+    ".fgb",
+    ".parquet",
+    ".geoparquet",
+    ".zip",
+)
 
 
 def read_layer(path: Path, layer: str | None) -> gpd.GeoDataFrame:
@@ -71,7 +80,7 @@ def read_layer(path: Path, layer: str | None) -> gpd.GeoDataFrame:
 
 def _fits_lonlat(bounds: np.ndarray) -> bool:
     minx, miny, maxx, maxy = bounds
-    return -180.0 <= minx and maxx <= 360.0 and -90.0 <= miny and maxy <= 90.0
+    return minx >= -180.0 and maxx <= 360.0 and miny >= -90.0 and maxy <= 90.0
 
 
 def equal_area_crs(gdf_lonlat: gpd.GeoDataFrame) -> str:
@@ -81,7 +90,9 @@ def equal_area_crs(gdf_lonlat: gpd.GeoDataFrame) -> str:
     return f"+proj=laea +lat_0={lat0:.6f} +lon_0={lon0:.6f} +x_0=0 +y_0=0 +datum=WGS84 +units=m +no_defs"
 
 
-def _repair(gdf: gpd.GeoDataFrame, ids: list[str], path: Path) -> tuple[gpd.GeoDataFrame, list[Finding]]:
+def _repair(
+    gdf: gpd.GeoDataFrame, ids: list[str], path: Path
+) -> tuple[gpd.GeoDataFrame, list[Finding]]:
     import shapely
 
     findings: list[Finding] = []
@@ -161,7 +172,9 @@ def prepare_geometry(
         try:
             user = CRS.from_user_input(crs)
         except CRSError:
-            raise InputError(f"--crs {crs!r} is not a CRS we know; use e.g. EPSG:4326 or EPSG:26915") from None
+            raise InputError(
+                f"--crs {crs!r} is not a CRS we know; use e.g. EPSG:4326 or EPSG:26915"
+            ) from None
         if gdf.crs is not None and CRS(gdf.crs) != user:
             findings.append(
                 Finding(
@@ -193,7 +206,7 @@ def prepare_geometry(
     if src.is_geographic:
         minx, miny, maxx, maxy = bounds
         if not _fits_lonlat(bounds):
-            if -90 <= minx and maxx <= 90 and (miny < -90 or maxy > 90):
+            if minx >= -90 and maxx <= 90 and (miny < -90 or maxy > 90):
                 raise InputError(
                     f"{path}: latitudes run from {miny:.1f} to {maxy:.1f}, outside +/-90; the axes look "
                     "swapped (latitude, longitude); write the file as longitude, latitude"
@@ -217,7 +230,9 @@ def prepare_geometry(
         try:
             target = CRS.from_user_input(map_crs)
         except CRSError:
-            raise InputError(f"--map-crs {map_crs!r} is not a CRS we know; use e.g. EPSG:3035") from None
+            raise InputError(
+                f"--map-crs {map_crs!r} is not a CRS we know; use e.g. EPSG:3035"
+            ) from None
         if target.is_geographic:
             raise InputError(f"--map-crs {map_crs}: choose a projected CRS (metres) for mapping")
         gdf = gdf.to_crs(target)

@@ -104,11 +104,15 @@ class Panel:
             from mapdrift.errors import ConfigError
             from mapdrift.findings import examples
 
-            raise ConfigError(f"period {key!r} is not in the data; periods are {examples(labels, 8)}")
+            raise ConfigError(
+                f"period {key!r} is not in the data; periods are {examples(labels, 8)}"
+            )
         return labels.index(key)
 
     # -- derived panels --------------------------------------------------------------------
-    def with_values(self, values: np.ndarray, *, finding: Finding | None = None, **meta: str) -> Panel:
+    def with_values(
+        self, values: np.ndarray, *, finding: Finding | None = None, **meta: str
+    ) -> Panel:
         """A new Panel with other values (smoothed, relative...), optionally noting why."""
         findings = self.findings + ((finding,) if finding else ())
         new_meta = replace(self.meta, **meta) if meta else self.meta
@@ -177,7 +181,8 @@ class InputSpec:
     Long tables name ``period`` and ``value`` columns; wide tables give ``columns`` as a glob
     pattern such as ``rate_*`` (the period is parsed from the rest of the name); with neither,
     columns whose names carry a year are used. ``numerator``/``denominator`` turn counts into
-    rates ``per`` so many (patterns such as ``filings_*`` for wide tables).
+    rates ``per`` so many (patterns such as ``filings_*`` for wide tables). ``crosswalk`` (a
+    from, to, weight table) moves the values onto the layer's boundary vintage first.
     """
 
     geometry: Path
@@ -201,11 +206,13 @@ class InputSpec:
     variable: str | None = None
     unit_label: str | None = None
     source: str | None = None
+    crosswalk: Path | None = None
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "geometry", Path(self.geometry))
-        if self.table is not None:
-            object.__setattr__(self, "table", Path(self.table))
+        for name in ("table", "crosswalk"):
+            if getattr(self, name) is not None:
+                object.__setattr__(self, name, Path(getattr(self, name)))
         object.__setattr__(self, "missing", tuple(float(x) for x in self.missing))
 
 

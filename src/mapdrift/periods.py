@@ -52,7 +52,11 @@ def parse_periods(texts: Sequence[Any], *, where: str) -> dict[str, Any]:
         return out
     if all(_QUARTER.match(t) for t in distinct):
         return {
-            t: pd.Period(year=int(_QUARTER.match(t).group(1)), quarter=int(_QUARTER.match(t).group(2)), freq="Q")  # type: ignore[union-attr]
+            t: pd.Period(
+                year=int(_QUARTER.match(t).group(1)),
+                quarter=int(_QUARTER.match(t).group(2)),
+                freq="Q",
+            )  # type: ignore[union-attr]
             for t in distinct
         }
     if all(_DATE.match(t) for t in distinct):
@@ -65,7 +69,11 @@ def parse_periods(texts: Sequence[Any], *, where: str) -> dict[str, Any]:
         if all(d.day == 1 for d in dates.values()):
             return {t: pd.Period(d, freq="M") for t, d in dates.items()}
         return {t: pd.Period(d, freq="D") for t, d in dates.items()}
-    bad = [t for t in distinct if not (_YEAR.match(t) or _MONTH.match(t) or _QUARTER.match(t) or _DATE.match(t))]
+    bad = [
+        t
+        for t in distinct
+        if not (_YEAR.match(t) or _MONTH.match(t) or _QUARTER.match(t) or _DATE.match(t))
+    ]
     if bad:
         raise InputError(
             f"{where}: periods must be years (2019), months (2020-03), quarters (2020Q1) or ISO "

@@ -74,7 +74,9 @@ def _step_load(state: RunState) -> str:
     state.panel = load_panel(spec)
     state.findings += state.panel.findings
     p = state.panel
-    return f"{p.n_units} units x {p.n_periods} periods ({p.period_labels[0]} to {p.period_labels[-1]})"
+    return (
+        f"{p.n_units} units x {p.n_periods} periods ({p.period_labels[0]} to {p.period_labels[-1]})"
+    )
 
 
 def _step_classify(state: RunState) -> str:
@@ -99,7 +101,10 @@ def _step_classify(state: RunState) -> str:
 
         write_text(
             state.path("breaks.json"),
-            json.dumps({"per_period": [b.to_dict() for b in classes.breaks], "warning": classes.warning}, indent=2),
+            json.dumps(
+                {"per_period": [b.to_dict() for b in classes.breaks], "warning": classes.warning},
+                indent=2,
+            ),
         )
     b = classes.breaks[0]
     return f"{b.scheme}, {classes.k} classes, {b.basis}: " + " | ".join(b.labels)
@@ -134,7 +139,9 @@ def _swap_in(staging: Path, out: Path) -> None:
         shutil.rmtree(old, ignore_errors=True)
 
 
-def run(config: Config, *, out: Path, force: bool = False, progress: Progress | None = None) -> RunResult:
+def run(
+    config: Config, *, out: Path, force: bool = False, progress: Progress | None = None
+) -> RunResult:
     """Run every step into ``out``; raise StepError naming the failed step (``out`` untouched)."""
     out = Path(out)
     prepare_out(out, force=force)
@@ -161,4 +168,6 @@ def run(config: Config, *, out: Path, force: bool = False, progress: Progress | 
     finally:
         shutil.rmtree(staging, ignore_errors=True)
     outputs = tuple(out / p.relative_to(staging) for p in state.outputs)
-    return RunResult(out, tuple(state.findings), dict(state.timings), dict(state.summaries), outputs)
+    return RunResult(
+        out, tuple(state.findings), dict(state.timings), dict(state.summaries), outputs
+    )

@@ -13,7 +13,7 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from mapdrift.atomic import atomic_path
-from mapdrift.brief.slides import MARGIN, W, Box, Slide, layout, table_cells, table_geometry
+from mapdrift.brief.slides import MARGIN, Box, Slide, W, layout, table_cells, table_geometry
 from mapdrift.brief.textfit import fit
 
 __all__ = ["EMU_PER_PX", "FONT", "write_deck"]
@@ -26,7 +26,17 @@ def _emu(v: float) -> int:
     return int(round(v * EMU_PER_PX))
 
 
-def _textbox(shapes, box: Box, paragraphs: Sequence[str], *, max_px: float, min_px: float = 14, bold: bool = False, colour=(29, 35, 48), bullets: bool = False):
+def _textbox(
+    shapes,
+    box: Box,
+    paragraphs: Sequence[str],
+    *,
+    max_px: float,
+    min_px: float = 14,
+    bold: bool = False,
+    colour=(29, 35, 48),
+    bullets: bool = False,
+):
     from pptx.dml.color import RGBColor
     from pptx.enum.text import MSO_AUTO_SIZE
     from pptx.util import Pt
@@ -61,7 +71,12 @@ def _picture(shapes, path: Path, box: Box):
     scale = min(bw / w, bh / h)
     pw, ph = w * scale, h * scale
     left, top = box[0] + (bw - pw) / 2, box[1] + (bh - ph) / 2
-    return shapes.add_picture(str(path), _emu(left), _emu(top), _emu(pw), _emu(ph)), (left, top, left + pw, top + ph)
+    return shapes.add_picture(str(path), _emu(left), _emu(top), _emu(pw), _emu(ph)), (
+        left,
+        top,
+        left + pw,
+        top + ph,
+    )
 
 
 def _table(shapes, slide: Slide, box: Box) -> None:
@@ -70,7 +85,14 @@ def _table(shapes, slide: Slide, box: Box) -> None:
     cells = table_cells(slide.table)
     size, widths = table_geometry(cells, box)
     row_h = size * 1.5
-    shape = shapes.add_table(len(cells), len(cells[0]), _emu(box[0]), _emu(box[1]), _emu(sum(widths)), _emu(row_h * len(cells)))
+    shape = shapes.add_table(
+        len(cells),
+        len(cells[0]),
+        _emu(box[0]),
+        _emu(box[1]),
+        _emu(sum(widths)),
+        _emu(row_h * len(cells)),
+    )
     table = shape.table
     for j, w in enumerate(widths):
         table.columns[j].width = _emu(w)
@@ -108,7 +130,13 @@ def write_deck(slides: Sequence[Slide], path: Path, *, footer: str = "") -> Path
             if s.notice:
                 _textbox(sh, r.notice, [s.notice], max_px=30, bold=True, colour=(138, 90, 0))
             if s.bullets:
-                _textbox(sh, r.text or r.caption, [" · ".join(s.bullets)], max_px=30, colour=(91, 100, 117))
+                _textbox(
+                    sh,
+                    r.text or r.caption,
+                    [" · ".join(s.bullets)],
+                    max_px=30,
+                    colour=(91, 100, 117),
+                )
         else:
             _textbox(sh, r.title, [s.title], max_px=60, bold=True)
             if s.subtitle:
@@ -123,8 +151,13 @@ def write_deck(slides: Sequence[Slide], path: Path, *, footer: str = "") -> Path
                     placed = box
                 left, top, right, bottom = placed
                 sh.add_movie(
-                    str(s.movie), _emu(left), _emu(top), _emu(right - left), _emu(bottom - top),
-                    poster_frame_image=str(s.images[0]), mime_type="video/mp4",
+                    str(s.movie),
+                    _emu(left),
+                    _emu(top),
+                    _emu(right - left),
+                    _emu(bottom - top),
+                    poster_frame_image=str(s.images[0]),
+                    mime_type="video/mp4",
                 )
             else:
                 for p, box in zip(s.images, r.images):
@@ -134,7 +167,11 @@ def write_deck(slides: Sequence[Slide], path: Path, *, footer: str = "") -> Path
                 tb = r.text
                 if s.table is not None:
                     cells = table_cells(s.table)
-                    tbox = tb if not s.bullets else (tb[0], tb[1], tb[2], tb[1] + 0.7 * (tb[3] - tb[1]))
+                    tbox = (
+                        tb
+                        if not s.bullets
+                        else (tb[0], tb[1], tb[2], tb[1] + 0.7 * (tb[3] - tb[1]))
+                    )
                     size, _w = table_geometry(cells, tbox)
                     _table(sh, s, tbox)
                     tb = (tb[0], tb[1] + size * 1.5 * len(cells) + 30, tb[2], tb[3])
@@ -143,7 +180,14 @@ def write_deck(slides: Sequence[Slide], path: Path, *, footer: str = "") -> Path
             if s.caption:
                 _textbox(sh, r.caption, [s.caption], max_px=24, colour=(91, 100, 117))
         foot = f"{footer}   {n}/{len(slides)}" if footer else f"{n}/{len(slides)}"
-        _textbox(sh, (MARGIN + 600, r.footer[1], W - MARGIN, r.footer[1] + 30), [foot], max_px=20, min_px=10, colour=(91, 100, 117))
+        _textbox(
+            sh,
+            (MARGIN + 600, r.footer[1], W - MARGIN, r.footer[1] + 30),
+            [foot],
+            max_px=20,
+            min_px=10,
+            colour=(91, 100, 117),
+        )
         if s.notes:
             sl.notes_slide.notes_text_frame.text = s.notes
     with atomic_path(path) as tmp:

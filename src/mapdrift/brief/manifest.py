@@ -20,8 +20,24 @@ from mapdrift.atomic import write_text
 __all__ = ["MANIFEST_FORMAT", "sha256", "versions", "write_manifest"]
 
 MANIFEST_FORMAT = "mapdrift-manifest/1"
-_LIBS = ("numpy", "pandas", "scipy", "geopandas", "shapely", "pyproj", "pyogrio", "mapclassify",
-         "matplotlib", "pillow", "imageio", "imageio-ffmpeg", "libpysal", "esda", "python-pptx", "typer")
+_LIBS = (
+    "numpy",
+    "pandas",
+    "scipy",
+    "geopandas",
+    "shapely",
+    "pyproj",
+    "pyogrio",
+    "mapclassify",
+    "matplotlib",
+    "pillow",
+    "imageio",
+    "imageio-ffmpeg",
+    "libpysal",
+    "esda",
+    "python-pptx",
+    "typer",
+)
 
 
 def sha256(path: Path) -> str:
@@ -72,7 +88,11 @@ def write_manifest(
     doc = {
         "format": MANIFEST_FORMAT,
         "versions": versions(),
-        "inputs": [{"path": str(p), "sha256": sha256(p), "bytes": p.stat().st_size} for p in inputs if Path(p).is_file()],
+        "inputs": [
+            {"path": str(p), "sha256": sha256(p), "bytes": p.stat().st_size}
+            for p in inputs
+            if Path(p).is_file()
+        ],
         "config": _plain(config),
         "parameters": _plain(parameters),
         "timings_s": dict(timings),

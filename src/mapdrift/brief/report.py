@@ -43,7 +43,13 @@ footer { margin-top: 3rem; color: var(--muted); font-size: .85rem; }
   figure, table, .metric { break-inside: avoid; } }
 """
 
-_MIME = {".png": "image/png", ".gif": "image/gif", ".jpg": "image/jpeg", ".jpeg": "image/jpeg", ".svg": "image/svg+xml"}
+_MIME = {
+    ".png": "image/png",
+    ".gif": "image/gif",
+    ".jpg": "image/jpeg",
+    ".jpeg": "image/jpeg",
+    ".svg": "image/svg+xml",
+}
 
 
 def _e(text: object) -> str:
@@ -80,12 +86,15 @@ def _table_html(t: Table) -> str:
     rows = []
     for rec in df.itertuples(index=False):
         cells = "".join(
-            f'<td class="num">{_e(_fmt(v))}</td>' if _is_num(v) else f"<td>{_e(_fmt(v))}</td>" for v in rec
+            f'<td class="num">{_e(_fmt(v))}</td>' if _is_num(v) else f"<td>{_e(_fmt(v))}</td>"
+            for v in rec
         )
         rows.append(f"<tr>{cells}</tr>")
     more = ""
     if len(t.df) > t.max_rows:
-        more = f" Showing {t.max_rows} of {len(t.df)} rows" + (f"; all in {t.csv_name}." if t.csv_name else ".")
+        more = f" Showing {t.max_rows} of {len(t.df)} rows" + (
+            f"; all in {t.csv_name}." if t.csv_name else "."
+        )
     return (
         f"<table><caption>{_e(t.caption)}{_e(more)}</caption><thead><tr>{head}</tr></thead>"
         f"<tbody>{''.join(rows)}</tbody></table>"
@@ -120,7 +129,10 @@ def render_html(brief: Brief) -> str:
         out.append(f'<p class="notice" role="note">{_e(brief.warning)}</p>')
     if brief.headline:
         out.append('<section id="answer"><h2>The answer</h2><div class="headline">')
-        out += [f'<div class="metric"><b>{_e(v)}</b><span>{_e(k)}</span></div>' for k, v in brief.headline]
+        out += [
+            f'<div class="metric"><b>{_e(v)}</b><span>{_e(k)}</span></div>'
+            for k, v in brief.headline
+        ]
         out.append("</div></section>")
     out += [_section_html(s) for s in brief.sections]
     if brief.method:
@@ -145,7 +157,10 @@ def _md_escape(text: object) -> str:
 
 def _table_md(t: Table) -> str:
     df = t.df.head(t.max_rows)
-    lines = ["| " + " | ".join(_md_escape(c) for c in df.columns) + " |", "|" + "---|" * len(df.columns)]
+    lines = [
+        "| " + " | ".join(_md_escape(c) for c in df.columns) + " |",
+        "|" + "---|" * len(df.columns),
+    ]
     for rec in df.itertuples(index=False):
         lines.append("| " + " | ".join(_md_escape(_fmt(v)) for v in rec) + " |")
     lines.append("")
@@ -162,19 +177,36 @@ def render_markdown(brief: Brief, root: Path) -> str:
     if brief.warning:
         out += [f"> **{_md_escape(brief.warning)}**", ""]
     if brief.headline:
-        out += ["## The answer", ""] + [f"- **{_md_escape(v)}** {_md_escape(k)}" for k, v in brief.headline] + [""]
+        out += (
+            ["## The answer", ""]
+            + [f"- **{_md_escape(v)}** {_md_escape(k)}" for k, v in brief.headline]
+            + [""]
+        )
     for s in brief.sections:
         out += [f"## {_md_escape(s.title)}", ""]
         out += [_md_escape(p) + "\n" for p in s.paragraphs]
         out += [f"- {_md_escape(b)}" for b in s.bullets] + ([""] if s.bullets else [])
         for f in s.figures:
             if f.path.exists():
-                rel = f.path.relative_to(root).as_posix() if f.path.is_relative_to(root) else f.path.name
-                out += [f"![{_md_escape(f.alt or f.caption)}]({rel})", "", f"*{_md_escape(f.caption)}*", ""]
+                rel = (
+                    f.path.relative_to(root).as_posix()
+                    if f.path.is_relative_to(root)
+                    else f.path.name
+                )
+                out += [
+                    f"![{_md_escape(f.alt or f.caption)}]({rel})",
+                    "",
+                    f"*{_md_escape(f.caption)}*",
+                    "",
+                ]
         for t in s.tables:
             out += [_table_md(t), ""]
     if brief.method:
-        out += ["## Method", ""] + [f"- **{_md_escape(k)}**: {_md_escape(v)}" for k, v in brief.method] + [""]
+        out += (
+            ["## Method", ""]
+            + [f"- **{_md_escape(k)}**: {_md_escape(v)}" for k, v in brief.method]
+            + [""]
+        )
     out += ["## Cautions", ""] + [f"- {_md_escape(c)}" for c in brief.cautions] + [""]
     if brief.source:
         out += [f"Source: {_md_escape(brief.source)}. Made with mapdrift.", ""]

@@ -21,7 +21,13 @@ __all__ = ["H", "W", "Box", "Slide", "draw_slide", "layout", "write_slide_pngs"]
 
 W, H = 1920, 1080
 MARGIN = 80
-INK, MUTED, RULE, ACCENT, WARN = (29, 35, 48), (91, 100, 117), (217, 221, 229), (47, 93, 138), (138, 90, 0)
+INK, MUTED, RULE, ACCENT, WARN = (
+    (29, 35, 48),
+    (91, 100, 117),
+    (217, 221, 229),
+    (47, 93, 138),
+    (138, 90, 0),
+)
 Box = tuple[float, float, float, float]
 
 
@@ -66,7 +72,15 @@ def layout(slide: Slide) -> Region:
     n_img = len(slide.images)
     has_text = bool(slide.bullets) or slide.table is not None
     if slide.key == "title":
-        return Region((MARGIN, 300, W - MARGIN, 520), (MARGIN, 540, W - MARGIN, 700), (MARGIN, 720, W - MARGIN, 780), (), (MARGIN, 800, W - MARGIN, 940), caption, (MARGIN, 1000, W - MARGIN, 1050))
+        return Region(
+            (MARGIN, 300, W - MARGIN, 520),
+            (MARGIN, 540, W - MARGIN, 700),
+            (MARGIN, 720, W - MARGIN, 780),
+            (),
+            (MARGIN, 800, W - MARGIN, 940),
+            caption,
+            (MARGIN, 1000, W - MARGIN, 1050),
+        )
     if n_img and has_text:
         split = MARGIN + int((W - 2 * MARGIN) * 0.62)
         images = ((MARGIN, top, split - 30, bottom),)
@@ -74,11 +88,22 @@ def layout(slide: Slide) -> Region:
     elif n_img:
         gap = 40
         width = (W - 2 * MARGIN - gap * (n_img - 1)) / n_img
-        images = tuple((MARGIN + i * (width + gap), top, MARGIN + i * (width + gap) + width, bottom) for i in range(n_img))
+        images = tuple(
+            (MARGIN + i * (width + gap), top, MARGIN + i * (width + gap) + width, bottom)
+            for i in range(n_img)
+        )
         text = None
     else:
         images, text = (), (MARGIN, top, W - MARGIN, bottom)
-    return Region((MARGIN, 50, W - MARGIN, 140), (MARGIN, 140, W - MARGIN, 200), notice, images, text, caption, (MARGIN, 1010, W - MARGIN, 1060))
+    return Region(
+        (MARGIN, 50, W - MARGIN, 140),
+        (MARGIN, 140, W - MARGIN, 200),
+        notice,
+        images,
+        text,
+        caption,
+        (MARGIN, 1010, W - MARGIN, 1060),
+    )
 
 
 def _draw_lines(draw, lines: list[str], box: Box, size: float, colour, bold: bool = False) -> Box:
@@ -93,8 +118,12 @@ def _draw_lines(draw, lines: list[str], box: Box, size: float, colour, bold: boo
     return (x0, y0, right, y)
 
 
-def _text(draw, text: str, box: Box, max_px: float, colour, bold: bool = False, min_px: float = 14) -> Box:
-    size, wrapped = fit([text], box[2] - box[0], box[3] - box[1], max_px=max_px, min_px=min_px, bold=bold)
+def _text(
+    draw, text: str, box: Box, max_px: float, colour, bold: bool = False, min_px: float = 14
+) -> Box:
+    size, wrapped = fit(
+        [text], box[2] - box[0], box[3] - box[1], max_px=max_px, min_px=min_px, bold=bold
+    )
     return _draw_lines(draw, wrapped[0], box, size, colour, bold)
 
 
@@ -119,7 +148,9 @@ def _bullets(draw, bullets: tuple[str, ...], box: Box, max_px: float = 34) -> li
     boxes = []
     y = box[1]
     for lines in wrapped:
-        draw.ellipse((box[0] + 4, y + size * 0.45, box[0] + 4 + size * 0.35, y + size * 0.8), fill=ACCENT)
+        draw.ellipse(
+            (box[0] + 4, y + size * 0.45, box[0] + 4 + size * 0.35, y + size * 0.8), fill=ACCENT
+        )
         b = _draw_lines(draw, lines, (box[0] + 36, y, box[2], box[3]), size, INK)
         boxes.append(b)
         y = b[3] + 0.4 * line_height(size)
@@ -130,7 +161,9 @@ def table_cells(df: pd.DataFrame, max_rows: int = 12) -> list[list[str]]:
     """Header plus up to ``max_rows`` rows as text (numbers with two decimals)."""
     rows = [[str(c) for c in df.columns]]
     for rec in df.head(max_rows).itertuples(index=False):
-        rows.append([f"{v:,.2f}" if isinstance(v, float) else ("" if v is None else str(v)) for v in rec])
+        rows.append(
+            [f"{v:,.2f}" if isinstance(v, float) else ("" if v is None else str(v)) for v in rec]
+        )
     return rows
 
 
@@ -139,7 +172,10 @@ def table_geometry(cells: list[list[str]], box: Box) -> tuple[float, list[float]
     bw, bh = box[2] - box[0], box[3] - box[1]
     size = min(30.0, bh / (len(cells) * 1.5))
     while True:
-        need = [max(text_width(r[j], size, i == 0) for i, r in enumerate(cells)) + 24 for j in range(len(cells[0]))]
+        need = [
+            max(text_width(r[j], size, i == 0) for i, r in enumerate(cells)) + 24
+            for j in range(len(cells[0]))
+        ]
         if sum(need) <= bw or size <= 12:
             break
         size *= 0.92
@@ -168,7 +204,9 @@ def _table(draw, df: pd.DataFrame, box: Box) -> list[Box]:
             label = cell
             while text_width(label, size, i == 0) > widths[j] - 16 and len(label) > 1:
                 label = label[:-2] + "…"
-            draw.text((x + 10, y + size * 0.22), label, font=_font(int(round(size)), i == 0), fill=INK)
+            draw.text(
+                (x + 10, y + size * 0.22), label, font=_font(int(round(size)), i == 0), fill=INK
+            )
             boxes.append((x + 10, y, x + 10 + text_width(label, size, i == 0), y + row_h))
             x += widths[j]
         y += row_h
@@ -176,7 +214,9 @@ def _table(draw, df: pd.DataFrame, box: Box) -> list[Box]:
     return boxes
 
 
-def draw_slide(slide: Slide, number: int, total: int, footer: str = "") -> tuple[Image.Image, list[Box]]:
+def draw_slide(
+    slide: Slide, number: int, total: int, footer: str = ""
+) -> tuple[Image.Image, list[Box]]:
     """The slide as an RGB image and the boxes of all texts drawn on it."""
     from PIL import Image, ImageDraw
 

@@ -1,8 +1,6 @@
-"""Tables for spreadsheets and GIS: CSV with formula-injection defused, and the units layer.
+"""The units table (one row per unit, every per-unit result joined) as CSV and GeoPackage.
 
-A text cell that starts with ``=``, ``+``, ``-``, ``@``, a tab or a carriage return is prefixed
-with ``'`` so a spreadsheet shows it as text instead of running it (OWASP's advice on CSV
-injection). Numbers are left alone, so negative values stay numbers.
+CSVs are written with :func:`mapdrift.outputs.write_csv` (formula injection defused).
 """
 
 from __future__ import annotations
@@ -22,28 +20,7 @@ if TYPE_CHECKING:
     from mapdrift.breaks import Classes
     from mapdrift.panel import Panel
 
-__all__ = ["defuse", "units_table", "write_csv", "write_units_gpkg"]
-
-_TRIGGERS = ("=", "+", "-", "@", "\t", "\r")
-
-
-def defuse(value: Any) -> Any:
-    """``'=HYPERLINK("x")'`` -> ``"'=HYPERLINK(\\"x\\")"``; numbers and safe text unchanged."""
-    if isinstance(value, str) and value.startswith(_TRIGGERS):
-        return "'" + value
-    return value
-
-
-def write_csv(df: pd.DataFrame, path: Path, *, float_format: str = "%.6g") -> Path:
-    """Write ``df`` atomically as UTF-8 CSV with text cells defused; byte-stable for equal input."""
-    out = df.copy()
-    for col in out.columns:
-        if out[col].dtype == object or str(out[col].dtype) in ("string", "str"):
-            out[col] = out[col].map(defuse)
-    out.columns = [defuse(str(c)) for c in out.columns]
-    with atomic_path(path) as tmp:
-        out.to_csv(tmp, index=False, float_format=float_format, lineterminator="\n")
-    return path
+__all__ = ["units_table", "write_units_gpkg"]
 
 
 def units_table(
@@ -69,7 +46,9 @@ def units_table(
     return df
 
 
-def write_units_gpkg(df: pd.DataFrame, geometry: gpd.GeoSeries, path: Path, *, layer: str = "units") -> Path:
+def write_units_gpkg(
+    df: pd.DataFrame, geometry: gpd.GeoSeries, path: Path, *, layer: str = "units"
+) -> Path:
     """The units table with geometry as a GeoPackage layer (written atomically)."""
     import geopandas as gpd
 

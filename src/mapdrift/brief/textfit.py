@@ -16,7 +16,9 @@ __all__ = ["font_path", "line_height", "text_width", "wrap", "fit"]
 def font_path(bold: bool = False) -> str:
     from matplotlib import font_manager
 
-    return font_manager.findfont(font_manager.FontProperties(family="DejaVu Sans", weight="bold" if bold else "normal"))
+    return font_manager.findfont(
+        font_manager.FontProperties(family="DejaVu Sans", weight="bold" if bold else "normal")
+    )
 
 
 @functools.lru_cache(maxsize=64)

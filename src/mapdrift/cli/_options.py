@@ -56,7 +56,9 @@ def parse_numbers(text: str | None, flag: str) -> tuple[float, ...] | None:
         try:
             out.append(float(part))
         except ValueError:
-            raise ConfigError(f"{flag} takes numbers separated by commas, got {part!r} in {text!r}") from None
+            raise ConfigError(
+                f"{flag} takes numbers separated by commas, got {part!r} in {text!r}"
+            ) from None
     return tuple(out)
 
 
@@ -65,7 +67,9 @@ def _opt(default: Any, *names: str, help: str, **kw: Any) -> Any:
 
 
 def _param(name: str, annotation: Any, default: Any) -> inspect.Parameter:
-    return inspect.Parameter(name, inspect.Parameter.KEYWORD_ONLY, default=default, annotation=annotation)
+    return inspect.Parameter(
+        name, inspect.Parameter.KEYWORD_ONLY, default=default, annotation=annotation
+    )
 
 
 _INPUT_PARAMS = [
@@ -73,7 +77,9 @@ _INPUT_PARAMS = [
         "geometry",
         Optional[Path],
         typer.Argument(
-            None, help="Polygon layer: GeoPackage, GeoJSON, Shapefile, FlatGeobuf or GeoParquet.", show_default=False
+            None,
+            help="Polygon layer: GeoPackage, GeoJSON, Shapefile, FlatGeobuf or GeoParquet.",
+            show_default=False,
         ),
     ),
     _param(
@@ -85,35 +91,169 @@ _INPUT_PARAMS = [
             show_default=False,
         ),
     ),
-    _param("config_file", Optional[Path], _opt(None, "--config", help="TOML file whose [inputs] keys mirror these flags; flags win.")),
+    _param(
+        "config_file",
+        Optional[Path],
+        _opt(None, "--config", help="TOML file whose [inputs] keys mirror these flags; flags win."),
+    ),
     _param("layer", Optional[str], _opt(None, "--layer", help="Layer name inside a GeoPackage.")),
-    _param("id", Optional[str], _opt(None, "--id", help="Unit ID column of the layer (and the table, unless --table-id).")),
-    _param("table_id", Optional[str], _opt(None, "--table-id", help="Unit ID column of the table, when it differs.")),
-    _param("name", Optional[str], _opt(None, "--name", help="Unit name column of the layer (for labels and tables).")),
-    _param("period", Optional[str], _opt(None, "--period", help="Long table: the period column (years, 2020-03, 2020Q1, dates).")),
+    _param(
+        "id",
+        Optional[str],
+        _opt(None, "--id", help="Unit ID column of the layer (and the table, unless --table-id)."),
+    ),
+    _param(
+        "table_id",
+        Optional[str],
+        _opt(None, "--table-id", help="Unit ID column of the table, when it differs."),
+    ),
+    _param(
+        "name",
+        Optional[str],
+        _opt(None, "--name", help="Unit name column of the layer (for labels and tables)."),
+    ),
+    _param(
+        "period",
+        Optional[str],
+        _opt(
+            None, "--period", help="Long table: the period column (years, 2020-03, 2020Q1, dates)."
+        ),
+    ),
     _param("value", Optional[str], _opt(None, "--value", help="Long table: the value column.")),
-    _param("columns", Optional[str], _opt(None, "--columns", help="Wide table: value columns as a pattern, e.g. 'rate_*'.")),
-    _param("numerator", Optional[str], _opt(None, "--numerator", help="Count column (or wide pattern) to turn into a rate.")),
-    _param("denominator", Optional[str], _opt(None, "--denominator", help="Base column (or wide pattern) of the rate.")),
-    _param("per", Optional[float], _opt(None, "--per", help="Rate per so many of the base [default: 1000].")),
-    _param("min_base", Optional[float], _opt(None, "--min-base", help="Flag rates whose base is under this [default: 20].")),
-    _param("duplicates", Optional[Duplicates], _opt(None, "--duplicates", help="Repeated (unit, period) rows: stop (error) or keep first, mean, sum [default: error].")),
-    _param("missing", Optional[str], _opt(None, "--missing", help="Extra missing-value codes, e.g. '-999,-1'.")),
-    _param("crs", Optional[str], _opt(None, "--crs", help="CRS of a layer that has none, e.g. EPSG:26915.")),
-    _param("map_crs", Optional[str], _opt(None, "--map-crs", help="CRS to map in [default: the layer's if projected, else equal-area centred on the data].")),
-    _param("id_width", Optional[int], _opt(None, "--id-width", help="Zero-pad all-digit IDs to this width.")),
-    _param("variable", Optional[str], _opt(None, "--variable", help="Name of the variable for titles.")),
-    _param("unit_label", Optional[str], _opt(None, "--unit-label", help="Unit of the values, e.g. 'per 1,000 mortgaged parcels'.")),
+    _param(
+        "columns",
+        Optional[str],
+        _opt(None, "--columns", help="Wide table: value columns as a pattern, e.g. 'rate_*'."),
+    ),
+    _param(
+        "numerator",
+        Optional[str],
+        _opt(None, "--numerator", help="Count column (or wide pattern) to turn into a rate."),
+    ),
+    _param(
+        "denominator",
+        Optional[str],
+        _opt(None, "--denominator", help="Base column (or wide pattern) of the rate."),
+    ),
+    _param(
+        "per",
+        Optional[float],
+        _opt(None, "--per", help="Rate per so many of the base [default: 1000]."),
+    ),
+    _param(
+        "min_base",
+        Optional[float],
+        _opt(None, "--min-base", help="Flag rates whose base is under this [default: 20]."),
+    ),
+    _param(
+        "duplicates",
+        Optional[Duplicates],
+        _opt(
+            None,
+            "--duplicates",
+            help="Repeated (unit, period) rows: stop (error) or keep first, mean, sum [default: error].",
+        ),
+    ),
+    _param(
+        "missing",
+        Optional[str],
+        _opt(None, "--missing", help="Extra missing-value codes, e.g. '-999,-1'."),
+    ),
+    _param(
+        "crs",
+        Optional[str],
+        _opt(None, "--crs", help="CRS of a layer that has none, e.g. EPSG:26915."),
+    ),
+    _param(
+        "map_crs",
+        Optional[str],
+        _opt(
+            None,
+            "--map-crs",
+            help="CRS to map in [default: the layer's if projected, else equal-area centred on the data].",
+        ),
+    ),
+    _param(
+        "crosswalk",
+        Optional[Path],
+        _opt(
+            None,
+            "--crosswalk",
+            help="CSV with from, to, weight: move values onto the layer's boundaries first.",
+        ),
+    ),
+    _param(
+        "id_width",
+        Optional[int],
+        _opt(None, "--id-width", help="Zero-pad all-digit IDs to this width."),
+    ),
+    _param(
+        "variable", Optional[str], _opt(None, "--variable", help="Name of the variable for titles.")
+    ),
+    _param(
+        "unit_label",
+        Optional[str],
+        _opt(None, "--unit-label", help="Unit of the values, e.g. 'per 1,000 mortgaged parcels'."),
+    ),
     _param("source", Optional[str], _opt(None, "--source", help="Source line for captions.")),
 ]
 
 _CLASS_PARAMS = [
-    _param("scheme", Optional[SchemeChoice], _opt(None, "--scheme", "-s", help="Classification scheme [default: quantile].", panel="Classes")),
-    _param("k", Optional[int], _opt(None, "-k", "--classes", help="Number of classes, 2 to 9 [default: 5].", panel="Classes")),
-    _param("basis", Optional[str], _opt(None, "--basis", help="pooled (comparable frames), per-period, or period:YEAR [default: pooled].", panel="Classes")),
-    _param("breaks_file", Optional[Path], _opt(None, "--breaks-file", help="Reuse saved breaks (breaks.json), e.g. last year's.", panel="Classes")),
-    _param("values", Optional[str], _opt(None, "--values", help="Manual scheme: upper bounds, e.g. '0,2,5,10'.", panel="Classes")),
-    _param("isolate_zeros", Optional[bool], _opt(None, "--isolate-zeros/--no-isolate-zeros", help="Give exact zeros a class of their own.", panel="Classes")),
+    _param(
+        "scheme",
+        Optional[SchemeChoice],
+        _opt(
+            None,
+            "--scheme",
+            "-s",
+            help="Classification scheme [default: quantile].",
+            panel="Classes",
+        ),
+    ),
+    _param(
+        "k",
+        Optional[int],
+        _opt(
+            None, "-k", "--classes", help="Number of classes, 2 to 9 [default: 5].", panel="Classes"
+        ),
+    ),
+    _param(
+        "basis",
+        Optional[str],
+        _opt(
+            None,
+            "--basis",
+            help="pooled (comparable frames), per-period, or period:YEAR [default: pooled].",
+            panel="Classes",
+        ),
+    ),
+    _param(
+        "breaks_file",
+        Optional[Path],
+        _opt(
+            None,
+            "--breaks-file",
+            help="Reuse saved breaks (breaks.json), e.g. last year's.",
+            panel="Classes",
+        ),
+    ),
+    _param(
+        "values",
+        Optional[str],
+        _opt(
+            None, "--values", help="Manual scheme: upper bounds, e.g. '0,2,5,10'.", panel="Classes"
+        ),
+    ),
+    _param(
+        "isolate_zeros",
+        Optional[bool],
+        _opt(
+            None,
+            "--isolate-zeros/--no-isolate-zeros",
+            help="Give exact zeros a class of their own.",
+            panel="Classes",
+        ),
+    ),
 ]
 
 
@@ -125,7 +265,9 @@ def _load_config(path: Path | None) -> Any:
     return load_config(path)
 
 
-def _extend(func: Callable[..., Any], extra: list[inspect.Parameter], drop: set[str]) -> inspect.Signature:
+def _extend(
+    func: Callable[..., Any], extra: list[inspect.Parameter], drop: set[str]
+) -> inspect.Signature:
     sig = inspect.signature(func)
     params = [p for p in sig.parameters.values() if p.name not in drop]
     have = {p.name for p in params}
@@ -187,8 +329,6 @@ def class_options(func: Callable[..., Any]) -> Callable[..., Any]:
 
     sig = _extend(func, _CLASS_PARAMS, {"classes"})
     if "config" not in sig.parameters:
-        sig = sig.replace(
-            parameters=[*sig.parameters.values(), _param("config", Any, None)]
-        )
+        sig = sig.replace(parameters=[*sig.parameters.values(), _param("config", Any, None)])
     wrapper.__signature__ = sig  # type: ignore[attr-defined]
     return wrapper

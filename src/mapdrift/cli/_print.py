@@ -33,4 +33,6 @@ def print_findings(findings: Sequence[Finding]) -> None:
             continue
         head = typer.style(f"{f.level:<8}", fg=_COLOURS.get(f.level)) + f" {f.code}"
         typer.echo(head)
-        typer.echo(textwrap.fill(f.message, width=width, initial_indent="    ", subsequent_indent="    "))
+        typer.echo(
+            textwrap.fill(f.message, width=width, initial_indent="    ", subsequent_indent="    ")
+        )

@@ -34,14 +34,18 @@ def classify_from_spec(panel: Any, classes: Any) -> Any:
 def breaks(
     inputs: Any,
     classes: Any,
-    save: Optional[Path] = typer.Option(None, "--save", help="Write the breaks as JSON (reuse with --breaks-file)."),
+    save: Optional[Path] = typer.Option(
+        None, "--save", help="Write the breaks as JSON (reuse with --breaks-file)."
+    ),
     force: bool = typer.Option(False, "--force", help="Overwrite an existing --save file."),
 ) -> None:
     """Fit class breaks (pooled over all periods by default) and show the classes per period."""
     from mapdrift.panel import load_panel
 
     if save is not None and save.exists() and not force:
-        raise OutputExistsError(f"{save} exists; pass --force to overwrite it or choose another --save path")
+        raise OutputExistsError(
+            f"{save} exists; pass --force to overwrite it or choose another --save path"
+        )
     panel = load_panel(inputs)
     result = classify_from_spec(panel, classes)
     counts = result.counts()
@@ -49,11 +53,17 @@ def breaks(
     for j, label in enumerate(panel.period_labels):
         if result.per_period or j == 0:
             b = result.breaks_for(j)
-            head = f"{b.scheme}, {b.k} classes, basis {b.basis}" + (f" ({label})" if result.per_period else "")
+            head = f"{b.scheme}, {b.k} classes, basis {b.basis}" + (
+                f" ({label})" if result.per_period else ""
+            )
             echo(head)
             echo("  " + " | ".join(b.labels))
         if j == 0 or result.per_period:
-            echo(f"  {'period':<10}" + "".join(f"{i + 1:>8}" for i in range(result.k)) + f"{'no data':>9}")
+            echo(
+                f"  {'period':<10}"
+                + "".join(f"{i + 1:>8}" for i in range(result.k))
+                + f"{'no data':>9}"
+            )
         echo(f"  {label:<10}" + "".join(f"{c:>8}" for c in counts[j]) + f"{nodata[j]:>9}")
     if result.warning:
         echo()

@@ -17,14 +17,19 @@ def completeness_lines(panel: Any, width: int = 100) -> list[str]:
     comp = panel.completeness()
     cells = [f"{p}:{n}" for p, n in zip(comp["period"], comp["with_value"])]
     per_row = max(1, width // 14)
-    return ["  " + "  ".join(f"{c:<12}" for c in cells[i : i + per_row]) for i in range(0, len(cells), per_row)]
+    return [
+        "  " + "  ".join(f"{c:<12}" for c in cells[i : i + per_row])
+        for i in range(0, len(cells), per_row)
+    ]
 
 
 @command("check")
 @input_options
 def check(
     inputs: Any,
-    as_json: bool = typer.Option(False, "--json", help="Print the findings and completeness as JSON."),
+    as_json: bool = typer.Option(
+        False, "--json", help="Print the findings and completeness as JSON."
+    ),
 ) -> None:
     """Load the layer and table, align them, and report every problem found.
 
@@ -52,8 +57,13 @@ def check(
         return
     labels = panel.period_labels
     files = " + ".join(p.name for p in panel.inputs)
-    echo(f"{files}: {panel.n_units} units x {panel.n_periods} periods ({labels[0]} to {labels[-1]})")
-    echo(f"variable: {panel.meta.variable}" + (f" ({panel.meta.unit_label})" if panel.meta.unit_label else ""))
+    echo(
+        f"{files}: {panel.n_units} units x {panel.n_periods} periods ({labels[0]} to {labels[-1]})"
+    )
+    echo(
+        f"variable: {panel.meta.variable}"
+        + (f" ({panel.meta.unit_label})" if panel.meta.unit_label else "")
+    )
     echo()
     print_findings(panel.findings)
     echo()

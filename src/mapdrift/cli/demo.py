@@ -22,7 +22,9 @@ def demo_config_path() -> Path:
         return cand
     from mapdrift.errors import InputError
 
-    raise InputError("demo_data/demo.toml not found; run `mapdrift demo` from the mapdrift checkout")
+    raise InputError(
+        "demo_data/demo.toml not found; run `mapdrift demo` from the mapdrift checkout"
+    )
 
 
 @command("demo")

@@ -1,0 +1,82 @@
+"""Writing output tables safely: atomic, never over an existing file without ``force``,
+and with spreadsheet formula injection defused.
+
+A text cell that starts with ``=``, ``+``, ``-``, ``@``, a tab or a carriage return is prefixed
+with ``'`` so a spreadsheet shows it as text instead of running it (OWASP's advice on CSV
+injection). Numbers are left alone, so negative values stay numbers. When classes differ by
+period, the table's first line is ``# <warning>`` (read it back with ``comment="#"``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from mapdrift.atomic import atomic_path
+from mapdrift.errors import OutputExistsError
+from mapdrift.findings import examples
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+__all__ = ["check_free", "defuse", "read_csv", "write_csv"]
+
+_TRIGGERS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def defuse(value: Any) -> Any:
+    """``'=HYPERLINK("x")'`` -> ``"'=HYPERLINK(\\"x\\")"``; numbers and safe text unchanged."""
+    if isinstance(value, str) and value.startswith(_TRIGGERS):
+        return "'" + value
+    return value
+
+
+def check_free(paths: Iterable[Path], force: bool) -> None:
+    """Raise OutputExistsError naming the files that exist, unless ``force``."""
+    if force:
+        return
+    existing = [Path(p) for p in paths if Path(p).exists()]
+    if existing:
+        raise OutputExistsError(
+            f"{existing[0].parent}: {len(existing)} output files exist "
+            f"({examples([p.name for p in existing], 4)}); pass --force to overwrite or choose "
+            "another --out folder"
+        )
+
+
+def write_csv(
+    df: pd.DataFrame,
+    path: Path,
+    *,
+    warning: str | None = None,
+    index: bool = False,
+    float_format: str = "%.10g",
+) -> Path:
+    """Write ``df`` atomically as UTF-8 CSV, text cells defused; byte-stable for equal input."""
+    out = df.copy()
+    for col in out.columns:
+        if out[col].dtype == object or str(out[col].dtype) in ("string", "str"):
+            out[col] = out[col].map(defuse)
+    out.columns = [defuse(str(c)) for c in out.columns]
+    if index:
+        out.index = out.index.map(defuse)
+    text = out.to_csv(index=index, float_format=float_format, lineterminator="\n")
+    if warning:
+        text = f"# {warning}\n" + text
+    with atomic_path(Path(path)) as tmp:
+        tmp.write_text(text, encoding="utf-8", newline="")
+    return Path(path)
+
+
+def read_csv(path: Path, **kw: Any) -> pd.DataFrame:
+    """Read a table written by :func:`write_csv` (skips the warning line, keeps IDs as text)."""
+    import pandas as pd
+
+    kw.setdefault("dtype", {"unit_id": str, "unit": str})
+    return pd.read_csv(path, comment=None, skiprows=_warning_lines(path), **kw)
+
+
+def _warning_lines(path: Path) -> int:
+    with open(path, encoding="utf-8") as f:
+        return 1 if f.readline().startswith("# ") else 0
