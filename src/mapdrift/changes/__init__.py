@@ -28,7 +28,13 @@ from mapdrift.changes.markov import (
     stationary_distribution,
 )
 from mapdrift.changes.spatial_markov import SpatialMarkov, spatial_markov
-from mapdrift.changes.trajectories import FLAG_LABELS, UnitChanges, rank_mobility, unit_changes
+from mapdrift.changes.trajectories import (
+    FLAG_LABELS,
+    UnitChanges,
+    change_categories,
+    rank_mobility,
+    unit_changes,
+)
 from mapdrift.changes.transitions import Transitions, class_labels, count_transitions
 from mapdrift.errors import ConfigError
 from mapdrift.findings import Finding, examples
@@ -50,6 +56,7 @@ __all__ = [
     "SpatialMarkov",
     "Transitions",
     "analyse_changes",
+    "change_categories",
     "count_transitions",
     "first_passage_times",
     "homogeneity_test",

@@ -29,6 +29,7 @@ if TYPE_CHECKING:
 __all__ = [
     "FLAG_LABELS",
     "UnitChanges",
+    "change_categories",
     "flag_codes",
     "rank_mobility",
     "trajectories",
@@ -232,6 +233,34 @@ def flag_codes(
     out[spike] = FLAG_LABELS.index("spike (check data)")
     out[~np.asarray(has_data, dtype=bool)] = -1
     return out
+
+
+def change_categories(net_change: np.ndarray, k: int, cap: int = 3) -> tuple[np.ndarray, list[str]]:
+    """Categories of the change map: net class change from ``-cap`` (or ``1 - k``) to ``+cap``.
+
+    Returns ``(codes, labels)``: codes index the labels from the largest fall to the largest
+    rise, centred on "no change" (so a diverging palette centres on zero); moves beyond
+    ``cap`` classes share the end categories (``"down 3+"``); NaN (no data in the first or the
+    last period) gives ``-1``.
+
+    >>> change_categories(np.array([-4.0, 0.0, 1.0, np.nan]), 5)[0].tolist()
+    [0, 3, 4, -1]
+    """
+    net = np.asarray(net_change, dtype=np.float64)
+    side = max(1, min(cap, k - 1))
+    ok = ~np.isnan(net)
+    codes = np.full(net.shape, -1, dtype=np.int16)
+    codes[ok] = np.clip(net[ok], -side, side).astype(np.int16) + side
+    labels = []
+    for m in range(-side, side + 1):
+        more = "+" if abs(m) == side and side < k - 1 else ""
+        if m == 0:
+            labels.append("no change")
+        else:
+            word = "down" if m < 0 else "up"
+            unit = "class" if abs(m) == 1 and not more else "classes"
+            labels.append(f"{word} {abs(m)}{more} {unit}")
+    return codes, labels
 
 
 def rank_mobility(

@@ -1,0 +1,248 @@
+"""``mapdrift changes``: class transitions, Markov summaries, jumps and the change maps.
+
+Thin layer: loads the panel, optionally makes values relative, classifies with the shared class
+options, calls :func:`mapdrift.changes.analyse_changes`, writes the tables and draws the charts
+and maps from the plain arrays of the result.
+"""
+
+from __future__ import annotations
+
+from enum import Enum
+from pathlib import Path
+from typing import Any, Optional
+
+import typer
+
+from mapdrift.cli._app import command
+from mapdrift.cli._options import class_options, input_options
+from mapdrift.cli._print import echo, print_findings
+
+#: Colours of the flagged-units map, in the order of ``mapdrift.changes.FLAG_LABELS``.
+FLAG_COLOURS: tuple[str, ...] = (
+    "#c51b7d",  # spike (check data)
+    "#7b3294",  # jumps up and down
+    "#e66101",  # jump up
+    "#3b6fb6",  # jump down
+    "#1b7837",  # persistent top
+    "#a6dba0",  # persistent bottom
+    "#f4f4f4",  # no flag
+)
+
+PICTURES = ("transition_heatmap.png", "class_flow.png", "change_map.png", "flagged_units.png")
+
+
+class Relative(str, Enum):
+    mean = "mean"
+    median = "median"
+
+
+def _options(config: Any, overrides: dict[str, Any]) -> Any:
+    from mapdrift.changes import ChangeOptions
+    from mapdrift.config import merge
+
+    # the [changes] section, when the config has one, maps onto ChangeOptions; flags win
+    from_config = config.section("changes") if config is not None else {}
+    return merge(ChangeOptions, from_config, overrides)
+
+
+def draw_pictures(result: Any, panel: Any, out: Path) -> list[Path]:
+    """Heatmap, first-to-last flow, change map and flagged-units map from ``result``."""
+    from mapdrift import palettes
+    from mapdrift.changes import FLAG_LABELS, change_categories
+    from mapdrift.render import static_map
+    from mapdrift.render.transition_charts import class_flow, transition_heatmap
+
+    tr = result.transitions
+    per = result.period_labels
+    first, last = per[0], per[-1]
+    var = panel.meta.variable
+    source = panel.meta.source
+    notice = result.warning
+    k = len(result.labels)
+    written = []
+    pooled = f"all {len(tr.steps)} steps between consecutive periods pooled"
+    if tr.skipped_steps:
+        pooled += f" ({len(tr.skipped_steps)} across gaps left out)"
+    written.append(
+        transition_heatmap(
+            tr.counts,
+            result.labels,
+            out / "transition_heatmap.png",
+            title=f"{var}: class transitions, {first} to {last}",
+            subtitle=f"{tr.n_pairs:,} unit steps; {pooled}",
+            caption=source,
+            notice=notice,
+        )
+    )
+    colours = palettes.colours_for(k)
+    written.append(
+        class_flow(
+            tr.first_last,
+            result.labels,
+            colours,
+            out / "class_flow.png",
+            first_label=first,
+            last_label=last,
+            title=f"{var}: where units moved, {first} to {last}",
+            subtitle="Share of units per class in the first and the last period",
+            caption=source,
+            notice=notice,
+        )
+    )
+    codes, labels = change_categories(result.net_change, k)
+    written.append(
+        static_map(
+            panel.geometry,
+            codes,
+            palettes.diverging(len(labels)),
+            labels,
+            out / "change_map.png",
+            title=f"{var}: class change, {first} to {last}",
+            subtitle=f"Classes moved between {first} and {last} (same breaks in both)",
+            caption=source,
+            legend_title="net change",
+            nodata_label=f"no data in {first} or {last}",
+            notice=notice,
+        )
+    )
+    opts = result.options
+    written.append(
+        static_map(
+            panel.geometry,
+            result.flag,
+            list(FLAG_COLOURS),
+            list(FLAG_LABELS),
+            out / "flagged_units.png",
+            title=f"{var}: units to look at",
+            subtitle=(
+                f"jump = {opts.jump}+ classes in one step; spike = jumped and came back within "
+                f"{opts.spike_window} periods; persistent = same end class in the last "
+                f"{opts.persist} periods"
+            ),
+            caption=source,
+            legend_title="flag",
+            nodata_label="no data",
+            notice=notice,
+        )
+    )
+    return written
+
+
+@command("changes")
+@input_options
+@class_options
+def changes(
+    inputs: Any,
+    classes: Any,
+    config: Any = None,
+    out: Path = typer.Option(..., "--out", help="Folder for the tables, charts and maps."),
+    jump: Optional[int] = typer.Option(
+        None, "--jump", help="Flag moves of this many classes or more in one step [default: 2]."
+    ),
+    spike_window: Optional[int] = typer.Option(
+        None,
+        "--spike-window",
+        help="A jump undone within this many periods is a spike, often a data error [default: 2].",
+    ),
+    persist: Optional[int] = typer.Option(
+        None,
+        "--persist",
+        help="Flag units in the top/bottom class for each of the last N periods [default: 3].",
+    ),
+    bridge_gaps: Optional[bool] = typer.Option(
+        None,
+        "--bridge-gaps/--no-bridge-gaps",
+        help="Count steps across missing periods (e.g. 2016 -> 2018) [default: no].",
+    ),
+    relative: Optional[Relative] = typer.Option(
+        None,
+        "--relative",
+        help="Divide each period by its mean or median before classing ('who moved relative "
+        "to the whole area').",
+    ),
+    weights: Optional[str] = typer.Option(
+        None,
+        "--weights",
+        help="Neighbours for the spatially conditioned transitions: queen, rook, knn:6, "
+        "distance:2500 (metres), fuzzy [default: queen].",
+    ),
+    spatial: Optional[bool] = typer.Option(
+        None,
+        "--spatial/--no-spatial",
+        help="Compute transitions conditioned on the neighbours' class [default: yes].",
+    ),
+    pictures: bool = typer.Option(
+        True, "--pictures/--no-pictures", help="Draw the charts and maps (PNG)."
+    ),
+    force: bool = typer.Option(False, "--force", help="Overwrite existing output files."),
+) -> None:
+    """Which units changed class, how often, by how much, and whether neighbours matter.
+
+    Writes transitions.csv, transition_probabilities.csv, transitions_by_pair.csv, markov.json,
+    jumps.csv, units.csv and more into --out, plus a transition heatmap, a flow of class shares
+    from the first to the last period, a change map and a map of flagged units.
+    """
+    from mapdrift.changes import analyse_changes, relative_panel, write_changes
+    from mapdrift.changes.io import check_outputs, output_names
+    from mapdrift.cli.breaks import classify_from_spec
+    from mapdrift.panel import load_panel
+
+    options = _options(
+        config,
+        {
+            "jump": jump,
+            "spike_window": spike_window,
+            "persist": persist,
+            "bridge_gaps": bridge_gaps,
+            "relative": relative.value if relative is not None else None,
+            "weights": weights,
+            "spatial": spatial,
+        },
+    )
+    panel = load_panel(inputs)
+    if options.relative:
+        panel = relative_panel(panel, options.relative)
+    cls = classify_from_spec(panel, classes)
+    result = analyse_changes(panel, cls, options)
+    names = output_names(result) + (list(PICTURES) if pictures else [])
+    check_outputs(out, names, force)  # before writing anything
+    written = write_changes(result, out, force=True)
+    if pictures:
+        written += draw_pictures(result, panel, out)
+
+    tr = result.transitions
+    per = result.period_labels
+    echo(
+        f"{panel.n_units} units, {panel.n_periods} periods ({per[0]} to {per[-1]}), "
+        f"{cls.k} classes: {tr.n_pairs:,} unit steps over {len(tr.steps)} steps"
+    )
+    stayed = tr.counts.trace() / max(tr.n_pairs, 1)
+    echo(f"stayed in their class: {stayed:.0%} of unit steps")
+    hom = result.homogeneity
+    if hom.p_LR is not None:
+        echo(
+            f"same transitions every step? likelihood ratio {hom.LR:.1f}, df {hom.df}, p = {hom.p_LR:.3g}"
+        )
+    if result.spatial is not None and result.spatial.test.p_LR is not None:
+        t = result.spatial.test
+        echo(
+            f"transitions independent of the neighbours' class? LR {t.LR:.1f}, df {t.df}, p = {t.p_LR:.3g}"
+        )
+    u = result.units
+    echo(
+        f"flagged: {int(u['jump'].sum())} units jumped {options.jump}+ classes, "
+        f"{int(u['spike'].sum())} spikes, {int(u['persistent_top'].sum())} persistent top, "
+        f"{int(u['persistent_bottom'].sum())} persistent bottom"
+    )
+    if result.warning:
+        echo(typer.style(f"warning: {result.warning}", fg=typer.colors.YELLOW))
+    shown = [
+        f
+        for f in result.findings
+        if f.code not in ("changes-homogeneity", "changes-spatial-context")
+    ]
+    if shown:
+        echo()
+        print_findings(shown)
+    echo()
+    echo(f"wrote {len(written)} files to {out}")
