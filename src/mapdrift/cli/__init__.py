@@ -15,5 +15,6 @@ from mapdrift.cli import check as _check  # noqa: E402,F401  isort: skip
 from mapdrift.cli import breaks as _breaks  # noqa: E402,F401  isort: skip
 from mapdrift.cli import demo as _demo  # noqa: E402,F401  isort: skip
 from mapdrift.cli import changes as _changes  # noqa: E402,F401  isort: skip
+from mapdrift.cli import clusters as _clusters  # noqa: E402,F401  isort: skip
 
 __all__ = ["app", "main"]

@@ -257,6 +257,25 @@ def analyse_clusters(
     )
     t_codes, t_labels = _trend_map(tr, "")
 
+    if opt.statistic == "local-moran" and opt.permutations > 0:
+        m = int(np.nanmax((~np.isnan(local.p)).sum(axis=0), initial=0))
+        floor = 2.0 / (opt.permutations + 1)
+        if m and floor > opt.alpha / m and opt.correction != "none":
+            need = int(np.ceil(floor * m / opt.alpha))
+            what = (
+                "no unit can be significant"
+                if opt.correction == "bonferroni"
+                else f"a unit can only be significant when at least {need} units are"
+            )
+            findings.append(
+                Finding(
+                    "warning",
+                    "clusters-permutation-floor",
+                    f"with {opt.permutations} permutations the smallest possible p-value is "
+                    f"{floor:.3g}, above {opt.alpha:g}/{m} tests, so after {opt.correction} "
+                    f"correction {what}; use more --permutations (e.g. 9999)",
+                )
+            )
     n_hh = (codes == lab.HH).sum(axis=0)
     findings.append(
         Finding(

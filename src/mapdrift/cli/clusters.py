@@ -1,0 +1,150 @@
+"""``mapdrift clusters``: spatial autocorrelation per period, cluster changes and unit trends."""
+
+from __future__ import annotations
+
+from enum import Enum
+from pathlib import Path
+from typing import Any, Optional
+
+import typer
+
+from mapdrift.cli._app import command
+from mapdrift.cli._options import input_options
+from mapdrift.cli._print import echo, print_findings
+
+
+class Correction(str, Enum):
+    fdr = "fdr"
+    bonferroni = "bonferroni"
+    none = "none"
+
+
+class Statistic(str, Enum):
+    local_moran = "local-moran"
+    gi_star = "gi-star"
+
+
+class Islands(str, Enum):
+    nearest = "nearest"
+    exclude = "exclude"
+
+
+class Smooth(str, Enum):
+    eb = "eb"
+    spatial_eb = "spatial-eb"
+
+
+def _opt(default: Any, *names: str, help: str) -> Any:
+    return typer.Option(default, *names, help=help, rich_help_panel="Clusters")
+
+
+@command("clusters")
+@input_options
+def clusters(
+    inputs: Any,
+    config: Any = None,
+    out: Path = typer.Option(..., "--out", help="Output folder for tables and maps."),
+    weights: Optional[str] = _opt(
+        None,
+        "--weights",
+        help="queen, rook, knn:6, distance:2500 (metres), fuzzy or fuzzy:M [default: queen].",
+    ),
+    islands: Optional[Islands] = _opt(
+        None,
+        "--islands",
+        help="Units without neighbours: link to the nearest unit, or exclude (labelled isolated) [default: nearest].",
+    ),
+    permutations: Optional[int] = _opt(
+        None, "--permutations", help="Random permutations for p-values [default: 999]."
+    ),
+    alpha: Optional[float] = _opt(None, "--alpha", help="Significance level [default: 0.05]."),
+    correction: Optional[Correction] = _opt(
+        None, "--correction", help="Multiple-testing correction per period [default: fdr]."
+    ),
+    seed: Optional[int] = _opt(
+        None,
+        "--seed",
+        help="Random seed; same inputs and seed give identical tables [default: fixed].",
+    ),
+    statistic: Optional[Statistic] = _opt(
+        None, "--statistic", help="Local statistic [default: local-moran]."
+    ),
+    persist: Optional[int] = _opt(
+        None,
+        "--persist",
+        help="Periods in a row that make a steady high-high cluster [default: 3].",
+    ),
+    change_from: Optional[str] = _opt(
+        None, "--from", help="First period of the change analysed [default: first]."
+    ),
+    change_to: Optional[str] = _opt(
+        None, "--to", help="Last period of the change analysed [default: last]."
+    ),
+    smooth: Optional[Smooth] = _opt(
+        None, "--smooth", help="Smooth rates from counts first (empirical Bayes)."
+    ),
+    weights_cache: Optional[Path] = _opt(
+        None, "--weights-cache", help="Folder to keep spatial weights between runs."
+    ),
+    maps: bool = typer.Option(
+        True, "--maps/--no-maps", help="Also draw the chart, cluster animation and maps."
+    ),
+    force: bool = typer.Option(False, "--force", help="Overwrite existing output files."),
+) -> None:
+    """Global and local Moran's I (or Gi*) per period, cluster changes and trends per unit."""
+    from mapdrift.clusters import ClusterOptions, analyse_clusters, write_clusters
+    from mapdrift.clusters.io import check_free
+    from mapdrift.config import merge
+    from mapdrift.panel import load_panel
+
+    flags = {
+        "weights": weights,
+        "islands": islands.value if islands else None,
+        "permutations": permutations,
+        "alpha": alpha,
+        "correction": correction.value if correction else None,
+        "seed": seed,
+        "statistic": statistic.value if statistic else None,
+        "persist": persist,
+        "change_from": change_from,
+        "change_to": change_to,
+        "smooth": smooth.value if smooth else None,
+        "cache_dir": weights_cache,
+    }
+    from_config = (
+        config.section("clusters") if config is not None and hasattr(config, "section") else {}
+    )
+    options = merge(ClusterOptions, from_config, flags)
+    from mapdrift.cli._cluster_maps import MAP_FILES, draw_maps
+
+    check_free([out / n for n in (*_table_names(), *(MAP_FILES if maps else ()))], force)
+    panel = load_panel(inputs)
+    result = analyse_clusters(panel, None, options)
+    written = write_clusters(result, out, force=force)
+    if maps:
+        written += draw_maps(result, panel, out)
+    g = result.global_moran
+    echo(
+        f"{options.statistic}, {result.weights.kind} weights, {options.permutations} permutations, seed {options.seed}"
+    )
+    echo(f"{options.significance}")
+    echo(
+        f"  {'period':<10}{'Moran I':>10}{'p perm':>9}{'high-high':>11}{'low-low':>9}{'outliers':>10}"
+    )
+    for t, label in enumerate(result.period_labels):
+        codes = result.codes[:, t]
+        echo(
+            f"  {label:<10}{g['moran_i'].iloc[t]:>10.3f}{g['p_permutation'].iloc[t]:>9.3f}"
+            f"{int((codes == 0).sum()):>11}{int((codes == 1).sum()):>9}{int(((codes == 2) | (codes == 3)).sum()):>10}"
+        )
+    echo()
+    print_findings(result.findings)
+    echo()
+    for p in written:
+        echo(f"wrote {p}")
+
+
+def _table_names() -> tuple[str, ...]:
+    from mapdrift.clusters.io import OUTPUT_FILES
+
+    return tuple(OUTPUT_FILES)

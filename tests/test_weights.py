@@ -1,0 +1,144 @@
+"""Spatial weights against libpysal (reference library) and hand-counted lattices."""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pytest
+from shapely.geometry import box
+
+from mapdrift.errors import ConfigError
+from mapdrift.weights import build_weights, parse_kind
+
+
+@pytest.fixture(scope="module")
+def columbus():
+    # Columbus neighbourhoods, bundled with libpysal (no download needed).
+    import geopandas as gpd
+    from libpysal import examples
+
+    return gpd.read_file(examples.get_path("columbus.shp"))
+
+
+def _lattice(n=3, extra=()):
+    import geopandas as gpd
+
+    geoms = [box(c, r, c + 1, r + 1) for r in range(n) for c in range(n)] + list(extra)
+    return gpd.GeoSeries(geoms, crs="EPSG:3857")
+
+
+@pytest.mark.parametrize("kind", ["queen", "rook"])
+def test_contiguity_matches_libpysal_on_columbus(columbus, kind):
+    # Reference: libpysal.weights.Queen / Rook, row-standardised ("r").
+    from libpysal import weights as lw
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        ref = (lw.Queen if kind == "queen" else lw.Rook).from_dataframe(columbus, use_index=False)
+    ref.transform = "r"
+    w = build_weights(columbus.geometry, kind)
+    np.testing.assert_allclose(w.W.toarray(), ref.sparse.toarray(), atol=1e-12)
+    assert w.islands == () and w.components == 1
+
+
+def test_knn_and_distance_match_libpysal(columbus):
+    # Reference: libpysal KNN (k=4) and DistanceBand (binary) on polygon centroids.
+    from libpysal import weights as lw
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        knn = lw.KNN.from_dataframe(columbus, k=4, use_index=False)
+        pts = np.column_stack([columbus.centroid.x, columbus.centroid.y])
+        band = lw.DistanceBand(pts, threshold=1.0, binary=True, silence_warnings=True)
+    for ref, kind in ((knn, "knn:4"), (band, "distance:1")):
+        ref.transform = "r"
+        w = build_weights(columbus.geometry, kind, islands="exclude")
+        np.testing.assert_allclose(w.W.toarray(), ref.sparse.toarray(), atol=1e-12)
+
+
+def test_rook_and_queen_lattice_cardinalities():
+    # 3x3 lattice, counted by hand: rook corners 2, edges 3, centre 4; queen 3, 5, 8.
+    g = _lattice()
+    assert build_weights(g, "rook").cardinalities.tolist() == [2, 3, 2, 3, 4, 3, 2, 3, 2]
+    assert build_weights(g, "queen").cardinalities.tolist() == [3, 5, 3, 5, 8, 5, 3, 5, 3]
+
+
+def test_fuzzy_bridges_a_gap():
+    # Two squares 0.5 m apart: not contiguous, fuzzy with 1 m tolerance links them.
+    import geopandas as gpd
+
+    g = gpd.GeoSeries([box(0, 0, 100, 100), box(100.5, 0, 200, 100)], crs="EPSG:3857")
+    assert build_weights(g, "queen", islands="exclude").cardinalities.tolist() == [0, 0]
+    assert build_weights(g, "fuzzy:1").cardinalities.tolist() == [1, 1]
+
+
+@pytest.mark.parametrize("rule", ["nearest", "exclude"])
+def test_island_rules(rule):
+    g = _lattice(extra=[box(10, 10, 11, 11)])
+    w = build_weights(g, "queen", islands=rule, units=[f"u{i}" for i in range(10)])
+    assert w.islands == (9,)
+    codes = [f.code for f in w.findings]
+    assert "weights-islands" in codes
+    assert "u9" in next(f for f in w.findings if f.code == "weights-islands").units
+    if rule == "nearest":
+        # nearest polygon to (10..11, 10..11) is the top-right lattice cell (index 8)
+        assert w.neighbours(9).tolist() == [8] and 9 in w.neighbours(8)
+        assert w.isolated == () and w.components == 1
+    else:
+        assert w.isolated == (9,) and w.cardinalities[9] == 0
+        assert np.isnan(w.lag(np.arange(10.0))[9])
+
+
+def test_components_reported():
+    g = _lattice(extra=[box(10, 10, 11, 11), box(11, 10, 12, 11)])
+    w = build_weights(g, "rook")
+    assert any(f.code == "weights-components" for f in w.findings)
+    assert w.components == 2
+
+
+def test_lag_leaves_out_missing_neighbours():
+    # Hand computation on the 3x3 rook lattice, values 1..9 with cell 1 missing:
+    # cell 0 neighbours {1, 3} -> only 3 valid -> lag 4; cell 4 neighbours {1,3,5,7} -> (4+6+8)/3.
+    w = build_weights(_lattice(), "rook")
+    y = np.arange(1.0, 10.0)
+    y[1] = np.nan
+    lag = w.lag(y)
+    assert lag[0] == 4.0
+    assert lag[4] == pytest.approx(6.0)
+    assert lag[1] == pytest.approx((1 + 3 + 5) / 3)  # own value missing, lag still defined
+    two_d = w.lag(np.column_stack([y, y]))
+    np.testing.assert_allclose(two_d[:, 0], lag)
+
+
+def test_subset_restandardises():
+    w = build_weights(_lattice(), "rook")
+    keep = np.ones(9, dtype=bool)
+    keep[1] = False
+    sub = w.subset(keep)
+    assert sub.shape == (8, 8)
+    np.testing.assert_allclose(np.asarray(sub.sum(axis=1)).ravel(), 1.0)
+
+
+def test_cache_roundtrip(tmp_path):
+    g = _lattice(extra=[box(10, 10, 11, 11)])
+    w1 = build_weights(g, "queen", cache_dir=tmp_path)
+    files = list(tmp_path.glob("weights-*.npz"))
+    assert len(files) == 1
+    w2 = build_weights(g, "queen", cache_dir=tmp_path)
+    assert (w1.W != w2.W).nnz == 0
+    assert w2.islands == w1.islands and w2.findings == w1.findings
+    # another kind is another cache entry
+    build_weights(g, "rook", cache_dir=tmp_path)
+    assert len(list(tmp_path.glob("weights-*.npz"))) == 2
+
+
+@pytest.mark.parametrize("bad", ["hexagon", "knn", "knn:2.5", "distance:-3", "queen:2"])
+def test_bad_kind_is_a_clear_error(bad):
+    with pytest.raises(ConfigError, match="--weights"):
+        parse_kind(bad)
+
+
+def test_bad_island_rule():
+    with pytest.raises(ConfigError, match="--islands"):
+        build_weights(_lattice(), "queen", islands="drop")
