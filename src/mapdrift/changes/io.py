@@ -5,7 +5,8 @@ pooled), ``transition_probabilities.csv`` (row shares; an empty row has blank ce
 note), ``transitions_first_last.csv``, ``transitions_by_pair.csv`` (long form), ``markov.json``,
 ``jumps.csv``, ``rank_mobility.csv``, ``transitions_by_neighbourhood.csv`` (when spatially
 conditioned transitions were computed) and, unless ``units_table=False``, ``units.csv`` with the
-per-unit change columns. Nothing is overwritten without ``force``. Class numbers in the tables
+per-unit change columns. Nothing is overwritten without ``force``; CSVs go through :func:`mapdrift.outputs.write_csv`
+(atomic, spreadsheet formulas defused). Class numbers in the tables
 are 1-based (class 1 = lowest) beside the legend labels. With per-period breaks every CSV starts
 with a ``#`` comment line carrying the warning and ``markov.json`` has a ``warning`` key.
 """
@@ -18,8 +19,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from mapdrift.atomic import write_text
-from mapdrift.errors import OutputExistsError
-from mapdrift.findings import examples
+from mapdrift.outputs import check_free, write_csv
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -77,8 +77,8 @@ def markov_document(result: ChangeResult) -> dict[str, Any]:
     return _clean(doc)
 
 
-def output_names(result: ChangeResult, *, units_table: bool = True) -> list[str]:
-    """File names :func:`write_changes` writes for ``result``."""
+def output_names(*, spatial: bool = True, units_table: bool = True) -> list[str]:
+    """File names :func:`write_changes` writes (``spatial``: with conditioned transitions)."""
     names = [
         "transitions.csv",
         "transition_probabilities.csv",
@@ -88,28 +88,16 @@ def output_names(result: ChangeResult, *, units_table: bool = True) -> list[str]
         "jumps.csv",
         "rank_mobility.csv",
     ]
-    if result.spatial is not None:
+    if spatial:
         names.append("transitions_by_neighbourhood.csv")
     if units_table:
         names.append("units.csv")
     return names
 
 
-def check_outputs(out: Path, names: list[str], force: bool) -> None:
-    """Raise OutputExistsError naming the files that exist, unless ``force``."""
-    if force:
-        return
-    exist = [n for n in names if (out / n).exists()]
-    if exist:
-        raise OutputExistsError(
-            f"{out}: {len(exist)} output files exist ({examples(exist)}); pass --force to "
-            "overwrite them or choose another --out folder"
-        )
-
-
-def _csv(df: pd.DataFrame, warning: str | None) -> str:
-    text = df.to_csv(index=False, lineterminator="\n", float_format="%.6g")
-    return (f"# {warning}\n" + text) if warning else text
+def check_outputs(out: Path | str, names: list[str], force: bool) -> None:
+    """Raise OutputExistsError naming the files in ``out`` that exist, unless ``force``."""
+    check_free([Path(out) / n for n in names], force)
 
 
 def write_changes(
@@ -121,7 +109,7 @@ def write_changes(
     exists and ``force`` is False.
     """
     out = Path(out)
-    names = output_names(result, units_table=units_table)
+    names = output_names(spatial=result.spatial is not None, units_table=units_table)
     check_outputs(out, names, force)
     out.mkdir(parents=True, exist_ok=True)
     tr, w = result.transitions, result.warning
@@ -139,7 +127,7 @@ def write_changes(
         tables["units.csv"] = result.units
     written = []
     for name, df in tables.items():
-        written.append(write_text(out / name, _csv(df, w)))
+        written.append(write_csv(df, out / name, warning=w))
     doc = json.dumps(markov_document(result), indent=2, ensure_ascii=False)
     written.append(write_text(out / "markov.json", doc + "\n"))
     return written

@@ -45,11 +45,11 @@ def _options(config: Any, overrides: dict[str, Any]) -> Any:
     return merge(ChangeOptions, from_config, overrides)
 
 
-def draw_pictures(result: Any, panel: Any, out: Path) -> list[Path]:
+def draw_pictures(result: Any, panel: Any, out: Path, *, force: bool = False) -> list[Path]:
     """Heatmap, first-to-last flow, change map and flagged-units map from ``result``."""
     from mapdrift import palettes
     from mapdrift.changes import FLAG_LABELS, change_categories
-    from mapdrift.render import static_map
+    from mapdrift.render.static import static_map
     from mapdrift.render.transition_charts import class_flow, transition_heatmap
 
     tr = result.transitions
@@ -103,6 +103,7 @@ def draw_pictures(result: Any, panel: Any, out: Path) -> list[Path]:
             legend_title="net change",
             nodata_label=f"no data in {first} or {last}",
             notice=notice,
+            force=force,
         )
     )
     opts = result.options
@@ -116,13 +117,17 @@ def draw_pictures(result: Any, panel: Any, out: Path) -> list[Path]:
             title=f"{var}: units to look at",
             subtitle=(
                 f"jump = {opts.jump}+ classes in one step; spike = jumped and came back within "
-                f"{opts.spike_window} periods; persistent = same end class in the last "
-                f"{opts.persist} periods"
+                f"{opts.spike_window} periods; persistent = top or bottom class in each of the "
+                f"last {opts.persist} periods"
             ),
-            caption=source,
+            caption=(
+                "Each unit shows the first of its flags in the legend's order; all flags are in "
+                "units.csv and every jump in jumps.csv." + (f" {source}" if source else "")
+            ),
             legend_title="flag",
             nodata_label="no data",
             notice=notice,
+            force=force,
         )
     )
     return written
@@ -199,16 +204,16 @@ def changes(
             "spatial": spatial,
         },
     )
+    names = output_names(spatial=options.spatial) + (list(PICTURES) if pictures else [])
+    check_outputs(out, names, force)  # before any work
     panel = load_panel(inputs)
     if options.relative:
         panel = relative_panel(panel, options.relative)
     cls = classify_from_spec(panel, classes)
     result = analyse_changes(panel, cls, options)
-    names = output_names(result) + (list(PICTURES) if pictures else [])
-    check_outputs(out, names, force)  # before writing anything
     written = write_changes(result, out, force=True)
     if pictures:
-        written += draw_pictures(result, panel, out)
+        written += draw_pictures(result, panel, out, force=True)  # checked above
 
     tr = result.transitions
     per = result.period_labels
