@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import json
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -146,3 +148,27 @@ def test_relative_median_and_zero_centre():
 
     with pytest.raises(ConfigError, match="mean, median"):
         relative_panel(panel, "mode")
+
+
+def test_per_period_breaks_warning_reaches_every_table(tmp_path):
+    # classes that differ by period must say so on every output (project rule, no source)
+    from mapdrift.breaks import PER_PERIOD_WARNING
+    from mapdrift.changes import ChangeOptions, analyse_changes, write_changes
+    from mapdrift.errors import OutputExistsError
+
+    rng = np.random.default_rng(4)
+    v = rng.gamma(2.0, 1.0, size=(30, 4)) * np.array([1.0, 2.0, 3.0, 4.0])
+    panel = Panel.from_arrays(v, [shapely.box(i, 0, i + 1, 1) for i in range(30)])
+    classes = classify(panel, "quantile", 3, basis="per-period")
+    res = analyse_changes(panel, classes, ChangeOptions(spatial=False))
+    assert res.warning == PER_PERIOD_WARNING
+    assert res.labels == ("class 1", "class 2", "class 3")  # labels differ by period
+    written = write_changes(res, tmp_path)
+    for path in written:
+        text = path.read_text(encoding="utf-8")
+        assert PER_PERIOD_WARNING in text.splitlines()[0] or path.suffix == ".json", path
+    doc = json.loads((tmp_path / "markov.json").read_text())
+    assert doc["warning"] == PER_PERIOD_WARNING
+    with pytest.raises(OutputExistsError, match="--force"):
+        write_changes(res, tmp_path)
+    assert write_changes(res, tmp_path, force=True)
