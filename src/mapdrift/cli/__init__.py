@@ -16,5 +16,6 @@ from mapdrift.cli import breaks as _breaks  # noqa: E402,F401  isort: skip
 from mapdrift.cli import demo as _demo  # noqa: E402,F401  isort: skip
 from mapdrift.cli import changes as _changes  # noqa: E402,F401  isort: skip
 from mapdrift.cli import clusters as _clusters  # noqa: E402,F401  isort: skip
+from mapdrift.cli import animate as _animate  # noqa: E402,F401  isort: skip
 
 __all__ = ["app", "main"]

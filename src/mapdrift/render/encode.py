@@ -1,0 +1,344 @@
+"""Encoders that stream frames to GIF, MP4 or a folder of PNGs (never all frames in memory).
+
+GIF: one fixed 256-colour palette for the whole animation, built from the colours that must stay
+exact (classes, no data, furniture) plus the first frame's antialiasing shades; every pixel is
+mapped to its palette entry without dithering, so a class colour in the file is the class colour
+(no quantisation noise). Frames after the first store only the changed rectangle, with unchanged
+pixels transparent. MP4: H.264, ``yuv420p``, ``+faststart`` through imageio-ffmpeg's ffmpeg; odd
+sizes are padded by one pixel of paper, never resized. A missing or failing encoder raises
+:class:`~mapdrift.errors.EncoderError`; we never switch format silently.
+"""
+
+from __future__ import annotations
+
+import logging
+import re
+from collections.abc import Iterable, Sequence
+from pathlib import Path
+
+import numpy as np
+
+from mapdrift.atomic import atomic_path
+from mapdrift.colour import hex_to_rgb8
+from mapdrift.errors import ConfigError, EncoderError, OutputExistsError
+
+__all__ = ["FixedPalette", "pad_even", "write_gif", "write_mp4", "write_png_frames"]
+
+log = logging.getLogger(__name__)
+
+_TRANSPARENT = 255  # palette slot reserved for "unchanged since the previous frame"
+
+
+def _check_target(path: Path, force: bool) -> Path:
+    path = Path(path)
+    if path.exists() and not force:
+        raise OutputExistsError(f"{path} exists; pass --force to overwrite it")
+    return path
+
+
+class FixedPalette:
+    """Up to 255 colours and an exact lookup from RGB to palette index.
+
+    Pixels whose colour is in the palette map to it exactly; others (antialiased edges and text)
+    map to the entry nearest the centre of their 5-bit RGB cell.
+    """
+
+    def __init__(self, colours: np.ndarray) -> None:
+        colours = np.unique(np.asarray(colours, dtype=np.uint8).reshape(-1, 3), axis=0)
+        if len(colours) > 255:
+            raise ValueError(
+                "a GIF palette holds at most 255 colours here (one slot is transparency)"
+            )
+        self.colours = colours
+        centres = np.arange(32, dtype=np.float32) * 8 + 3.5
+        cell = np.stack(np.meshgrid(centres, centres, centres, indexing="ij"), -1).reshape(-1, 3)
+        pal = colours.astype(np.float32)
+        nearest = np.empty(len(cell), dtype=np.uint8)
+        for lo in range(0, len(cell), 4096):
+            d = ((cell[lo : lo + 4096, None, :] - pal[None, :, :]) ** 2).sum(-1)
+            nearest[lo : lo + 4096] = np.argmin(d, axis=1)
+        lut = nearest.reshape(32, 32, 32).repeat(8, 0).repeat(8, 1).repeat(8, 2).ravel()
+        keys = (
+            (colours[:, 0].astype(np.int64) << 16)
+            | (colours[:, 1].astype(np.int64) << 8)
+            | colours[:, 2]
+        )
+        lut[keys] = np.arange(len(colours), dtype=np.uint8)
+        self._lut = lut
+
+    @classmethod
+    def for_frame(
+        cls, frame: np.ndarray, exact: Sequence[str] = (), *, n: int = 255
+    ) -> FixedPalette:
+        """Palette of the ``exact`` colours, the frame's frequent colours, and shades for the rest."""
+        from PIL import Image
+
+        flat = frame.reshape(-1, 3)
+        must = [hex_to_rgb8(c) for c in exact]
+        keys = (flat[:, 0].astype(np.int64) << 16) | (flat[:, 1].astype(np.int64) << 8) | flat[:, 2]
+        uniq, counts = np.unique(keys, return_counts=True)
+        frequent = uniq[np.argsort(-counts)][:64]
+        frequent = frequent[counts[np.argsort(-counts)][:64] >= max(50, flat.shape[0] // 20000)]
+        must += [((int(k) >> 16) & 255, (int(k) >> 8) & 255, int(k) & 255) for k in frequent]
+        must_arr = np.unique(np.array(must, dtype=np.uint8).reshape(-1, 3), axis=0)[:n]
+        room = n - len(must_arr)
+        if room > 0:
+            must_keys = (
+                (must_arr[:, 0].astype(np.int64) << 16)
+                | (must_arr[:, 1].astype(np.int64) << 8)
+                | must_arr[:, 2]
+            )
+            rest = flat[~np.isin(keys, must_keys)]
+            if len(rest):
+                img = Image.fromarray(rest[None, :, :])
+                q = img.quantize(
+                    colors=min(room, 256), method=Image.Quantize.MEDIANCUT, dither=Image.Dither.NONE
+                )
+                pal = np.array(q.getpalette()[: 3 * room], dtype=np.uint8).reshape(-1, 3)
+                used = np.unique(np.asarray(q))
+                pal = pal[used[used < len(pal)]]
+                must_arr = np.concatenate([must_arr, pal])[:n]
+        return cls(must_arr)
+
+    def index(self, frame: np.ndarray) -> np.ndarray:
+        """``[H, W]`` uint8 palette indices of an ``[H, W, 3]`` uint8 frame."""
+        f = frame.astype(np.uint32)
+        keys = (f[..., 0] << 16) | (f[..., 1] << 8) | f[..., 2]
+        return self._lut[keys]
+
+    def pillow_palette(self) -> list[int]:
+        pal = np.zeros((256, 3), dtype=np.uint8)
+        pal[: len(self.colours)] = self.colours
+        return pal.ravel().tolist()
+
+
+def write_gif(
+    frames: Iterable[np.ndarray],
+    path: Path | str,
+    *,
+    seconds_per_period: float = 1.0,
+    hold_last: float = 3.0,
+    loop: int = 0,
+    exact_colours: Sequence[str] = (),
+    durations_ms: Sequence[int] | None = None,
+    force: bool = False,
+) -> Path:
+    """Write an animated GIF, one frame at a time, with one fixed palette and no dithering.
+
+    Each frame shows ``seconds_per_period``, the last ``hold_last`` seconds (the stream is read
+    one frame ahead to know which is last). ``durations_ms`` overrides both. ``loop=0`` loops forever. GIF delays are stored
+    in 1/100 s. Returns ``path``.
+    """
+    from PIL import GifImagePlugin, Image
+
+    if seconds_per_period <= 0 or hold_last < 0:
+        raise ConfigError("--seconds-per-period must be > 0 and --hold-last >= 0")
+    path = _check_target(Path(path), force)
+    it = iter(frames)
+    try:
+        current = next(it)
+    except StopIteration:
+        raise ConfigError("no frames to write; the panel has no periods") from None
+    h, w = current.shape[:2]
+    palette: FixedPalette | None = None
+    prev: np.ndarray | None = None
+    written = 0
+    with atomic_path(path) as tmp, open(tmp, "wb") as fp:
+        j = 0
+        while current is not None:
+            try:
+                nxt = next(it)
+            except StopIteration:
+                nxt = None
+            last = nxt is None
+            if durations_ms is not None:
+                dur = int(durations_ms[j])
+            else:
+                dur = int(
+                    round((hold_last if last and hold_last > 0 else seconds_per_period) * 1000)
+                )
+            dur = max(20, int(round(dur / 10.0)) * 10)
+            if palette is None:
+                palette = FixedPalette.for_frame(current, exact_colours)
+            idx = palette.index(current)
+            if prev is None:
+                im = Image.fromarray(idx, mode="P")
+                im.putpalette(palette.pillow_palette())
+                header, _ = GifImagePlugin.getheader(im, None, {"loop": loop})
+                for chunk in header:
+                    fp.write(chunk)
+                for chunk in GifImagePlugin.getdata(im, (0, 0), duration=dur, disposal=1):
+                    fp.write(chunk)
+            else:
+                changed = idx != prev
+                rows = np.flatnonzero(changed.any(axis=1))
+                cols = np.flatnonzero(changed.any(axis=0))
+                if rows.size == 0:  # identical frame: a 1x1 transparent patch keeps the timing
+                    r0, r1, c0, c1 = 0, 1, 0, 1
+                else:
+                    r0, r1, c0, c1 = rows[0], rows[-1] + 1, cols[0], cols[-1] + 1
+                patch = idx[r0:r1, c0:c1].copy()
+                patch[~changed[r0:r1, c0:c1]] = _TRANSPARENT
+                im = Image.fromarray(patch, mode="P")
+                im.putpalette(palette.pillow_palette())
+                for chunk in GifImagePlugin.getdata(
+                    im, (int(c0), int(r0)), duration=dur, disposal=1, transparency=_TRANSPARENT
+                ):
+                    fp.write(chunk)
+            prev = idx
+            written += 1
+            current = nxt
+            j += 1
+        fp.write(b";")
+        fp.flush()
+    size = path.stat().st_size
+    log.info("wrote %s: %d frames, %.2f MB", path, written, size / 1e6)
+    return path
+
+
+def _ffmpeg() -> str:
+    try:
+        import imageio_ffmpeg
+    except ImportError:
+        raise EncoderError(
+            "MP4 needs the imageio-ffmpeg package (pip install imageio-ffmpeg); or write a GIF "
+            "with --out animation.gif"
+        ) from None
+    try:
+        return imageio_ffmpeg.get_ffmpeg_exe()
+    except RuntimeError as exc:
+        raise EncoderError(
+            f"MP4 needs ffmpeg, which was not found ({exc}); install imageio-ffmpeg with its "
+            "bundled binary or set IMAGEIO_FFMPEG_EXE; or write a GIF with --out animation.gif"
+        ) from None
+
+
+def pad_even(frame: np.ndarray, fill: Sequence[int] = (255, 255, 255)) -> np.ndarray:
+    """Pad a frame by one row/column of ``fill`` where its height/width is odd (H.264 needs even)."""
+    h, w = frame.shape[:2]
+    if h % 2 == 0 and w % 2 == 0:
+        return frame
+    out = np.empty((h + h % 2, w + w % 2, 3), dtype=np.uint8)
+    out[:] = np.asarray(fill, dtype=np.uint8)
+    out[:h, :w] = frame
+    return out
+
+
+def write_mp4(
+    frames: Iterable[np.ndarray],
+    path: Path | str,
+    *,
+    fps: int = 10,
+    seconds_per_period: float = 1.0,
+    hold_last: float = 3.0,
+    tween: int = 0,
+    crf: int = 18,
+    pad_colour: Sequence[int] = (255, 255, 255),
+    force: bool = False,
+) -> Path:
+    """Write an H.264 MP4 (yuv420p, +faststart) with each period shown ``seconds_per_period``.
+
+    ``tween`` > 0 cross-fades into the next period over that many frames (taken out of the
+    period's own time). Only two frames are held in memory at a time. Returns ``path``.
+    """
+    if fps < 1 or fps > 120:
+        raise ConfigError(f"--fps {fps} is out of range; use 1 to 120")
+    if seconds_per_period <= 0 or hold_last < 0 or tween < 0:
+        raise ConfigError("--seconds-per-period must be > 0, --hold-last and --tween >= 0")
+    per = max(1, int(round(seconds_per_period * fps)))
+    if tween >= per:
+        raise ConfigError(
+            f"--tween {tween} frames do not fit in one period ({per} frames at --fps {fps} and "
+            f"--seconds-per-period {seconds_per_period:g}); use --tween {max(per - 1, 0)} or less"
+        )
+    exe = _ffmpeg()
+    import imageio_ffmpeg
+
+    path = _check_target(Path(path), force)
+    it = iter(frames)
+    try:
+        current = pad_even(next(it), pad_colour)
+    except StopIteration:
+        raise ConfigError("no frames to write; the panel has no periods") from None
+    h, w = current.shape[:2]
+    n_out = 0
+    n_in = 0
+    with atomic_path(path) as tmp:
+        writer = imageio_ffmpeg.write_frames(
+            str(tmp),
+            (w, h),
+            fps=fps,
+            codec="libx264",
+            pix_fmt_in="rgb24",
+            pix_fmt_out="yuv420p",
+            quality=None,
+            macro_block_size=1,
+            ffmpeg_log_level="error",
+            output_params=["-crf", str(int(crf)), "-preset", "medium", "-movflags", "+faststart"],
+        )
+        try:
+            writer.send(None)
+            while current is not None:
+                n_in += 1
+                try:
+                    nxt = pad_even(next(it), pad_colour)
+                except StopIteration:
+                    nxt = None
+                if nxt is not None and nxt.shape != current.shape:
+                    raise EncoderError(
+                        "frames differ in size; every frame of an MP4 must be the same size"
+                    )
+                hold = per - (tween if nxt is not None else 0)
+                if nxt is None:
+                    hold = max(per, int(round(hold_last * fps)))
+                data = current.tobytes()
+                for _ in range(hold):
+                    writer.send(data)
+                n_out += hold
+                if nxt is not None and tween:
+                    a = current.astype(np.float32)
+                    b = nxt.astype(np.float32)
+                    for t in range(1, tween + 1):
+                        f = t / (tween + 1)
+                        writer.send(np.round(a * (1 - f) + b * f).astype(np.uint8).tobytes())
+                    n_out += tween
+                current = nxt
+            writer.close()
+        except (OSError, RuntimeError) as exc:
+            if isinstance(exc, EncoderError):
+                raise
+            raise EncoderError(f"ffmpeg ({exe}) failed while writing {path}: {exc}") from None
+    size = path.stat().st_size
+    log.info("wrote %s: %d periods, %d video frames, %.2f MB", path, n_in, n_out, size / 1e6)
+    return path
+
+
+def _safe(label: str) -> str:
+    return re.sub(r"[^A-Za-z0-9_.-]+", "-", str(label)).strip("-") or "period"
+
+
+def write_png_frames(
+    frames: Iterable[np.ndarray],
+    folder: Path | str,
+    period_labels: Sequence[str],
+    *,
+    force: bool = False,
+) -> list[Path]:
+    """Write ``frame_000_<period>.png``, ... into ``folder``; returns the paths in order."""
+    from PIL import Image
+
+    folder = Path(folder)
+    names = [folder / f"frame_{j:03d}_{_safe(p)}.png" for j, p in enumerate(period_labels)]
+    if not force:
+        for p in names:
+            if p.exists():
+                raise OutputExistsError(
+                    f"{p} exists; pass --force to overwrite the frames in {folder}"
+                )
+    folder.mkdir(parents=True, exist_ok=True)
+    out: list[Path] = []
+    for p, frame in zip(names, frames):
+        with atomic_path(p) as tmp:
+            Image.fromarray(frame).save(tmp, format="PNG", compress_level=6)
+        out.append(p)
+    return out

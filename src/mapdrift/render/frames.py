@@ -1,0 +1,387 @@
+"""Frames of an animated choropleth: rasterise once, draw the furniture once, composite per period.
+
+:class:`FrameRenderer` prepares, once per animation: the label raster (unit per pixel, with
+sub-pixel edge detail), the static furniture as an antialiased RGBA overlay (title, legend
+swatches and ranges, boundaries, scale bar, timeline rule, caption, notice), the no-data hatching
+pattern, and one transparent matplotlib figure holding the few per-period artists. A frame is
+then ``colour_of_class[code_of_unit[label]]`` plus two alpha composites: its cost depends on the
+pixel count only, not on the number of polygons.
+
+Codes: ``codes[:, j]`` is each unit's category in period ``j`` (0..k-1), ``-1`` = no data, drawn
+as the hatched no-data swatch. Colours are by category index, never by which categories happen
+to be present, so every frame shares one legend.
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Iterator, Sequence
+from typing import Any
+
+import numpy as np
+
+from mapdrift.colour import hex_to_rgb8
+from mapdrift.errors import ConfigError
+from mapdrift.findings import Finding
+from mapdrift.palettes import NODATA, NODATA_HATCH
+from mapdrift.render import layout as lay
+from mapdrift.render.raster import LabelRaster, metres_per_unit
+
+__all__ = ["FrameRenderer", "render_frames", "unit_rings_px"]
+
+log = logging.getLogger(__name__)
+
+
+def unit_rings_px(geoms: Any, transform: Any) -> tuple[list[np.ndarray], np.ndarray]:
+    """Every ring of every unit as an ``[m, 2]`` array of frame pixel coordinates, and its unit."""
+    import shapely
+
+    geoms = np.asarray(geoms, dtype=object)
+    parts, part_of = shapely.get_parts(geoms, return_index=True)
+    rings, ring_part = shapely.get_rings(parts, return_index=True)
+    if len(rings) == 0:
+        return [], np.zeros(0, dtype=np.int64)
+    coords, ring_of = shapely.get_coordinates(rings, return_index=True)
+    cx, cy = transform.to_pixels(coords[:, 0], coords[:, 1])
+    xy = np.column_stack([cx + transform.left, cy + transform.top])
+    cuts = np.flatnonzero(np.diff(ring_of)) + 1
+    return np.split(xy, cuts), part_of[ring_part]
+
+
+def _hatch_alpha(h: int, w: int, spacing: float, width: float) -> np.ndarray:
+    """Antialiased diagonal lines (rising to the right), alpha 0..1, aligned to the frame origin."""
+    yy, xx = np.mgrid[0:h, 0:w].astype(np.float32)
+    u = np.mod(xx + 0.5 + (h - yy - 0.5), spacing)
+    dist = np.minimum(u, spacing - u) / np.float32(np.sqrt(2.0))
+    return np.clip(width / 2 + 0.5 - dist, 0.0, 1.0).astype(np.float32)
+
+
+def _rgba(fig: Any) -> np.ndarray:
+    fig.canvas.draw()
+    return np.asarray(fig.canvas.buffer_rgba())
+
+
+class FrameRenderer:
+    """Renders the frames of one animation; every frame has the same layout, extent and legend.
+
+    ``geometry`` is a GeoSeries (or a sequence of shapely polygons with ``crs`` given) in a
+    projected CRS; ``codes`` is ``[n_units, n_periods]`` int (-1 = no data); ``colours`` one hex
+    per category; ``labels`` the legend text per category (or one tuple per period when breaks
+    differ by period). ``outlines`` optionally gives, per period, unit indices to outline (with
+    their ``names`` listed as callouts); ``units`` are the IDs named in findings. ``min_unit_px`` draws units smaller than that many
+    pixels across as dots. ``findings`` reports vanishing units and similar.
+    """
+
+    def __init__(
+        self,
+        geometry: Any,
+        codes: np.ndarray,
+        colours: Sequence[str],
+        labels: Sequence[str] | Sequence[Sequence[str]],
+        period_labels: Sequence[str],
+        *,
+        title: str = "",
+        subtitle: str = "",
+        caption: str = "",
+        notice: str | None = None,
+        legend_title: str = "",
+        nodata_label: str = "no data",
+        outlines: Sequence[Sequence[int]] | None = None,
+        outline_label: str = "",
+        names: Sequence[str] | None = None,
+        units: Sequence[str] | None = None,
+        size: tuple[int, int] = (1280, 720),
+        counts: bool = True,
+        timeline: bool = True,
+        north_arrow: bool = False,
+        scale_units: str = "km",
+        min_unit_px: float = 0.0,
+        supersample: int = 3,
+        crs: Any = None,
+        show_period: bool = True,
+    ) -> None:
+        codes = np.asarray(codes)
+        if codes.ndim == 1:
+            codes = codes[:, None]
+        n_units, n_periods = codes.shape
+        if len(geometry) != n_units:
+            raise ConfigError(
+                f"codes have {n_units} units but the geometry has {len(geometry)} polygons"
+            )
+        if len(period_labels) != n_periods:
+            raise ConfigError(
+                f"codes have {n_periods} periods but {len(period_labels)} period labels were given"
+            )
+        k = len(colours)
+        if codes.size and int(codes.max(initial=-1)) >= k:
+            raise ConfigError(f"codes go up to {int(codes.max())} but only {k} colours were given")
+        if outlines is not None and len(outlines) != n_periods:
+            raise ConfigError(
+                f"outlines need one list of units per period ({n_periods}), got {len(outlines)}"
+            )
+        w, h = int(size[0]), int(size[1])
+        if w < 200 or h < 150:
+            raise ConfigError(
+                f"frame size {w}x{h} is too small; use at least 200x150 (e.g. --size 1280x720)"
+            )
+        labels_t = _labels_per_period(labels, k, n_periods)
+        self.codes = codes.astype(np.int16)
+        self.colours = tuple(colours)
+        self.chrome = lay.Chrome(
+            colours=self.colours,
+            labels=labels_t,
+            period_labels=tuple(str(p) for p in period_labels),
+            title=title,
+            subtitle=subtitle,
+            caption=caption,
+            notice=notice,
+            legend_title=legend_title,
+            nodata_label=nodata_label,
+            counts=counts,
+            timeline=timeline,
+            north_arrow=north_arrow,
+            scale_units=scale_units,
+            outline_label=outline_label if outlines is not None else "",
+            callouts=names is not None,
+            show_period=show_period,
+        )
+        self.outlines = outlines
+        self.names = tuple(names) if names is not None else None
+        geoms = np.asarray(getattr(geometry, "values", geometry), dtype=object)
+        crs = crs if crs is not None else getattr(geometry, "crs", None)
+        self.metres_per_unit = metres_per_unit(crs)
+        import shapely
+
+        bounds = tuple(shapely.total_bounds(geoms))
+        if not np.all(np.isfinite(bounds)):
+            raise ConfigError("the geometry is empty; nothing to map")
+        self.layout = lay.plan((w, h), self.chrome, bounds, self.metres_per_unit)
+        tr = self.layout.transform
+        ids = [
+            str(u)
+            for u in (
+                units if units is not None else names if names is not None else range(n_units)
+            )
+        ]
+        self.raster = LabelRaster.build(
+            geoms, tr, ss=supersample, min_unit_px=min_unit_px, unit_ids=ids, size_text=f"{w}x{h}"
+        )
+        self.findings: tuple[Finding, ...] = self.raster.findings
+        self._min_unit_px = float(min_unit_px)
+        self._rings, self._ring_unit = unit_rings_px(geoms, tr)
+        self._ring_start = np.searchsorted(self._ring_unit, np.arange(n_units + 1))
+        self._ring_sorted = bool(np.all(np.diff(self._ring_unit) >= 0))
+        self._class_rgb = np.array(
+            [hex_to_rgb8(c) for c in self.colours] + [hex_to_rgb8(NODATA)], dtype=np.uint8
+        )
+        self._paper = np.array(hex_to_rgb8(lay.PAPER), dtype=np.uint8)
+        self._prepare_static()
+        self._fig, ax = lay.new_figure(self.layout, transparent=True)
+        self._dyn = lay.DynamicArtists(ax, self.layout, self.chrome)
+
+    # -- preparation -----------------------------------------------------------------------
+    def _boundary_width(self) -> float | None:
+        area = self.raster.area_px[self.raster.area_px > 0]
+        med = float(np.median(area)) if area.size else 0.0
+        if med < 12:
+            return None  # boundaries would drown the colours; the fill edges are antialiased
+        return float(np.clip(0.06 * np.sqrt(med), 0.25, 0.8) * max(self.layout.s, 0.6))
+
+    def _prepare_static(self) -> None:
+        L, tr = self.layout, self.layout.transform
+        fig, ax = lay.new_figure(L, transparent=True)
+        bw = self._boundary_width()
+        lay.draw_static(
+            ax,
+            L,
+            self.chrome,
+            boundaries=self._rings if bw else None,
+            boundary_width=bw or 0.0,
+            nodata_hatch=False,
+            dots=self.raster.dot_centres,
+            dot_px=self._min_unit_px,
+        )
+        over = _rgba(fig).astype(np.float32) / 255.0
+        fig.clear()
+        alpha = over[..., 3:4]
+        hatch = _hatch_alpha(
+            L.height, L.width, spacing=max(6.0 * L.s, 4.0), width=max(1.3 * L.s, 1.0)
+        )
+        # base frame: paper, the no-data swatch hatched exactly as on the map, furniture on top
+        base = np.empty((L.height, L.width, 3), dtype=np.float32)
+        base[:] = self._paper / 255.0
+        x, y, sw, sh = (int(round(v)) for v in lay.swatch_box(L, lay.nodata_row(self.chrome)))
+        nod = np.array(hex_to_rgb8(NODATA), np.float32) / 255.0
+        hat = np.array(hex_to_rgb8(NODATA_HATCH), np.float32) / 255.0
+        a = hatch[y : y + sh, x : x + sw, None]
+        base[y : y + sh, x : x + sw] = nod * (1 - a) + hat * a
+        base = base * (1 - alpha) + over[..., :3] * alpha
+        self._base = np.round(base * 255).astype(np.uint8)
+        # over the map box: only pixels the overlay touches are composited per frame
+        sl = (slice(tr.top, tr.top + tr.height), slice(tr.left, tr.left + tr.width))
+        a_map = alpha[sl][..., 0].ravel()
+        self._ov_idx = np.flatnonzero(a_map > 0)
+        self._ov_a = a_map[self._ov_idx, None].astype(np.float32)
+        self._ov_c = (over[sl][..., :3].reshape(-1, 3)[self._ov_idx] * self._ov_a * 255.0).astype(
+            np.float32
+        )
+        h_map = hatch[sl].ravel()
+        self._hatch_idx = np.flatnonzero(h_map > 0)
+        self._hatch_a = h_map[self._hatch_idx, None]
+        self._hatch_rgb = (nod * (1 - self._hatch_a) + hat * self._hatch_a) * 255.0
+        self._map_slice = sl
+
+    # -- frames ------------------------------------------------------------------------------
+    @property
+    def n_frames(self) -> int:
+        return self.codes.shape[1]
+
+    @property
+    def size(self) -> tuple[int, int]:
+        return self.layout.width, self.layout.height
+
+    @property
+    def exact_colours(self) -> list[str]:
+        """Colours that must survive encoding unchanged (classes, no data, furniture)."""
+        return [
+            *self.colours,
+            NODATA,
+            NODATA_HATCH,
+            lay.PAPER,
+            lay.TEXT,
+            lay.MUTED,
+            lay.FAINT,
+            lay.RULE,
+            lay.BOUNDARY,
+            lay.OUTLINE,
+            lay.NOTICE_FG,
+            lay.NOTICE_BG,
+        ]
+
+    def class_counts(self, j: int) -> tuple[np.ndarray, int]:
+        """Units per category in period ``j`` (length k) and the no-data count."""
+        c = self.codes[:, j]
+        return np.bincount(c[c >= 0], minlength=len(self.colours)), int((c < 0).sum())
+
+    def map_image(self, j: int) -> np.ndarray:
+        """The map box of period ``j`` (fill, hatching, boundaries), ``[h, w, 3]`` uint8."""
+        c = self.codes[:, j].astype(np.int64)
+        unit_rgb = self._class_rgb[np.where(c < 0, len(self.colours), c)]
+        img = np.ascontiguousarray(self.raster.colourise(unit_rgb, self._paper))
+        flat = img.reshape(-1, 3)
+        nod = c < 0
+        if nod.any() and self._hatch_idx.size:
+            flag = np.zeros(len(c) + 1, dtype=bool)
+            flag[1:] = nod
+            lab = self.raster.label.ravel()[self._hatch_idx] + 1
+            sel = flag[lab]
+            flat[self._hatch_idx[sel]] = np.round(self._hatch_rgb[sel]).astype(np.uint8)
+        if self._ov_idx.size:
+            px = flat[self._ov_idx].astype(np.float32)
+            flat[self._ov_idx] = (px * (1 - self._ov_a) + self._ov_c + 0.5).astype(np.uint8)
+        return img
+
+    def frame(self, j: int) -> np.ndarray:
+        """Frame of period ``j`` as ``[height, width, 3]`` uint8 (a new array)."""
+        out = self._base.copy()
+        out[self._map_slice] = self.map_image(j)
+        counts, nodata = self.class_counts(j)
+        segs: list[np.ndarray] = []
+        call: list[str] = []
+        n_out = 0
+        if self.outlines is not None:
+            units = np.unique(np.asarray(list(self.outlines[j]), dtype=np.int64))
+            n_out = units.size
+            segs = self._segments(units)
+            if self.names is not None:
+                call = [self.names[u] for u in units]
+        self._dyn.update(j, counts, nodata, outlines=segs, callouts=call, n_outlined=n_out)
+        dyn = _rgba(self._fig)
+        a = dyn[..., 3]
+        idx = np.flatnonzero(a.ravel())
+        if idx.size:
+            flat = out.reshape(-1, 3)
+            al = a.ravel()[idx, None].astype(np.uint16)
+            src = dyn[..., :3].reshape(-1, 3)[idx].astype(np.uint16)
+            flat[idx] = ((src * al + flat[idx].astype(np.uint16) * (255 - al) + 127) // 255).astype(
+                np.uint8
+            )
+        return out
+
+    def _segments(self, units: np.ndarray) -> list[np.ndarray]:
+        if self._ring_sorted:
+            return [
+                self._rings[i]
+                for u in units
+                for i in range(self._ring_start[u], self._ring_start[u + 1])
+            ]
+        want = set(int(u) for u in units)
+        return [r for r, u in zip(self._rings, self._ring_unit) if int(u) in want]
+
+    def __iter__(self) -> Iterator[np.ndarray]:
+        for j in range(self.n_frames):
+            yield self.frame(j)
+
+    def close(self) -> None:
+        """Release the matplotlib figure."""
+        self._fig.clear()
+
+
+def _labels_per_period(labels: Any, k: int, n_periods: int) -> tuple[tuple[str, ...], ...]:
+    labels = list(labels)
+    if labels and not isinstance(labels[0], str):
+        per = tuple(tuple(str(x) for x in row) for row in labels)
+        if len(per) == 1:
+            per = per
+        elif len(per) != n_periods:
+            raise ConfigError(
+                f"per-period labels need one list per period ({n_periods}), got {len(per)}"
+            )
+    else:
+        per = (tuple(str(x) for x in labels),)
+    for row in per:
+        if len(row) != k:
+            raise ConfigError(f"{len(row)} legend labels for {k} colours; give one label per class")
+    return per
+
+
+def render_frames(
+    geometry: Any,
+    codes_2d: np.ndarray,
+    colours: Sequence[str],
+    labels: Sequence[str] | Sequence[Sequence[str]],
+    period_labels: Sequence[str],
+    *,
+    title: str = "",
+    subtitle: str = "",
+    caption: str = "",
+    notice: str | None = None,
+    outlines: Sequence[Sequence[int]] | None = None,
+    size: tuple[int, int] = (1280, 720),
+    **kwargs: Any,
+) -> Iterator[np.ndarray]:
+    """Stream the frames (``[H, W, 3]`` uint8, one per period) of an animated map.
+
+    A thin generator over :class:`FrameRenderer` (see there for the arguments); frames are
+    made one at a time so an encoder never needs them all in memory.
+    """
+    r = FrameRenderer(
+        geometry,
+        codes_2d,
+        colours,
+        labels,
+        period_labels,
+        title=title,
+        subtitle=subtitle,
+        caption=caption,
+        notice=notice,
+        outlines=outlines,
+        size=size,
+        **kwargs,
+    )
+    for f in r.findings:
+        log.warning("%s", f.message)
+    try:
+        yield from r
+    finally:
+        r.close()
