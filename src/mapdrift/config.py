@@ -85,6 +85,8 @@ SECTIONS: dict[str, str] = {
     "run": "mapdrift.config:RunSpec",
     "inputs": "mapdrift.panel:InputSpec",
     "classes": "mapdrift.config:ClassSpec",
+    "changes": "mapdrift.changes:ChangeOptions",
+    "clusters": "mapdrift.clusters:ClusterOptions",
     "brief": "mapdrift.config:BriefSpec",
 }
 
