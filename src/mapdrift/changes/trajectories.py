@@ -12,7 +12,8 @@ unbridged gap or with a no-data cell is never a move):
   back of at least ``jump`` classes from the landing class (``2-5-2``, ``2-5-5-3`` with a window
   of 2): often a data error worth checking.
 - ``persistent-top`` / ``persistent-bottom``: in the highest / lowest class in each of the last
-  ``persist`` periods (no data in any of them -> not flagged).
+  ``persist`` periods (no data in any of them, or fewer periods than ``persist`` -> not
+  flagged).
 """
 
 from __future__ import annotations
@@ -169,11 +170,13 @@ def unit_changes(
     down = np.bincount(ju[jmove < 0], minlength=n_u) > 0
     unit_spike = np.bincount(ju[spike], minlength=n_u) > 0
 
-    persist = min(persist, n_p)
-    tail = codes[:, n_p - persist :]
-    top_tail = np.asarray(top, dtype=np.int64)[n_p - persist :]
-    p_top = (tail == top_tail).all(axis=1)
-    p_bottom = (tail == 0).all(axis=1)
+    if persist <= n_p:
+        tail = codes[:, n_p - persist :]
+        top_tail = np.asarray(top, dtype=np.int64)[n_p - persist :]
+        p_top = (tail == top_tail).all(axis=1)
+        p_bottom = (tail == 0).all(axis=1)
+    else:  # fewer periods than the window: nobody can have persisted that long
+        p_top = p_bottom = np.zeros(n_u, dtype=bool)
 
     flag = flag_codes(unit_spike, up, down, p_top, p_bottom, (codes >= 0).any(axis=1))
     texts = _flag_texts(
