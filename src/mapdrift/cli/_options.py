@@ -78,6 +78,7 @@ _INPUT_PARAMS = [
         Optional[Path],
         typer.Argument(
             None,
+            metavar="GEOMETRY",
             help="Polygon layer: GeoPackage, GeoJSON, Shapefile, FlatGeobuf or GeoParquet.",
             show_default=False,
         ),
@@ -87,6 +88,7 @@ _INPUT_PARAMS = [
         Optional[Path],
         typer.Argument(
             None,
+            metavar="TABLE",
             help="Values table (CSV/TSV, Parquet, .xlsx). Without it the values are columns of the layer.",
             show_default=False,
         ),
