@@ -17,19 +17,6 @@ from mapdrift.cli._app import command
 from mapdrift.cli._options import class_options, input_options
 from mapdrift.cli._print import echo, print_findings
 
-#: Colours of the flagged-units map, in the order of ``mapdrift.changes.FLAG_LABELS``.
-FLAG_COLOURS: tuple[str, ...] = (
-    "#c51b7d",  # spike (check data)
-    "#7b3294",  # jumps up and down
-    "#e66101",  # jump up
-    "#3b6fb6",  # jump down
-    "#1b7837",  # persistent top
-    "#a6dba0",  # persistent bottom
-    "#f4f4f4",  # no flag
-)
-
-PICTURES = ("transition_heatmap.png", "class_flow.png", "change_map.png", "flagged_units.png")
-
 
 class Relative(str, Enum):
     mean = "mean"
@@ -43,94 +30,6 @@ def _options(config: Any, overrides: dict[str, Any]) -> Any:
     # the [changes] section, when the config has one, maps onto ChangeOptions; flags win
     from_config = config.section("changes") if config is not None else {}
     return merge(ChangeOptions, from_config, overrides)
-
-
-def draw_pictures(result: Any, panel: Any, out: Path, *, force: bool = False) -> list[Path]:
-    """Heatmap, first-to-last flow, change map and flagged-units map from ``result``."""
-    from mapdrift import palettes
-    from mapdrift.changes import FLAG_LABELS, change_categories
-    from mapdrift.render.static import static_map
-    from mapdrift.render.transition_charts import class_flow, transition_heatmap
-
-    tr = result.transitions
-    per = result.period_labels
-    first, last = per[0], per[-1]
-    var = panel.meta.variable
-    source = panel.meta.source
-    notice = result.warning
-    k = len(result.labels)
-    written = []
-    pooled = f"all {len(tr.steps)} steps between consecutive periods pooled"
-    if tr.skipped_steps:
-        pooled += f" ({len(tr.skipped_steps)} across gaps left out)"
-    written.append(
-        transition_heatmap(
-            tr.counts,
-            result.labels,
-            out / "transition_heatmap.png",
-            title=f"{var}: class transitions, {first} to {last}",
-            subtitle=f"{tr.n_pairs:,} unit steps; {pooled}",
-            caption=source,
-            notice=notice,
-        )
-    )
-    colours = palettes.colours_for(k)
-    written.append(
-        class_flow(
-            tr.first_last,
-            result.labels,
-            colours,
-            out / "class_flow.png",
-            first_label=first,
-            last_label=last,
-            title=f"{var}: where units moved, {first} to {last}",
-            subtitle="Share of units per class in the first and the last period",
-            caption=source,
-            notice=notice,
-        )
-    )
-    codes, labels = change_categories(result.net_change, k)
-    written.append(
-        static_map(
-            panel.geometry,
-            codes,
-            palettes.diverging(len(labels)),
-            labels,
-            out / "change_map.png",
-            title=f"{var}: class change, {first} to {last}",
-            subtitle=f"Classes moved between {first} and {last} (same breaks in both)",
-            caption=source,
-            legend_title="net change",
-            nodata_label=f"no data in {first} or {last}",
-            notice=notice,
-            force=force,
-        )
-    )
-    opts = result.options
-    written.append(
-        static_map(
-            panel.geometry,
-            result.flag,
-            list(FLAG_COLOURS),
-            list(FLAG_LABELS),
-            out / "flagged_units.png",
-            title=f"{var}: units to look at",
-            subtitle=(
-                f"jump = {opts.jump}+ classes in one step; spike = jumped and came back within "
-                f"{opts.spike_window} periods; persistent = top or bottom class in each of the "
-                f"last {opts.persist} periods"
-            ),
-            caption=(
-                "Each unit shows the first of its flags in the legend's order; all flags are in "
-                "units.csv and every jump in jumps.csv." + (f" {source}" if source else "")
-            ),
-            legend_title="flag",
-            nodata_label="no data",
-            notice=notice,
-            force=force,
-        )
-    )
-    return written
 
 
 @command("changes")
@@ -187,6 +86,7 @@ def changes(
     jumps.csv, units.csv and more into --out, plus a transition heatmap, a flow of class shares
     from the first to the last period, a change map and a map of flagged units.
     """
+    from mapdrift.brief.pictures import CHANGE_PICTURES, change_pictures
     from mapdrift.changes import analyse_changes, relative_panel, write_changes
     from mapdrift.changes.io import check_outputs, output_names
     from mapdrift.cli.breaks import classify_from_spec
@@ -204,7 +104,7 @@ def changes(
             "spatial": spatial,
         },
     )
-    names = output_names(spatial=options.spatial) + (list(PICTURES) if pictures else [])
+    names = output_names(spatial=options.spatial) + (list(CHANGE_PICTURES) if pictures else [])
     check_outputs(out, names, force)  # before any work
     panel = load_panel(inputs)
     if options.relative:
@@ -213,7 +113,7 @@ def changes(
     result = analyse_changes(panel, cls, options)
     written = write_changes(result, out, force=True)
     if pictures:
-        written += draw_pictures(result, panel, out, force=True)  # checked above
+        written += change_pictures(result, panel, out, force=True)  # checked above
 
     tr = result.transitions
     per = result.period_labels

@@ -115,14 +115,14 @@ def clusters(
         config.section("clusters") if config is not None and hasattr(config, "section") else {}
     )
     options = merge(ClusterOptions, from_config, flags)
-    from mapdrift.cli._cluster_maps import MAP_FILES, draw_maps
+    from mapdrift.brief.pictures import CLUSTER_PICTURES, cluster_pictures
 
-    check_free([out / n for n in (*_table_names(), *(MAP_FILES if maps else ()))], force)
+    check_free([out / n for n in (*_table_names(), *(CLUSTER_PICTURES if maps else ()))], force)
     panel = load_panel(inputs)
     result = analyse_clusters(panel, None, options)
     written = write_clusters(result, out, force=force)
     if maps:
-        written += draw_maps(result, panel, out)
+        written += cluster_pictures(result, panel, out, force=True)  # checked above
     g = result.global_moran
     echo(
         f"{options.statistic}, {result.weights.kind} weights, {options.permutations} permutations, seed {options.seed}"
