@@ -52,11 +52,10 @@ class FixedPalette:
         self.colours = colours
         centres = np.arange(32, dtype=np.float32) * 8 + 3.5
         cell = np.stack(np.meshgrid(centres, centres, centres, indexing="ij"), -1).reshape(-1, 3)
-        pal = colours.astype(np.float32)
-        nearest = np.empty(len(cell), dtype=np.uint8)
-        for lo in range(0, len(cell), 4096):
-            d = ((cell[lo : lo + 4096, None, :] - pal[None, :, :]) ** 2).sum(-1)
-            nearest[lo : lo + 4096] = np.argmin(d, axis=1)
+        from scipy.spatial import cKDTree
+
+        _, nearest = cKDTree(colours.astype(np.float64)).query(cell.astype(np.float64))
+        nearest = nearest.astype(np.uint8)
         lut = nearest.reshape(32, 32, 32).repeat(8, 0).repeat(8, 1).repeat(8, 2).ravel()
         keys = (
             (colours[:, 0].astype(np.int64) << 16)

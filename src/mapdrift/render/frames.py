@@ -187,6 +187,16 @@ class FrameRenderer:
             return None  # boundaries would drown the colours; the fill edges are antialiased
         return float(np.clip(0.06 * np.sqrt(med), 0.25, 0.8) * max(self.layout.s, 0.6))
 
+    def _visible_rings(self) -> list[np.ndarray]:
+        # rings under 2 px across are noise at this size (and would cover the dots of tiny units)
+        if not self._rings:
+            return []
+        xy = np.concatenate(self._rings)
+        starts = np.r_[0, np.cumsum([len(r) for r in self._rings])[:-1]]
+        span = np.maximum.reduceat(xy, starts) - np.minimum.reduceat(xy, starts)
+        keep = np.flatnonzero(span.max(axis=1) >= 2.0)
+        return [self._rings[i] for i in keep]
+
     def _prepare_static(self) -> None:
         L, tr = self.layout, self.layout.transform
         fig, ax = lay.new_figure(L, transparent=True)
@@ -195,7 +205,7 @@ class FrameRenderer:
             ax,
             L,
             self.chrome,
-            boundaries=self._rings if bw else None,
+            boundaries=self._visible_rings() if bw else None,
             boundary_width=bw or 0.0,
             nodata_hatch=False,
             dots=self.raster.dot_centres,
@@ -221,10 +231,11 @@ class FrameRenderer:
         sl = (slice(tr.top, tr.top + tr.height), slice(tr.left, tr.left + tr.width))
         a_map = alpha[sl][..., 0].ravel()
         self._ov_idx = np.flatnonzero(a_map > 0)
-        self._ov_a = a_map[self._ov_idx, None].astype(np.float32)
-        self._ov_c = (over[sl][..., :3].reshape(-1, 3)[self._ov_idx] * self._ov_a * 255.0).astype(
-            np.float32
-        )
+        a_sel = a_map[self._ov_idx, None]
+        c_sel = over[sl][..., :3].reshape(-1, 3)[self._ov_idx]
+        # integer compositing: out = (px * (256 - a) + c * a) >> 8, a and c * a in 1/256 steps
+        self._ov_a = np.round(a_sel * 256).astype(np.uint16)
+        self._ov_c = np.round(c_sel * a_sel * 255 * 256).astype(np.uint16)
         h_map = hatch[sl].ravel()
         self._hatch_idx = np.flatnonzero(h_map > 0)
         self._hatch_a = h_map[self._hatch_idx, None]
@@ -277,8 +288,10 @@ class FrameRenderer:
             sel = flag[lab]
             flat[self._hatch_idx[sel]] = np.round(self._hatch_rgb[sel]).astype(np.uint8)
         if self._ov_idx.size:
-            px = flat[self._ov_idx].astype(np.float32)
-            flat[self._ov_idx] = (px * (1 - self._ov_a) + self._ov_c + 0.5).astype(np.uint8)
+            px = flat[self._ov_idx].astype(np.uint16)
+            flat[self._ov_idx] = ((px * (256 - self._ov_a) + self._ov_c + 128) >> 8).astype(
+                np.uint8
+            )
         return img
 
     def frame(self, j: int) -> np.ndarray:

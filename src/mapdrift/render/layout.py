@@ -638,7 +638,9 @@ class DynamicArtists:
             self.current.set_text(chrome.period_labels[j])
         self.outlines.set_segments(list(outlines))
         if chrome.callouts and callouts:
-            shown = list(callouts[:8])
+            line_h = 10.5 * layout.s * 1.3 * 1.2
+            room = int((layout.panel_bottom - layout.callout_top) / line_h) - 2
+            shown = list(callouts[: max(min(room, 8), 0)])
             more = max(n_outlined, len(callouts)) - len(shown)
             head = chrome.outline_label or "outlined"
             text = (
