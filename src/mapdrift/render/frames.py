@@ -24,6 +24,7 @@ from mapdrift.colour import hex_to_rgb8
 from mapdrift.errors import ConfigError
 from mapdrift.findings import Finding
 from mapdrift.palettes import NODATA, NODATA_HATCH
+from mapdrift.render import furniture as fur
 from mapdrift.render import layout as lay
 from mapdrift.render.raster import LabelRaster, metres_per_unit
 
@@ -177,7 +178,7 @@ class FrameRenderer:
         self._paper = np.array(hex_to_rgb8(lay.PAPER), dtype=np.uint8)
         self._prepare_static()
         self._fig, ax = lay.new_figure(self.layout, transparent=True)
-        self._dyn = lay.DynamicArtists(ax, self.layout, self.chrome)
+        self._dyn = fur.DynamicArtists(ax, self.layout, self.chrome)
 
     # -- preparation -----------------------------------------------------------------------
     def _boundary_width(self) -> float | None:
@@ -201,7 +202,7 @@ class FrameRenderer:
         L, tr = self.layout, self.layout.transform
         fig, ax = lay.new_figure(L, transparent=True)
         bw = self._boundary_width()
-        lay.draw_static(
+        fur.draw_static(
             ax,
             L,
             self.chrome,

@@ -17,6 +17,7 @@ import numpy as np
 from mapdrift.atomic import atomic_path
 from mapdrift.errors import ConfigError, OutputExistsError
 from mapdrift.palettes import NODATA, NODATA_HATCH
+from mapdrift.render import furniture as fur
 from mapdrift.render import layout as lay
 
 __all__ = ["add_vector_map", "static_map", "unit_paths"]
@@ -204,8 +205,8 @@ def _vector(r: Any, geometry: Any, path: Path, outline_units: Sequence[int] | No
         outline_units=outline_units,
         outline_width=1.7 * L.s,
     )
-    lay.draw_static(ax, L, r.chrome, nodata_hatch=True)
-    dyn = lay.DynamicArtists(ax, L, r.chrome)
+    fur.draw_static(ax, L, r.chrome, nodata_hatch=True)
+    dyn = fur.DynamicArtists(ax, L, r.chrome)
     counts, nodata = r.class_counts(0)
     call = (
         [r.names[int(u)] for u in outline_units] if (r.names and outline_units is not None) else []
