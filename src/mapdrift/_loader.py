@@ -110,6 +110,23 @@ def _long_from_wide(
     return out.rename(columns={id_col: "id"}).fillna("")
 
 
+def _append_tables(df: pd.DataFrame, first: Path, more: tuple[Path, ...]) -> pd.DataFrame:
+    """Stack further tables (e.g. next year's release) below the first; columns must agree."""
+    import pandas as pd
+
+    parts = [df]
+    for path in more:
+        extra = read_table(path)
+        missing = [c for c in df.columns if c not in extra.columns]
+        if missing:
+            raise InputError(
+                f"{path}: appended table lacks columns of {first.name}: {examples(missing)}; "
+                "appended tables need the same columns"
+            )
+        parts.append(extra[list(df.columns)])
+    return pd.concat(parts, ignore_index=True)
+
+
 def detect_zero_block(
     values: np.ndarray,
     units: tuple[str, ...],
@@ -231,6 +248,8 @@ def load(spec: InputSpec) -> Panel:
     if spec.table is not None:
         tpath = spec.table
         df = read_table(tpath)
+        if spec.append:
+            df = _append_tables(df, tpath, spec.append)
         t_id = _column(
             df, spec.table_id or id_col, tpath, "--table-id" if spec.table_id else "--id"
         )
@@ -484,7 +503,7 @@ def load(spec: InputSpec) -> Panel:
     )
     unit_label = spec.unit_label or (f"per {spec.per:,g} {spec.denominator}" if roles else "")
     geometry = gdf.geometry.reset_index(drop=True)
-    inputs = tuple(p for p in (gpath, spec.table, spec.crosswalk) if p is not None)
+    inputs = tuple(p for p in (gpath, spec.table, *spec.append, spec.crosswalk) if p is not None)
     log.info("loaded %d units x %d periods from %s", len(layer_ids), len(periods), examples(inputs))
     return Panel(
         units=tuple(layer_ids),

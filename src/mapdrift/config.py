@@ -85,6 +85,7 @@ SECTIONS: dict[str, str] = {
     "run": "mapdrift.config:RunSpec",
     "inputs": "mapdrift.panel:InputSpec",
     "classes": "mapdrift.config:ClassSpec",
+    "animate": "mapdrift.render.animation:AnimateOptions",
     "changes": "mapdrift.changes:ChangeOptions",
     "clusters": "mapdrift.clusters:ClusterOptions",
     "brief": "mapdrift.config:BriefSpec",
@@ -100,6 +101,16 @@ class Config:
 
     def section(self, name: str) -> dict[str, Any]:
         return dict(self.sections.get(name, {}))
+
+    def with_values(self, section: str, values: Mapping[str, Any]) -> Config:
+        """A copy with ``values`` (non-None ones) set in ``section``: flags overriding keys."""
+        given = {k: v for k, v in values.items() if v is not None}
+        if not given:
+            return self
+        checked = section_from_dict(section, given)
+        sections = {k: dict(v) for k, v in self.sections.items()}
+        sections.setdefault(section, {}).update(checked)
+        return Config(path=self.path, sections=sections)
 
 
 def _line_of(text: str, section: str | None, key: str) -> int | None:
@@ -143,7 +154,12 @@ def _coerce(value: Any, tp: Any, base: Path | None) -> Any:
     if origin is tuple:
         (item, *_rest) = typing.get_args(tp) or (Any,)
         if isinstance(value, str) and item in (float, int):
-            value = [v for v in value.split(",") if v.strip()]
+            # "0,2,5,10" for break values; "1280x720" for sizes
+            value = [v for v in re.split(r"[,x]", value) if v.strip()]
+            try:
+                value = [item(v) for v in value]
+            except ValueError:
+                raise TypeError(f"a list of {_type_name(item)}") from None
         if not isinstance(value, list | tuple):
             raise TypeError(f"a list of {_type_name(item)}")
         return tuple(_coerce(v, item, base) for v in value)

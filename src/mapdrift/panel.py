@@ -182,7 +182,8 @@ class InputSpec:
     pattern such as ``rate_*`` (the period is parsed from the rest of the name); with neither,
     columns whose names carry a year are used. ``numerator``/``denominator`` turn counts into
     rates ``per`` so many (patterns such as ``filings_*`` for wide tables). ``crosswalk`` (a
-    from, to, weight table) moves the values onto the layer's boundary vintage first.
+    from, to, weight table) moves the values onto the layer's boundary vintage first. ``append``
+    names more tables of the same columns to add below ``table`` (e.g. next year's release).
     """
 
     geometry: Path
@@ -207,8 +208,10 @@ class InputSpec:
     unit_label: str | None = None
     source: str | None = None
     crosswalk: Path | None = None
+    append: tuple[Path, ...] = ()
 
     def __post_init__(self) -> None:
+        object.__setattr__(self, "append", tuple(Path(p) for p in self.append))
         object.__setattr__(self, "geometry", Path(self.geometry))
         for name in ("table", "crosswalk"):
             if getattr(self, name) is not None:

@@ -1,9 +1,13 @@
 """``run(config)``: the whole job step by step, into a staging folder swapped in on success.
 
-Steps run in order and each one logs a summary line. Outputs are written into a staging folder
-beside the target (``<out>.partial-<pid>``) and moved into place only when every step succeeded,
-so a run that fails part-way leaves an earlier run's outputs untouched. An existing output folder
-is replaced only with ``force=True``.
+Steps run in order (:data:`STEPS`); each logs one summary line. Outputs are written into a
+staging folder beside the target (``.<out>.partial-<pid>``) and moved into place only when every
+step succeeded, so a run that fails part-way leaves an earlier run's outputs untouched and says
+which step failed. An existing output folder is replaced only with ``force=True``.
+
+An annual rerun points ``previous`` at last year's run: its ``breaks.json`` is reused (unless
+``rebreak``) so the new frames compare with last year's briefing, and the briefing gets a
+"What's new since the previous run" section.
 """
 
 from __future__ import annotations
@@ -14,40 +18,52 @@ import os
 import shutil
 import time
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
+from datetime import date
 from pathlib import Path
 from typing import Any
 
-from mapdrift.config import ClassSpec, Config, merge
-from mapdrift.errors import MapdriftError, OutputExistsError, StepError
+from mapdrift.config import BriefSpec, ClassSpec, Config, RunSpec, merge
+from mapdrift.errors import ConfigError, InputError, MapdriftError, StepError
 from mapdrift.findings import Finding
 
-__all__ = ["RunResult", "RunState", "prepare_out", "run"]
+__all__ = ["STEPS", "RunResult", "RunState", "default_out", "prepare_out", "run"]
 
 log = logging.getLogger(__name__)
 Progress = Callable[[str], None]
+REBREAK_NOTICE = (
+    "Breaks refitted for this run (--rebreak): classes differ from the previous run's briefing."
+)
 
 
 @dataclass
 class RunState:
-    """What the steps hand each other: config, the staging folder, and each step's results."""
+    """What the steps hand each other: config, the staging folder and each step's results."""
 
     config: Config
     staging: Path
+    run: RunSpec
     panel: Any = None
     classes: Any = None
+    weights: Any = None
     results: dict[str, Any] = field(default_factory=dict)
     findings: list[Finding] = field(default_factory=list)
     timings: dict[str, float] = field(default_factory=dict)
-    outputs: list[Path] = field(default_factory=list)
     summaries: dict[str, str] = field(default_factory=dict)
+    notices: list[str] = field(default_factory=list)
 
     def path(self, name: str) -> Path:
-        """A file in the staging folder (recorded as an output)."""
         p = self.staging / name
         p.parent.mkdir(parents=True, exist_ok=True)
-        self.outputs.append(p)
         return p
+
+    def section(self, cls: type, name: str) -> Any:
+        return merge(cls, self.config.section(name), {})
+
+    @property
+    def notice(self) -> str | None:
+        """The warning every output must carry (per-period breaks, refitted breaks), or None."""
+        return " ".join(self.notices) or None
 
 
 @dataclass(frozen=True)
@@ -59,19 +75,39 @@ class RunResult:
     outputs: tuple[Path, ...]
 
 
+def default_out(config: Config) -> Path:
+    """``outputs/<config name>-<YYYY-MM-DD>``, numbered when that folder exists already."""
+    stem = config.path.stem if config.path else "run"
+    base = Path("outputs") / f"{stem}-{date.today().isoformat()}"
+    out, n = base, 2
+    while out.exists():
+        out = base.with_name(f"{base.name}-{n}")
+        n += 1
+    return out
+
+
 def prepare_out(out: Path, *, force: bool) -> None:
     """Refuse to touch a non-empty ``out`` unless ``force``."""
-    if out.exists() and any(out.iterdir()) and not force:
+    from mapdrift.errors import OutputExistsError
+
+    if out.exists() and (not out.is_dir() or any(out.iterdir())) and not force:
         raise OutputExistsError(
             f"{out} already holds an earlier run; pass --force to replace it or choose another --out"
         )
 
 
+# ------------------------------------------------------------------------------------------
+# steps
+# ------------------------------------------------------------------------------------------
 def _step_load(state: RunState) -> str:
     from mapdrift.panel import InputSpec, load_panel
 
-    spec = merge(InputSpec, state.config.section("inputs"), {})
-    state.panel = load_panel(spec)
+    inputs = state.config.section("inputs")
+    if state.run.crosswalk is not None:
+        inputs["crosswalk"] = state.run.crosswalk
+    if "geometry" not in inputs:
+        raise ConfigError(f'{state.config.path}: [inputs] needs geometry = "<polygon layer>"')
+    state.panel = load_panel(merge(InputSpec, inputs, {}))
     state.findings += state.panel.findings
     p = state.panel
     return (
@@ -79,10 +115,70 @@ def _step_load(state: RunState) -> str:
     )
 
 
+def _weights(state: RunState) -> Any:
+    from mapdrift.clusters import ClusterOptions
+    from mapdrift.weights import build_weights
+
+    if state.weights is None:
+        opt = state.section(ClusterOptions, "clusters")
+        cache = opt.cache_dir or (state.staging.parent / ".mapdrift-cache")
+        state.weights = build_weights(
+            state.panel.geometry,
+            opt.weights,
+            islands=opt.islands,
+            cache_dir=cache,
+            units=state.panel.units,
+        )
+    return state.weights
+
+
+def _step_smooth(state: RunState) -> str:
+    from mapdrift.clusters import ClusterOptions
+
+    opt = state.section(ClusterOptions, "clusters")
+    if not opt.smooth:
+        return "off (raw rates)"
+    from mapdrift.rates import smooth_panel
+
+    w = _weights(state) if opt.smooth == "spatial-eb" else None
+    state.panel = smooth_panel(state.panel, opt.smooth, weights=w)
+    state.findings.append(state.panel.findings[-1])
+    state.notices.append(f"Rates smoothed ({opt.smooth}) before mapping and statistics.")
+    return f"{opt.smooth} smoothing applied to maps and statistics"
+
+
+def _previous_breaks(state: RunState) -> Path | None:
+    prev = state.run.previous
+    if prev is None:
+        return None
+    path = prev if prev.suffix == ".json" else prev / "breaks.json"
+    if not path.exists():
+        raise InputError(
+            f"previous = {prev}: no breaks.json there; point it at last year's run folder"
+        )
+    return path
+
+
 def _step_classify(state: RunState) -> str:
+    from mapdrift.atomic import write_text
     from mapdrift.breaks import classify
 
-    cs: ClassSpec = merge(ClassSpec, state.config.section("classes"), {})
+    cs: ClassSpec = state.section(ClassSpec, "classes")
+    breaks_file = cs.breaks_file
+    prev = _previous_breaks(state)
+    if prev is not None and breaks_file is None:
+        if state.run.rebreak:
+            state.notices.append(REBREAK_NOTICE)
+            state.findings.append(Finding("warning", "breaks-refitted", REBREAK_NOTICE))
+        else:
+            breaks_file = prev
+            state.findings.append(
+                Finding(
+                    "note",
+                    "breaks-reused",
+                    f"class breaks reused from the previous run ({prev}) so frames compare with its briefing",
+                )
+            )
     classes = classify(
         state.panel,
         scheme=cs.scheme,
@@ -90,24 +186,204 @@ def _step_classify(state: RunState) -> str:
         basis=cs.basis,
         manual_values=cs.values or None,
         isolate_zeros=cs.isolate_zeros,
-        breaks_file=cs.breaks_file,
+        breaks_file=breaks_file,
     )
     state.classes = classes
     state.findings += classes.findings
-    if not classes.per_period:
-        classes.breaks[0].save(state.path("breaks.json"))
-    else:
-        from mapdrift.atomic import write_text
-
+    if classes.per_period:
+        state.notices.insert(0, classes.warning)
         write_text(
             state.path("breaks.json"),
             json.dumps(
                 {"per_period": [b.to_dict() for b in classes.breaks], "warning": classes.warning},
                 indent=2,
-            ),
+            )
+            + "\n",
         )
+    else:
+        classes.breaks[0].save(state.path("breaks.json"))
     b = classes.breaks[0]
     return f"{b.scheme}, {classes.k} classes, {b.basis}: " + " | ".join(b.labels)
+
+
+def _text(state: RunState) -> dict[str, Any]:
+    p = state.panel
+    brief = state.section(BriefSpec, "brief")
+    title = brief.title or p.meta.variable
+    sub = p.meta.unit_label or ""
+    return {
+        "title": title,
+        "subtitle": sub,
+        "caption": brief.source or p.meta.source,
+        "notice": state.notice,
+    }
+
+
+def _step_animate(state: RunState) -> str:
+    from mapdrift import palettes
+    from mapdrift.render.animation import AnimateOptions, animate
+    from mapdrift.render.frames import FrameRenderer
+    from mapdrift.render.multiples import small_multiples
+
+    opt = state.section(AnimateOptions, "animate")
+    formats = state.section(BriefSpec, "brief").formats
+    p, c = state.panel, state.classes
+    colours = palettes.colours_for(c.k, diverging_legend=c.breaks[0].diverging)
+    labels = [b.labels for b in c.breaks] if c.per_period else list(c.breaks[0].labels)
+    text = _text(state)
+    text["legend_title"] = p.meta.unit_label or p.meta.variable
+    done = []
+    for fmt in ("gif", "mp4"):
+        if fmt in formats:
+            res = animate(
+                p.geometry,
+                c.codes,
+                colours,
+                labels,
+                p.period_labels,
+                state.path(f"animation.{fmt}"),
+                options=opt,
+                names=p.names,
+                **text,
+            )
+            if fmt == "gif":
+                state.findings += res.findings
+            done.append(f"{fmt} {res.bytes / 1e6:.1f} MB")
+    r = FrameRenderer(
+        p.geometry,
+        c.codes,
+        colours,
+        labels,
+        p.period_labels,
+        size=tuple(opt.size),
+        scale_units=opt.scale_units,
+        names=p.names,
+        **text,
+    )
+    try:
+        from PIL import Image
+
+        from mapdrift.atomic import atomic_path
+
+        with atomic_path(state.path("poster.png")) as tmp:
+            Image.fromarray(r.frame(p.n_periods - 1)).save(tmp, format="PNG")
+    finally:
+        r.close()
+    small_multiples(
+        p.geometry,
+        c.codes,
+        colours,
+        labels,
+        p.period_labels,
+        state.path("small_multiples.png"),
+        title=text["title"],
+        subtitle=text["subtitle"],
+        caption=text["caption"],
+        notice=text["notice"],
+        legend_title=text["legend_title"],
+        scale_units=opt.scale_units,
+    )
+    return ", ".join(done + ["poster.png", "small_multiples.png/.pdf"])
+
+
+def _step_changes(state: RunState) -> str:
+    from mapdrift.breaks import classify
+    from mapdrift.brief.pictures import change_pictures
+    from mapdrift.changes import ChangeOptions, analyse_changes, relative_panel, write_changes
+
+    opt = state.section(ChangeOptions, "changes")
+    panel, classes = state.panel, state.classes
+    if opt.relative:
+        cs: ClassSpec = state.section(ClassSpec, "classes")
+        panel = relative_panel(panel, opt.relative)
+        classes = classify(
+            panel, scheme=cs.scheme, k=cs.k, basis=cs.basis, manual_values=cs.values or None
+        )
+        state.findings.append(
+            Finding(
+                "note",
+                "changes-relative",
+                f"changes use values relative to each period's {opt.relative}",
+            )
+        )
+    from mapdrift.clusters import ClusterOptions
+
+    same_weights = opt.weights == state.section(ClusterOptions, "clusters").weights
+    result = analyse_changes(
+        panel, classes, opt, weights=_weights(state) if opt.spatial and same_weights else None
+    )
+    state.results["changes"] = result
+    state.findings += [f for f in result.findings if f not in state.findings]
+    write_changes(result, state.staging, units_table=False)
+    change_pictures(result, panel, state.staging)
+    n_jump = int(result.units["jump"].sum())
+    up = int((result.net_change > 0).sum())
+    down = int((result.net_change < 0).sum())
+    return f"{up} units up, {down} down first to last; {n_jump} units jumped {opt.jump}+ classes"
+
+
+def _step_clusters(state: RunState) -> str:
+    from mapdrift.brief.pictures import cluster_pictures
+    from mapdrift.clusters import ClusterOptions, analyse_clusters, write_clusters
+
+    opt = state.section(ClusterOptions, "clusters")
+    opt = replace(opt, smooth=None)  # smoothing, when asked, was applied to the panel already
+    result = analyse_clusters(state.panel, state.classes, opt, weights=_weights(state))
+    state.results["clusters"] = result
+    state.findings += [f for f in result.findings if f not in state.findings]
+    write_clusters(result, state.staging)
+    cluster_pictures(result, state.panel, state.staging)
+    last = result.period_labels[-1]
+    hh = int((result.codes[:, -1] == 0).sum())
+    sig = int(result.trend.significant.sum())
+    return f"{hh} units high-high in {last}; {sig} significant trends ({result.significance})"
+
+
+def _step_units(state: RunState) -> str:
+    from mapdrift.brief.tables import units_table, write_units_gpkg
+    from mapdrift.outputs import write_csv
+
+    extra: dict[str, Any] = {}
+    for key, frame in (("changes", "units"), ("clusters", "unit_columns")):
+        res = state.results.get(key)
+        if res is None:
+            continue
+        df = getattr(res, frame)
+        for col in df.columns:
+            if col not in ("unit", "name"):
+                extra[col] = df[col].to_numpy()
+    df = units_table(state.panel, state.classes, extra)
+    state.results["units"] = df
+    write_csv(df, state.path("units.csv"), warning=state.notice)
+    formats = state.section(BriefSpec, "brief").formats
+    if "gpkg" in formats:
+        write_units_gpkg(df, state.panel.geometry, state.path("units.gpkg"))
+    return f"{len(df)} units x {len(df.columns)} columns (units.csv" + (
+        ", units.gpkg)" if "gpkg" in formats else ")"
+    )
+
+
+def _step_whatsnew(state: RunState) -> str:
+    if state.run.previous is None:
+        return "no previous run given"
+    from mapdrift.atomic import write_text
+    from mapdrift.brief.whatsnew import compare_runs
+
+    ch = state.results.get("changes")
+    cl = state.results.get("clusters")
+    wn = compare_runs(
+        state.run.previous,
+        jumps=ch.jumps if ch is not None else None,
+        cluster_changes=cl.changes if cl is not None else None,
+        trends=cl.trends if cl is not None else None,
+        findings=state.findings,
+    )
+    state.results["whatsnew"] = wn
+    write_text(
+        state.path("whats_new.json"),
+        json.dumps({"previous": str(wn.previous), "news": wn.bullets()}, indent=2) + "\n",
+    )
+    return f"{len(wn.new_jumps)} new jumps, {len(wn.cluster_events)} new cluster events, {len(wn.new_trends)} new trends"
 
 
 def _step_findings(state: RunState) -> str:
@@ -121,11 +397,44 @@ def _step_findings(state: RunState) -> str:
     return f"{n['warning']} warnings, {n['note']} notes"
 
 
+def _step_brief(state: RunState) -> str:
+    from mapdrift.brief.assemble import build_brief, build_slides
+    from mapdrift.brief.report import write_report
+
+    formats = state.section(BriefSpec, "brief").formats
+    brief = build_brief(state)
+    done = []
+    if "html" in formats:
+        write_report(brief, state.path("report.html"), state.path("report.md"), root=state.staging)
+        done.append("report.html, report.md")
+    if "png" in formats or "pptx" in formats:
+        from mapdrift.brief.slides import write_slide_pngs
+
+        slides = build_slides(state, brief)
+        footer = brief.source
+        if "png" in formats:
+            write_slide_pngs(slides, state.path("slides"), footer=footer)
+            done.append(f"{len(slides)} slides")
+        if "pptx" in formats:
+            from mapdrift.brief.deck import write_deck
+
+            write_deck(slides, state.path("brief.pptx"), footer=footer)
+            done.append("brief.pptx")
+    return ", ".join(done) or "no briefing formats asked for"
+
+
 #: The steps in order: name -> function(state) -> one-line summary.
 STEPS: list[tuple[str, Callable[[RunState], str]]] = [
     ("load", _step_load),
+    ("smooth", _step_smooth),
     ("classify", _step_classify),
+    ("animate", _step_animate),
+    ("changes", _step_changes),
+    ("clusters", _step_clusters),
+    ("units", _step_units),
+    ("whats-new", _step_whatsnew),
     ("findings", _step_findings),
+    ("brief", _step_brief),
 ]
 
 
@@ -139,35 +448,98 @@ def _swap_in(staging: Path, out: Path) -> None:
         shutil.rmtree(old, ignore_errors=True)
 
 
+def _manifest(state: RunState, out: Path) -> None:
+    from mapdrift.brief.manifest import write_manifest
+
+    c = state.classes
+    cfg = {name: state.config.section(name) for name in state.config.sections}
+    params: dict[str, Any] = {
+        "periods": list(state.panel.period_labels) if state.panel is not None else [],
+        "units": state.panel.n_units if state.panel is not None else 0,
+        "breaks": [b.to_dict() for b in c.breaks] if c is not None else [],
+        "notice": state.notice,
+    }
+    cl = state.results.get("clusters")
+    if cl is not None:
+        o = cl.options
+        params.update(
+            weights=cl.weights.kind,
+            islands=o.islands,
+            permutations=o.permutations,
+            alpha=o.alpha,
+            correction=o.correction,
+            seed=o.seed,
+            statistic=o.statistic,
+        )
+    if state.run.previous is not None:
+        params["previous"] = str(state.run.previous)
+    outputs = [p for p in state.staging.rglob("*") if p.is_file() and p.name != "manifest.json"]
+    write_manifest(
+        state.path("manifest.json"),
+        inputs=state.panel.inputs if state.panel is not None else (),
+        outputs=outputs,
+        root=state.staging,
+        config=cfg,
+        parameters=params,
+        findings=state.findings,
+        timings=state.timings,
+        summaries=state.summaries,
+    )
+    _ = out
+
+
 def run(
-    config: Config, *, out: Path, force: bool = False, progress: Progress | None = None
+    config: Config,
+    *,
+    out: Path | None = None,
+    force: bool = False,
+    progress: Progress | None = None,
+    steps: list[tuple[str, Callable[[RunState], str]]] | None = None,
 ) -> RunResult:
     """Run every step into ``out``; raise StepError naming the failed step (``out`` untouched)."""
-    out = Path(out)
+    run_spec: RunSpec = merge(RunSpec, config.section("run"), {})
+    out = Path(out or run_spec.out or default_out(config))
     prepare_out(out, force=force)
     out.parent.mkdir(parents=True, exist_ok=True)
     staging = out.with_name(f".{out.name}.partial-{os.getpid()}")
     shutil.rmtree(staging, ignore_errors=True)
     staging.mkdir(parents=True)
-    state = RunState(config=config, staging=staging)
+    state = RunState(config=config, staging=staging, run=run_spec)
+    handler = logging.FileHandler(staging / "run.log", encoding="utf-8")
+    handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
+    root = logging.getLogger("mapdrift")
+    root.addHandler(handler)
+    old_level = root.level
+    if root.getEffectiveLevel() > logging.INFO:
+        root.setLevel(logging.INFO)
     try:
-        for name, step in STEPS:
+        for name, step in steps or STEPS:
             t0 = time.perf_counter()
             try:
                 summary = step(state)
-            except MapdriftError:
-                raise
+            except MapdriftError as exc:
+                log.error("step %s failed: %s", name, exc)
+                raise type(exc)(f"step {name!r} failed: {exc}") from exc
             except Exception as exc:
-                raise StepError(f"step {name!r} failed: {type(exc).__name__}: {exc}") from exc
+                log.exception("step %s failed", name)
+                raise StepError(
+                    f"step {name!r} failed: {type(exc).__name__}: {exc}; earlier outputs in {out} were left untouched"
+                ) from exc
             state.timings[name] = round(time.perf_counter() - t0, 3)
             state.summaries[name] = summary
             log.info("%s: %s", name, summary)
             if progress is not None:
                 progress(f"{name:<10} {summary}")
+        root.removeHandler(handler)  # close the log before hashing it into the manifest
+        handler.close()
+        _manifest(state, out)
         _swap_in(staging, out)
     finally:
+        root.removeHandler(handler)
+        handler.close()
+        root.setLevel(old_level)
         shutil.rmtree(staging, ignore_errors=True)
-    outputs = tuple(out / p.relative_to(staging) for p in state.outputs)
+    outputs = tuple(sorted(p for p in out.rglob("*") if p.is_file()))
     return RunResult(
         out, tuple(state.findings), dict(state.timings), dict(state.summaries), outputs
     )

@@ -14,7 +14,7 @@ from typing import TYPE_CHECKING
 if TYPE_CHECKING:
     import pandas as pd
 
-__all__ = ["CAUTIONS", "Brief", "Figure", "Section", "Table"]
+__all__ = ["CAUTIONS", "Brief", "Figure", "Section", "Table", "phrase"]
 
 #: The cautions every report and deck carries (also in the README).
 CAUTIONS: tuple[str, ...] = (
@@ -77,3 +77,10 @@ class Brief:
 
     def section(self, key: str) -> Section | None:
         return next((s for s in self.sections if s.key == key), None)
+
+
+def phrase(label: str, value: str) -> str:
+    """A headline number and its label: ``('units that jumped', '1')`` -> ``'1 unit that jumped'``."""
+    if value == "1" and label.startswith("units"):
+        label = "unit" + label[len("units") :]
+    return f"{value} {label}"

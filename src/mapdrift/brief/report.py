@@ -12,7 +12,7 @@ import html
 from pathlib import Path
 
 from mapdrift.atomic import write_text
-from mapdrift.brief.content import Brief, Figure, Section, Table
+from mapdrift.brief.content import Brief, Figure, Section, Table, phrase
 
 __all__ = ["render_html", "render_markdown", "write_report"]
 
@@ -129,10 +129,9 @@ def render_html(brief: Brief) -> str:
         out.append(f'<p class="notice" role="note">{_e(brief.warning)}</p>')
     if brief.headline:
         out.append('<section id="answer"><h2>The answer</h2><div class="headline">')
-        out += [
-            f'<div class="metric"><b>{_e(v)}</b><span>{_e(k)}</span></div>'
-            for k, v in brief.headline
-        ]
+        for k, v in brief.headline:
+            label = phrase(k, v)[len(v) + 1 :]
+            out.append(f'<div class="metric"><b>{_e(v)}</b><span>{_e(label)}</span></div>')
         out.append("</div></section>")
     out += [_section_html(s) for s in brief.sections]
     if brief.method:

@@ -48,19 +48,32 @@ class WhatsNew:
         """One sentence per kind of news, for the report and the slide."""
         out = []
         if len(self.new_jumps):
-            ex = [f"{r.unit} ({r.from_period}→{r.to_period}, {r.direction} {abs(int(r.size))})" for r in self.new_jumps.itertuples()]
+            ex = [
+                f"{r.unit} ({r.from_period}→{r.to_period}, {r.direction} {abs(int(r.size))})"
+                for r in self.new_jumps.itertuples()
+            ]
             out.append(f"{plural(len(self.new_jumps), 'new jump')}: {examples(ex)}.")
         else:
             out.append("No new jumps.")
         for kind, words in CLUSTER_EVENTS.items():
-            ev = self.cluster_events[self.cluster_events["event"] == kind] if len(self.cluster_events) else self.cluster_events
+            ev = (
+                self.cluster_events[self.cluster_events["event"] == kind]
+                if len(self.cluster_events)
+                else self.cluster_events
+            )
             if len(ev):
-                out.append(f"{plural(ev['unit'].nunique(), 'unit')} newly {words}: {examples([f'{u} ({p})' for u, p in zip(ev['unit'], ev['period'])])}.")
+                out.append(
+                    f"{plural(ev['unit'].nunique(), 'unit')} newly {words}: {examples([f'{u} ({p})' for u, p in zip(ev['unit'], ev['period'])])}."
+                )
         if len(self.new_trends):
-            ex = [f"{u} ({d})" for u, d in zip(self.new_trends["unit"], self.new_trends["direction"])]
+            ex = [
+                f"{u} ({d})" for u, d in zip(self.new_trends["unit"], self.new_trends["direction"])
+            ]
             out.append(f"{plural(len(self.new_trends), 'new significant trend')}: {examples(ex)}.")
         if len(self.ended_trends):
-            out.append(f"{plural(len(self.ended_trends), 'trend')} no longer significant: {examples(list(self.ended_trends['unit']))}.")
+            out.append(
+                f"{plural(len(self.ended_trends), 'trend')} no longer significant: {examples(list(self.ended_trends['unit']))}."
+            )
         out.extend(self.findings)
         return out
 
@@ -104,7 +117,9 @@ def _finding_news(prev_findings: list[dict], findings: Sequence[Finding]) -> lis
             continue
         new_units = [u for u in f.units if u not in before[f.code]]
         if new_units:
-            out.append(f"{f.code}: {plural(len(new_units), 'unit')} newly affected: {examples(new_units)}.")
+            out.append(
+                f"{f.code}: {plural(len(new_units), 'unit')} newly affected: {examples(new_units)}."
+            )
     now = {f.code for f in findings}
     for code in sorted(set(before) - now):
         out.append(f"Resolved since the previous run: {code}.")
@@ -126,11 +141,17 @@ def compare_runs(
     if previous.is_file():
         previous = previous.parent
     if not previous.is_dir():
-        raise InputError(f"previous run {previous} not found; point `previous` at last year's run folder")
+        raise InputError(
+            f"previous run {previous} not found; point `previous` at last year's run folder"
+        )
     periods: tuple[str, ...] = ()
     manifest = previous / "manifest.json"
     if manifest.exists():
-        periods = tuple(json.loads(manifest.read_text(encoding="utf-8")).get("parameters", {}).get("periods", ()))
+        periods = tuple(
+            json.loads(manifest.read_text(encoding="utf-8"))
+            .get("parameters", {})
+            .get("periods", ())
+        )
     prev_jumps = _read(previous, "jumps.csv")
     key = ["unit", "from_period", "to_period", "direction"]
     cur = jumps.astype({"unit": str, "from_period": str, "to_period": str}) if len(jumps) else jumps
@@ -154,8 +175,15 @@ def compare_runs(
             ps = prev_tr[prev_tr["significant"].astype(str).str.lower() == "true"]
             prev_sig = set(zip(ps["unit"].astype(str), ps["direction"].astype(str)))
         now_sig = set(zip(sig["unit"].astype(str), sig["direction"].astype(str)))
-        new_trends = sig[[(u, d) not in prev_sig for u, d in zip(sig["unit"].astype(str), sig["direction"].astype(str))]]
-        new_trends = new_trends[[c for c in ("unit", "name", "direction", "theil_sen_slope") if c in sig.columns]].reset_index(drop=True)
+        new_trends = sig[
+            [
+                (u, d) not in prev_sig
+                for u, d in zip(sig["unit"].astype(str), sig["direction"].astype(str))
+            ]
+        ]
+        new_trends = new_trends[
+            [c for c in ("unit", "name", "direction", "theil_sen_slope") if c in sig.columns]
+        ].reset_index(drop=True)
         ended = pd.DataFrame(sorted(prev_sig - now_sig), columns=["unit", "direction"])
     prev_findings = []
     fpath = previous / "findings.json"

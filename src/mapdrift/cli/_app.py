@@ -54,7 +54,12 @@ def _main(
     level = logging.DEBUG if debug else logging.INFO if verbose else logging.WARNING
     if quiet:
         level = logging.ERROR
-    logging.basicConfig(level=level, format="%(levelname)s %(name)s: %(message)s", force=True)
+    # the console shows `level` and above; the pipeline's run.log (a handler of its own) may
+    # record more, so the console handler carries the level, not only the logger
+    handler = logging.StreamHandler()
+    handler.setLevel(level)
+    handler.setFormatter(logging.Formatter("%(levelname)s %(name)s: %(message)s"))
+    logging.basicConfig(level=level, handlers=[handler], force=True)
 
 
 def command(name: str, **kwargs: Any) -> Callable[[F], F]:

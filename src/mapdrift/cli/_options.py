@@ -176,6 +176,15 @@ _INPUT_PARAMS = [
         ),
     ),
     _param(
+        "append",
+        Optional[list[Path]],
+        _opt(
+            None,
+            "--append",
+            help="Another table of the same columns to add (repeatable), e.g. next year's release.",
+        ),
+    ),
+    _param(
         "crosswalk",
         Optional[Path],
         _opt(
@@ -292,6 +301,7 @@ def input_options(func: Callable[..., Any]) -> Callable[..., Any]:
         if isinstance(raw.get("duplicates"), Enum):
             raw["duplicates"] = raw["duplicates"].value
         raw["missing"] = parse_numbers(raw.get("missing"), "--missing")
+        raw["append"] = tuple(raw["append"]) if raw.get("append") else None
         from_config = config.section("inputs") if config is not None else {}
         if raw.get("geometry") is None and "geometry" not in from_config:
             raise ConfigError(

@@ -7,19 +7,15 @@ from pathlib import Path
 import typer
 
 from mapdrift.cli._app import command
-from mapdrift.cli._print import echo
 
 
 def demo_config_path() -> Path:
     """The shipped demo config: ``demo_data/demo.toml`` of the source checkout."""
     here = Path(__file__).resolve()
-    for parent in here.parents:
+    for parent in (*here.parents, Path.cwd()):
         cand = parent / "demo_data" / "demo.toml"
         if cand.exists():
             return cand
-    cand = Path.cwd() / "demo_data" / "demo.toml"
-    if cand.exists():
-        return cand
     from mapdrift.errors import InputError
 
     raise InputError(
@@ -32,11 +28,11 @@ def demo(
     out: Path = typer.Option(Path("outputs/demo"), "--out", help="Output folder."),
     force: bool = typer.Option(False, "--force", help="Replace an earlier demo run in --out."),
 ) -> None:
-    """Run every step on the invented demo county (demo_data/demo.toml) into outputs/demo/."""
-    from mapdrift.config import load_config
-    from mapdrift.pipeline import run
+    """Run every step on the invented demo county (demo_data/demo.toml) into outputs/demo/.
 
-    cfg = load_config(demo_config_path())
-    echo(f"mapdrift demo: {cfg.path} -> {out}")
-    result = run(cfg, out=out, force=force, progress=echo)
-    echo(f"done: {len(result.outputs)} files in {result.out}")
+    Same as `mapdrift run demo_data/demo.toml --out outputs/demo`.
+    """
+    from mapdrift.cli.run import run_config
+    from mapdrift.config import load_config
+
+    run_config(load_config(demo_config_path()), out=out, force=force)

@@ -1,0 +1,471 @@
+"""From a run's results to the briefing: the :class:`~mapdrift.brief.content.Brief` (report)
+and the list of :class:`~mapdrift.brief.slides.Slide` (PNG slides and the deck).
+
+The job's answer comes first: how many units rose or fell, jumped, joined clusters, trend.
+"""
+
+from __future__ import annotations
+
+from datetime import date
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from mapdrift.brief.content import CAUTIONS, Brief, Figure, Section, Table, phrase
+from mapdrift.brief.slides import Slide
+from mapdrift.config import BriefSpec
+from mapdrift.findings import examples, plural
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+    from mapdrift.pipeline import RunState
+
+__all__ = ["build_brief", "build_slides", "headline", "method", "top_movers"]
+
+
+def _period_span(state: RunState) -> str:
+    per = state.panel.period_labels
+    return f"{per[0]} to {per[-1]}"
+
+
+def headline(state: RunState) -> list[tuple[str, str]]:
+    """The answer in numbers: (label, value) pairs."""
+    p = state.panel
+    per = p.period_labels
+    out: list[tuple[str, str]] = []
+    ch = state.results.get("changes")
+    if ch is not None:
+        net = ch.net_change
+        out.append(
+            (f"units in a higher class in {per[-1]} than in {per[0]}", f"{int((net > 0).sum())}")
+        )
+        out.append(
+            (f"units in a lower class in {per[-1]} than in {per[0]}", f"{int((net < 0).sum())}")
+        )
+        out.append(
+            (
+                f"units that jumped {ch.options.jump}+ classes in one year",
+                f"{int(ch.units['jump'].sum())}",
+            )
+        )
+    cl = state.results.get("clusters")
+    if cl is not None:
+        joined = sum(1 for v in cl.changes["joined_high_cluster"] if v)
+        out.append(
+            (f"units in a high-high cluster in {per[-1]}", f"{int((cl.codes[:, -1] == 0).sum())}")
+        )
+        out.append(("units that joined a high-high cluster", f"{joined}"))
+        up = (
+            int((cl.trends["significant"] & (cl.trends["direction"] == "rising")).sum())
+            if "direction" in cl.trends
+            else 0
+        )
+        out.append(("units with a significant rising trend", f"{up}"))
+    nd = int(np.isnan(p.values).all(axis=1).sum())
+    out.append(("units with no data at all (kept on the map)", f"{nd}"))
+    return out
+
+
+def method(state: RunState) -> list[tuple[str, str]]:
+    """Method lines for the report and the speaker notes."""
+    c = state.classes
+    b = c.breaks[0]
+    p = state.panel
+    rows = [
+        (
+            "Data",
+            f"{p.n_units} units, {p.n_periods} periods ({_period_span(state)}); {p.meta.variable}"
+            + (f" ({p.meta.unit_label})" if p.meta.unit_label else ""),
+        ),
+        (
+            "Classes",
+            f"{b.scheme}, {c.k} classes, basis {b.basis}"
+            + ("" if c.per_period else ": " + " | ".join(b.labels)),
+        ),
+    ]
+    if c.per_period:
+        rows.append(("Warning", c.warning or ""))
+    ch = state.results.get("changes")
+    if ch is not None:
+        o = ch.options
+        rows.append(
+            (
+                "Changes",
+                f"transitions between consecutive periods on the map's classes; jump = {o.jump}+ classes in one step; spike = back within {o.spike_window} periods; Markov summaries after Kemeny & Snell; homogeneity test after Anderson & Goodman (1957)",
+            )
+        )
+    cl = state.results.get("clusters")
+    if cl is not None:
+        o = cl.options
+        rows.append(
+            ("Spatial weights", f"{cl.weights.kind}, row-standardised; islands: {o.islands}")
+        )
+        rows.append(
+            (
+                "Clusters",
+                f"{'local Moran (Anselin 1995)' if o.statistic == 'local-moran' else 'Getis-Ord Gi*'}, {o.permutations} conditional permutations, seed {o.seed}; {cl.significance}",
+            )
+        )
+        rows.append(
+            (
+                "Trends",
+                f"Mann-Kendall test with Theil-Sen slope, {cl.significance.replace('per period', 'across units')}",
+            )
+        )
+    if state.run.previous is not None:
+        rows.append(
+            (
+                "Previous run",
+                f"{state.run.previous}"
+                + (" (breaks refitted)" if state.run.rebreak else " (breaks reused)"),
+            )
+        )
+    return rows
+
+
+def top_movers(state: RunState, n: int = 10) -> pd.DataFrame | None:
+    """The largest one-step jumps (size, then the later period), one row each."""
+    ch = state.results.get("changes")
+    if ch is None or len(ch.jumps) == 0:
+        return None
+    j = ch.jumps.copy()
+    j["abs"] = j["size"].abs()
+    j = j.sort_values(["abs", "to_period", "unit"], ascending=[False, False, True]).head(n)
+    return j.assign(
+        step=[f"{a}→{b}" for a, b in zip(j["from_period"], j["to_period"])],
+        classes=[f"{a}→{b}" for a, b in zip(j["from_class"], j["to_class"])],
+        values=[f"{a:.1f}→{b:.1f}" for a, b in zip(j["value_before"], j["value_after"])],
+        check=np.where(j["spike"], "came back: check data", ""),
+    )[["unit", "name", "step", "classes", "values", "check"]]
+
+
+def _fig(state: RunState, name: str, caption: str) -> Figure:
+    return Figure(state.staging / name, caption)
+
+
+def _findings_table(state: RunState) -> pd.DataFrame:
+    import pandas as pd
+
+    rows = [(f.level, f.code, f.message) for f in state.findings if f.level != "note"]
+    rows += [(f.level, f.code, f.message) for f in state.findings if f.level == "note"]
+    return pd.DataFrame(rows, columns=["level", "code", "finding"])
+
+
+def build_brief(state: RunState) -> Brief:
+    """Everything the report says, in order: answer, news, maps, changes, clusters, data."""
+    spec: BriefSpec = state.section(BriefSpec, "brief")
+    p = state.panel
+    per = p.period_labels
+    sections: list[Section] = []
+    wn = state.results.get("whatsnew")
+    if wn is not None:
+        sections.append(
+            Section(
+                "whats-new",
+                "What's new since the previous run",
+                paragraphs=(f"Compared with the run in {wn.previous}.",),
+                bullets=tuple(wn.bullets()),
+            )
+        )
+    sections.append(
+        Section(
+            "maps",
+            f"The map, {_period_span(state)}",
+            paragraphs=(
+                "Every frame uses the same classes, so a colour means the same range in every year."
+                if not state.classes.per_period
+                else state.classes.warning or "",
+                "The animation (animation.gif, animation.mp4) shows one frame per period; below is its last frame, then every period side by side.",
+            ),
+            figures=(
+                _fig(
+                    state,
+                    "poster.png",
+                    f"{p.meta.variable}, {per[-1]} (last frame of the animation)",
+                ),
+                _fig(state, "small_multiples.png", "Every period on the same classes"),
+            ),
+        )
+    )
+    ch = state.results.get("changes")
+    if ch is not None:
+        sections.append(
+            Section(
+                "change",
+                "Which units changed",
+                paragraphs=(
+                    f"Net class change from {per[0]} to {per[-1]}, and the units whose path is worth a look (jumps, spikes, persistently top or bottom).",
+                ),
+                figures=(
+                    _fig(state, "change_map.png", f"Class change {per[0]} to {per[-1]}"),
+                    _fig(state, "flagged_units.png", "Flagged units"),
+                ),
+            )
+        )
+        mk = ch.markov
+        hom = ch.homogeneity
+        paras = [
+            f"{ch.transitions.n_pairs:,} unit steps between consecutive periods; share staying in their class: {np.trace(ch.transitions.counts) / max(ch.transitions.counts.sum(), 1):.0%}."
+        ]
+        if hom.LR is not None and hom.p_LR is not None:
+            paras.append(
+                f"Are the transition probabilities the same in every step? Anderson-Goodman likelihood-ratio test: G = {hom.LR:.1f}, df {hom.df}, p = {hom.p_LR:.3g}."
+            )
+        sections.append(
+            Section(
+                "transitions",
+                "Transitions between classes",
+                paragraphs=tuple(paras),
+                figures=(
+                    _fig(
+                        state,
+                        "transition_heatmap.png",
+                        "Transitions between consecutive periods, pooled",
+                    ),
+                    _fig(state, "class_flow.png", f"Where units moved, {per[0]} to {per[-1]}"),
+                ),
+                tables=(
+                    Table(
+                        ch.transitions.probabilities_table(),
+                        "Transition probabilities (rows: from class)",
+                        csv_name="transition_probabilities.csv",
+                    ),
+                ),
+            )
+        )
+        _ = mk
+        movers = top_movers(state, 25)
+        if movers is not None:
+            sections.append(
+                Section(
+                    "jumps",
+                    "Units that jumped",
+                    paragraphs=(
+                        f"Moves of {ch.options.jump} or more classes in one step, largest first. A jump that comes back soon after is often a data error: check it before reading it as change.",
+                    ),
+                    tables=(Table(movers, "Largest one-step jumps", csv_name="jumps.csv"),),
+                )
+            )
+    cl = state.results.get("clusters")
+    if cl is not None:
+        g = cl.global_moran
+        sig_periods = [
+            str(a) for a, b in zip(g["period"], g["p_permutation"]) if b <= cl.options.alpha
+        ]
+        ctab = cl.changes
+        events = ctab[[bool(v) for v in ctab["joined_high_cluster"]]]
+        cols = [
+            c
+            for c in ("unit", "name", "sequence", "joined_high_cluster", "left_high_cluster")
+            if c in ctab.columns
+        ]
+        sections.append(
+            Section(
+                "clusters",
+                "Is the change clustered in space?",
+                paragraphs=(
+                    f"Global Moran's I is significant in {len(sig_periods)} of {len(g)} periods ({examples(sig_periods, 6) or 'none'}). {cl.significance.capitalize()}.",
+                    "High-high: a high unit among high neighbours; low-low likewise; high-low and low-high are spatial outliers.",
+                ),
+                figures=(
+                    _fig(state, "global_moran.png", "Global Moran's I per period"),
+                    _fig(state, "cluster_map.png", f"Local clusters, {per[-1]}"),
+                    _fig(state, "change_cluster_map.png", "Where the change itself is clustered"),
+                ),
+                tables=(
+                    Table(
+                        events[cols],
+                        "Units that joined a high-high cluster",
+                        csv_name="cluster_changes.csv",
+                    ),
+                ),
+            )
+        )
+        tr = cl.trends
+        sig = tr[tr["significant"].astype(bool)].sort_values("theil_sen_slope", ascending=False)
+        tcols = [
+            c
+            for c in ("unit", "name", "direction", "theil_sen_slope", "p_adjusted")
+            if c in sig.columns
+        ]
+        sections.append(
+            Section(
+                "trends",
+                "Trends per unit",
+                paragraphs=(
+                    f"{plural(len(sig), 'unit')} with a significant monotone trend ({cl.significance.replace('per period', 'across units')}).",
+                ),
+                figures=(
+                    _fig(state, "trend_map.png", "Theil-Sen slope where the trend is significant"),
+                ),
+                tables=(Table(sig[tcols], "Significant trends", csv_name="trends.csv"),),
+            )
+        )
+    sections.append(
+        Section(
+            "data-quality",
+            "Data quality",
+            paragraphs=(
+                "Everything the checks found; no unit was dropped. Codes are stable (see findings.json).",
+            ),
+            tables=(
+                Table(_findings_table(state), "Findings", max_rows=60, csv_name="findings.json"),
+            ),
+        )
+    )
+    title = spec.title or f"{p.meta.variable}, {_period_span(state)}"
+    subtitle = spec.subtitle or (p.meta.unit_label or "")
+    author = " · ".join(x for x in (spec.author, spec.organisation) if x)
+    return Brief(
+        title=title,
+        subtitle=subtitle,
+        author=author,
+        source=spec.source or p.meta.source,
+        date=spec.date or date.today().isoformat(),
+        headline=tuple(headline(state)),
+        sections=tuple(sections),
+        method=tuple(method(state)),
+        warning=state.notice,
+        cautions=CAUTIONS,
+    )
+
+
+def _notes(brief: Brief, extra: str = "") -> str:
+    lines = [extra] if extra else []
+    lines.append("Method: " + "; ".join(f"{k}: {v}" for k, v in brief.method))
+    lines.append("Cautions: " + " ".join(brief.cautions))
+    return "\n\n".join(lines)
+
+
+def _short(message: str, limit: int = 160) -> str:
+    return message if len(message) <= limit else message[: limit - 1].rsplit(" ", 1)[0] + "…"
+
+
+def build_slides(state: RunState, brief: Brief) -> list[Slide]:
+    """The deck: title, answer, animation, small multiples, change, transitions, movers,
+    clusters, trends, what's new, data notes."""
+    d = state.staging
+    per = state.panel.period_labels
+    notice = brief.warning
+    slides = [
+        Slide(
+            "title",
+            brief.title,
+            subtitle=brief.subtitle,
+            bullets=tuple(x for x in (brief.author, brief.date) if x),
+            notice=notice,
+            notes=_notes(brief, "Title slide."),
+        ),
+        Slide(
+            "answer",
+            "The answer",
+            bullets=tuple(phrase(k, v) for k, v in brief.headline),
+            notice=notice,
+            notes=_notes(brief, "The headline numbers of this run."),
+        ),
+    ]
+    gif, mp4, poster = d / "animation.gif", d / "animation.mp4", d / "poster.png"
+    if poster.exists():
+        slides.append(
+            Slide(
+                "animation",
+                f"{state.panel.meta.variable}, {per[0]} to {per[-1]}",
+                subtitle=brief.subtitle,
+                images=(poster,),
+                movie=mp4 if mp4.exists() else None,
+                fallback=gif if gif.exists() else None,
+                notice=notice,
+                caption="Same classes in every frame." if not state.classes.per_period else "",
+                notes=_notes(brief, "Animation: one frame per period."),
+            )
+        )
+    if (d / "small_multiples.png").exists():
+        slides.append(
+            Slide(
+                "small-multiples",
+                "Every period side by side",
+                images=(d / "small_multiples.png",),
+                notice=notice,
+                notes=_notes(brief),
+            )
+        )
+    if (d / "change_map.png").exists():
+        slides.append(
+            Slide(
+                "change",
+                f"Which units changed, {per[0]} to {per[-1]}",
+                images=(d / "change_map.png", d / "flagged_units.png"),
+                notice=notice,
+                notes=_notes(brief, "Net class change and flagged units."),
+            )
+        )
+    if (d / "transition_heatmap.png").exists():
+        slides.append(
+            Slide(
+                "transitions",
+                "How units move between classes",
+                images=(d / "transition_heatmap.png", d / "class_flow.png"),
+                notice=notice,
+                notes=_notes(brief),
+            )
+        )
+    movers = top_movers(state, 10)
+    if movers is not None:
+        slides.append(
+            Slide(
+                "movers",
+                "Top movers",
+                table=movers,
+                bullets=(
+                    "A jump that came back soon after is often a data error: check it first.",
+                ),
+                notice=notice,
+                notes=_notes(brief, "Largest one-step jumps."),
+            )
+        )
+    if (d / "cluster_map.png").exists():
+        slides.append(
+            Slide(
+                "clusters",
+                "Is the change clustered in space?",
+                images=(d / "cluster_map.png", d / "global_moran.png"),
+                notice=notice,
+                notes=_notes(brief),
+            )
+        )
+    if (d / "trend_map.png").exists():
+        slides.append(
+            Slide(
+                "trends",
+                "Trends per unit",
+                images=(d / "trend_map.png",),
+                notice=notice,
+                notes=_notes(brief),
+            )
+        )
+    sec = brief.section("whats-new")
+    if sec is not None:
+        slides.append(
+            Slide(
+                "whats-new",
+                "What's new since the previous run",
+                bullets=tuple(_short(b, 200) for b in sec.bullets[:8]),
+                notice=notice,
+                notes=_notes(brief),
+            )
+        )
+    warn = [f for f in state.findings if f.level == "warning"]
+    bullets = tuple(_short(f.message) for f in warn[:7]) or ("No data problems found.",)
+    if len(warn) > 7:
+        bullets += (f"… and {len(warn) - 7} more warnings in findings.json and the report.",)
+    slides.append(
+        Slide(
+            "data-notes",
+            "Data notes",
+            bullets=bullets,
+            notice=notice,
+            notes=_notes(brief, "Data-quality findings."),
+        )
+    )
+    return slides
