@@ -98,7 +98,8 @@ def _events(df: pd.DataFrame | None) -> set[tuple[str, str, str]]:
     for kind in CLUSTER_EVENTS:
         if kind not in df.columns:
             continue
-        for unit, cell in zip(df["unit"].astype(str), df[kind].fillna("").astype(str)):
+        cells = df[kind].astype(object).where(df[kind].notna(), "").astype(str)
+        for unit, cell in zip(df["unit"].astype(str), cells):
             for period in filter(None, cell.split(";")):
                 out.add((unit, kind, period))
     return out
@@ -158,9 +159,12 @@ def compare_runs(
     if prev_jumps is not None and len(cur):
         seen = set(map(tuple, prev_jumps[key].astype(str).to_numpy()))
         mask = [tuple(map(str, r)) not in seen for r in cur[key].to_numpy()]
-        new_jumps = cur[mask].reset_index(drop=True)
+        new_jumps = cur[mask]
     else:
         new_jumps = cur.reset_index(drop=True) if len(cur) else _empty(key)
+    if len(new_jumps):  # largest first: the clearest news leads
+        order = new_jumps.assign(_abs=new_jumps["size"].abs()).sort_values(["_abs", "to_period", "unit"], ascending=[False, False, True])
+        new_jumps = order.drop(columns="_abs").reset_index(drop=True)
     old_ev = _events(_read(previous, "cluster_changes.csv"))
     now_ev = _events(cluster_changes)
     ev_rows = sorted(now_ev - old_ev, key=lambda t: (t[2], t[1], t[0]))

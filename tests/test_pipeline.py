@@ -1,0 +1,125 @@
+"""The whole run: outputs named as in DESIGN.md, manifest hashes, byte-identical tables,
+--force, a failure mid-run leaving earlier outputs untouched, and the annual rerun."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import re
+from pathlib import Path
+
+import pytest
+from conftest import DEMO
+
+from mapdrift.config import load_config
+from mapdrift.errors import OutputExistsError, StepError
+from mapdrift.pipeline import STEPS, run
+
+DESIGN_OUTPUTS = [
+    "animation.gif", "animation.mp4", "small_multiples.png", "small_multiples.pdf", "change_map.png",
+    "units.csv", "units.gpkg", "transitions.csv", "transition_probabilities.csv", "breaks.json",
+    "findings.json", "report.html", "brief.pptx", "manifest.json",
+]  # fmt: skip
+
+
+def _sha(p: Path) -> str:
+    return hashlib.sha256(p.read_bytes()).hexdigest()
+
+
+def _tables(folder: Path) -> dict[str, str]:
+    return {p.name: _sha(p) for p in sorted(folder.glob("*.csv"))} | {
+        n: _sha(folder / n) for n in ("breaks.json", "markov.json", "findings.json")
+    }
+
+
+@pytest.fixture(scope="module")
+def demo_run(tmp_path_factory):
+    out = tmp_path_factory.mktemp("runs") / "2024"
+    result = run(load_config(DEMO / "demo.toml"), out=out)
+    return result
+
+
+def test_outputs_named_as_designed(demo_run):
+    out = demo_run.out
+    for name in DESIGN_OUTPUTS:
+        assert (out / name).is_file(), name
+    assert sorted(p.name for p in (out / "slides").glob("*.png"))
+    assert not list(out.parent.glob(".*partial*"))  # staging folder gone
+
+
+def test_manifest_hashes_match(demo_run):
+    out = demo_run.out
+    man = json.loads((out / "manifest.json").read_text())
+    assert man["format"] == "mapdrift-manifest/1"
+    assert {Path(i["path"]).name for i in man["inputs"]} == {"county_units.gpkg", "filings.csv"}
+    for item in man["inputs"]:
+        assert item["sha256"] == _sha(Path(item["path"]))
+    listed = {o["path"]: o["sha256"] for o in man["outputs"]}
+    assert "report.html" in listed and "slides/01-title.png" in listed
+    for rel, digest in listed.items():
+        assert _sha(out / rel) == digest, rel
+    p = man["parameters"]
+    assert p["permutations"] == 999 and p["correction"] == "fdr" and p["weights"] == "queen"
+    assert p["breaks"][0]["scheme"] == "quantile"
+    assert set(man["timings_s"]) >= {"load", "classify", "animate", "changes", "clusters", "brief"}
+
+
+def test_same_inputs_and_seed_give_identical_tables(demo_run, tmp_path):
+    cfg = load_config(DEMO / "demo.toml").with_values("brief", {"formats": ["html"]})
+    again = run(cfg, out=tmp_path / "again")
+    assert _tables(again.out) == _tables(demo_run.out)
+
+
+def test_force_rules(demo_run, tmp_path):
+    cfg = load_config(DEMO / "demo.toml").with_values("brief", {"formats": []})
+    out = tmp_path / "run"
+    run(cfg, out=out, steps=STEPS[:3])
+    with pytest.raises(OutputExistsError, match="--force"):
+        run(cfg, out=out, steps=STEPS[:3])
+    run(cfg, out=out, force=True, steps=STEPS[:3])
+
+
+def test_failure_mid_run_leaves_previous_outputs(tmp_path):
+    cfg = load_config(DEMO / "demo.toml").with_values("brief", {"formats": []})
+    out = tmp_path / "run"
+    run(cfg, out=out, steps=STEPS[:3])
+    before = {p.relative_to(out): _sha(p) for p in out.rglob("*") if p.is_file()}
+
+    def broken(state):
+        raise RuntimeError("disk on fire")
+
+    with pytest.raises(StepError, match="step 'changes' failed.*disk on fire"):
+        run(cfg, out=out, force=True, steps=[*STEPS[:3], ("changes", broken)])
+    after = {p.relative_to(out): _sha(p) for p in out.rglob("*") if p.is_file()}
+    assert after == before
+    assert not list(tmp_path.glob(".*partial*"))
+
+
+def _planted_new_jumper() -> str:
+    # the demo's README (written by the generator) lists the planted stories with their IDs
+    text = (DEMO / "README.md").read_text()
+    row = next(line for line in text.splitlines() if line.startswith("| New jumper"))
+    return re.findall(r"\b0\d{4}\b", row)[0]
+
+
+def test_annual_rerun_reuses_breaks_and_reports_new_jumper(demo_run, tmp_path):
+    cfg_text = (DEMO / "demo.toml").read_text()
+    cfg_text = f'previous = "{demo_run.out.as_posix()}"\n' + cfg_text.replace(
+        'table = "filings.csv"', 'table = "filings.csv"\nappend = ["filings_2025.csv"]'
+    )
+    cfg_path = DEMO / ".test_rerun.toml"
+    cfg_path.write_text(cfg_text)
+    try:
+        cfg = load_config(cfg_path).with_values("brief", {"formats": ["html"]})
+        new = run(cfg, out=tmp_path / "2025")
+    finally:
+        cfg_path.unlink()
+    old_b = json.loads((demo_run.out / "breaks.json").read_text())
+    new_b = json.loads((new.out / "breaks.json").read_text())
+    assert new_b["edges"] == old_b["edges"] and new_b["basis"] == "file"
+    news = json.loads((new.out / "whats_new.json").read_text())["news"]
+    jumper = _planted_new_jumper()
+    assert jumper in news[0], news
+    html = (new.out / "report.html").read_text()
+    assert 'id="whats-new"' in html and jumper in html
+    assert "2025" in json.loads((new.out / "manifest.json").read_text())["parameters"]["periods"]
