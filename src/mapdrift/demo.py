@@ -8,27 +8,37 @@ code path (clusters, jumps, sentinel zeros, suppressed cells, missing rows,
 mangled IDs, an island) without depicting any real place. The county sits in
 open ocean (lon 0.2-0.9, lat 0.1-0.6, roughly 60 x 50 km).
 
+Rates are persistent, as analysts expect of real neighbourhood rates: a unit's
+log rate is the county-wide cycle plus a smooth spatial surface (ranks spread
+evenly over a factor of about 20), a stable unit effect and a slow AR(1) drift;
+filings are Poisson draws on 1,500-6,000 mortgaged parcels for most units. With
+the default seed consecutive years have Kendall tau about 0.8 and about three
+quarters of unit steps stay in their pooled quintile, so the planted stories are
+what moves.
+
 Planted stories for the default seed 20261201 (layer IDs):
 
 * emerging hot cluster, rates rise from 2018, high-high by 2021-2024:
   07071 07072 07089 07090 07091 07092 07093 07106 07107 07108 07109 07110
 * cooling cluster, high in 2012-2016, back to average by 2020:
   07114 07115 07116 07117 07119 07129 07130 07131 07132 07133
-* single-year jump that stays up (~5 -> ~35 per 1,000): 07074 in 2019,
-  07141 in 2021
+* single-year jump that stays up (~5 -> ~60 per 1,000, bottom to top
+  quintile): 07074 in 2019, 07141 in 2021
 * one-year spike (2017 only, looks like a data error): 07031
 * sentinel zeros: in 2016 the "Tamsivar court district" block reports
-  filings = 0 exactly (its neighbours do not): 07007 07008 07009 07021 07022
+  filings = 0 exactly (its neighbours do not); the district's rates are low
+  anyway, so the zeros do not read as jumps: 07007 07008 07009 07021 07022
   07023 07024 07025 07026 07042 07043 07044
-* small base (< 20 mortgaged parcels): 07038 07066 07101
-* rows absent from filings.csv: 07013 (2018-2020), 07077 (2013-2015),
-  07103 (2018-2020), 07142 (2016)
+* small base (< 20 mortgaged parcels, few filings; a single filing is a rate
+  in the top class): 07038 07066 07101
+* rows absent from filings.csv: 07013 (2013-2014), 07077 (2014-2016),
+  07103 (2018-2019), 07142 (2019-2020)
 * layer unit with no rows at all: 07039; table ID with no polygon: 07999
 * island unit (a small islet off the east coast): 07150
-* new jumper in filings_2025.csv (2nd to top pooled quintile, 3 classes): 07124
-* 15 ``(S)`` suppressed cells (counts 1-4) and 5 blank cells among ordinary
-  units of filings.csv; in both tables about 40% of rows lost the leading
-  zero ("7001").
+* new jumper in filings_2025.csv (bottom to top pooled quintile, 4 classes): 07138
+* 15 ``(S)`` suppressed cells (drawn from the 60 smallest non-zero counts) and
+  5 blank cells among ordinary units of filings.csv; in both tables about 40%
+  of rows lost the leading zero ("7001").
 """
 
 from __future__ import annotations
@@ -47,12 +57,50 @@ LAST_YEAR = 2024
 N_MAINLAND = 149
 CENTER, AXES = np.array([0.55, 0.35]), np.array([0.25, 0.19])
 ORPHAN_ID = "07999"
+# Rate model, log scale. The unit level is the smooth surface (amplitudes of its three
+# waves) plus a stable unit effect (sd), ranked and spread evenly over LEVEL_RANGE; the
+# sentinel-zero district is pulled down to the DIP_TO quantile by a smooth dip (radius in
+# county semi-axes); a slow AR(1) drift (coefficient, innovation sd) rides on top.
+SURFACE = (1.0, 0.8, 0.5)
+UNIT_SD = 0.2
+LEVEL_RANGE = 3.0
+DIP_TO, DIP_RADIUS = 0.12, 0.3
+AR, DRIFT_SD = 0.8, 0.04
+BASE = (1500, 6000)  # mortgaged parcels per unit (clipped to this range)
+BASE_TILT = 0.4  # log parcels fall by this per unit of log rate level
+CLUSTER_RISE = 4.0  # hot cluster 2017 -> 2021 and cooling cluster 2016 <- 2020, log-linear
+CYCLE = (14.0, 5.0, 3.0)  # county rate per 1,000: floor, 2012 peak above it, late rise
 GRID = 1e-7  # coordinate grid (degrees): shared vertices stay identical
-STEMS = ("Ambrelle", "Belvanor", "Corrowin", "Daskettle", "Elvanmere", "Fenwistle",
-         "Glimmerby", "Hollisker", "Jessamire", "Kettlewyn", "Larkspindle",
-         "Merrowquay", "Orrindel", "Quorlan", "Tamsivar", "Velloway")
-PLACES = ("Heath", "Flats", "Rise", "Hollow", "Green", "Landing", "Park",
-          "Crossing", "Terrace", "Reach")
+STEMS = (
+    "Ambrelle",
+    "Belvanor",
+    "Corrowin",
+    "Daskettle",
+    "Elvanmere",
+    "Fenwistle",
+    "Glimmerby",
+    "Hollisker",
+    "Jessamire",
+    "Kettlewyn",
+    "Larkspindle",
+    "Merrowquay",
+    "Orrindel",
+    "Quorlan",
+    "Tamsivar",
+    "Velloway",
+)
+PLACES = (
+    "Heath",
+    "Flats",
+    "Rise",
+    "Hollow",
+    "Green",
+    "Landing",
+    "Park",
+    "Crossing",
+    "Terrace",
+    "Reach",
+)
 CONFIG = """\
 # mapdrift demo configuration: an invented county
 [inputs]
@@ -74,8 +122,10 @@ scheme = "quantile"
 k = 5
 basis = "pooled"
 """
-_COMMAND = ("PYTHONPATH=src python -c \"from pathlib import Path; "
-            "from mapdrift.demo import generate; generate(Path('demo_data'))\"")
+_COMMAND = (
+    'PYTHONPATH=src python -c "from pathlib import Path; '
+    "from mapdrift.demo import generate; generate(Path('demo_data'))\""
+)
 
 
 @dataclass(frozen=True)
@@ -90,8 +140,7 @@ class DemoFiles:
     stories: dict[str, tuple[str, ...]] = field(default_factory=dict, compare=False)
 
 
-def _blob(rng: np.random.Generator, center: np.ndarray, axes: np.ndarray,
-          n: int = 240) -> Polygon:
+def _blob(rng: np.random.Generator, center: np.ndarray, axes: np.ndarray, n: int = 240) -> Polygon:
     """Smooth irregular star-shaped outline: an ellipse with a low-order Fourier radius."""
     t = np.linspace(0.0, 2 * np.pi, n, endpoint=False)
     r = np.ones(n)
@@ -122,12 +171,15 @@ def _tessellate(rng: np.random.Generator, county: Polygon, n: int) -> list[Polyg
     # A cell cut in two by a bay keeps its largest piece; stray pieces join the
     # neighbour they share most boundary with, so every unit is one polygon.
     for i, cell in enumerate(cells):
-        parts = sorted((p for p in shapely.get_parts(cell) if p.geom_type == "Polygon"),
-                       key=lambda p: -p.area)
+        parts = sorted(
+            (p for p in shapely.get_parts(cell) if p.geom_type == "Polygon"), key=lambda p: -p.area
+        )
         cells[i] = parts[0]
         for piece in parts[1:]:
-            j = max((j for j in range(n) if j != i),
-                    key=lambda j: piece.boundary.intersection(cells[j].boundary).length)
+            j = max(
+                (j for j in range(n) if j != i),
+                key=lambda j: piece.boundary.intersection(cells[j].boundary).length,
+            )
             cells[j] = shapely.union(cells[j], piece)
     return list(shapely.set_precision(np.array(cells), GRID))
 
@@ -142,8 +194,9 @@ def _neighbours(geoms: np.ndarray) -> list[set[int]]:
     return nb
 
 
-def _grow(target: np.ndarray, size: int, xy: np.ndarray, nb: list[set[int]],
-          blocked: set[int]) -> list[int]:
+def _grow(
+    target: np.ndarray, size: int, xy: np.ndarray, nb: list[set[int]], blocked: set[int]
+) -> list[int]:
     """Compact contiguous cluster: start nearest ``target``, add the closest frontier unit."""
     free = [i for i in range(len(nb)) if i not in blocked]
     seed = min(free, key=lambda i: np.hypot(*(xy[i] - target)))
@@ -156,9 +209,10 @@ def _grow(target: np.ndarray, size: int, xy: np.ndarray, nb: list[set[int]],
 
 def _cycle(years: np.ndarray) -> np.ndarray:
     """County-wide rate per 1,000: peak in 2012, trough about 2018, mild rise late."""
-    early = 5.0 * np.exp(-(((years - 2012) / 3.5) ** 2))
-    late = 2.0 / (1.0 + np.exp(-(years - 2021.0)))
-    return 6.0 + early + late
+    floor, peak, rise = CYCLE
+    early = peak * np.exp(-(((years - 2012) / 3.5) ** 2))
+    late = rise / (1.0 + np.exp(-(years - 2021.0)))
+    return floor + early + late
 
 
 def generate(out_dir: Path, *, seed: int = 20261201) -> DemoFiles:
@@ -175,12 +229,18 @@ def generate(out_dir: Path, *, seed: int = 20261201) -> DemoFiles:
     county = _blob(rng, CENTER, AXES)
     cells = _tessellate(rng, county, N_MAINLAND)
     ang = 0.35
-    coast = shapely.get_coordinates(county.exterior.intersection(shapely.LineString(
-        [CENTER, CENTER + 2 * AXES * [np.cos(ang), np.sin(ang)]])))[0]
-    islet = _blob(rng, coast + 0.035 * np.array([np.cos(ang), np.sin(ang)]),
-                  np.array([0.011, 0.008]), n=48)
-    order = sorted(range(N_MAINLAND), key=lambda i: (
-        -np.floor(cells[i].centroid.y / 0.04), cells[i].centroid.x))
+    coast = shapely.get_coordinates(
+        county.exterior.intersection(
+            shapely.LineString([CENTER, CENTER + 2 * AXES * [np.cos(ang), np.sin(ang)]])
+        )
+    )[0]
+    islet = _blob(
+        rng, coast + 0.035 * np.array([np.cos(ang), np.sin(ang)]), np.array([0.011, 0.008]), n=48
+    )
+    order = sorted(
+        range(N_MAINLAND),
+        key=lambda i: (-np.floor(cells[i].centroid.y / 0.04), cells[i].centroid.x),
+    )
     geoms = np.array([cells[i] for i in order] + [shapely.set_precision(islet, GRID)])
     n = len(geoms)
     ids = np.array([f"07{i + 1:03d}" for i in range(n)])
@@ -192,42 +252,86 @@ def generate(out_dir: Path, *, seed: int = 20261201) -> DemoFiles:
     # --- planted stories: three disjoint compact blocks, then scattered singles
     blocked: set[int] = {n - 1}
     blocks = {}
-    for key, size, where in (("emerging_hot", 12, [0.6, 0.0]), ("cooling", 10, [-0.5, -0.55]),
-                             ("sentinel_zeros_2016", 12, [-0.45, 0.55])):
+    for key, size, where in (
+        ("emerging_hot", 12, [0.6, 0.0]),
+        ("cooling", 10, [-0.5, -0.55]),
+        ("sentinel_zeros_2016", 12, [-0.45, 0.55]),
+    ):
         blocks[key] = _grow(CENTER + AXES * where, size, xy, nb, blocked)
         blocked |= set(blocks[key]) | {j for i in blocks[key] for j in nb[i]}
     singles: dict[str, list[int]] = {}
-    for key, count in (("jump_2019", 1), ("jump_2021", 1), ("spike_2017", 1),
-                       ("small_base", 3), ("missing_years", 4), ("no_rows", 1)):
+    for key, count in (
+        ("jump_2019", 1),
+        ("jump_2021", 1),
+        ("spike_2017", 1),
+        ("small_base", 3),
+        ("missing_years", 4),
+        ("no_rows", 1),
+    ):
         singles[key] = []
         for _ in range(count):
             pick = int(rng.choice([i for i in range(n) if i not in blocked]))
             singles[key].append(pick)
             blocked |= {pick} | nb[pick]
-    big = blocks["emerging_hot"] + blocks["cooling"] + singles["jump_2019"] \
-        + singles["jump_2021"] + singles["spike_2017"]
+    big = (
+        blocks["emerging_hot"]
+        + blocks["cooling"]
+        + singles["jump_2019"]
+        + singles["jump_2021"]
+        + singles["spike_2017"]
+    )
 
-    # --- rates per 1,000 and parcels; row n is the orphan ID with no polygon
+    # --- rates per 1,000 and parcels; row n is the orphan ID with no polygon.
+    # log rate = county cycle + smooth surface + stable unit effect + slow AR(1) drift,
+    # so a unit keeps its level from year to year and the Poisson noise stays modest.
     m, T = n + 1, len(YEARS)
-    u, v = ((np.vstack([xy, CENTER]) - CENTER) / AXES).T
+    pts = np.vstack([xy, CENTER])
+    u, v = ((pts - CENTER) / AXES).T
     ph = rng.uniform(0, 2 * np.pi, 3)
-    spatial = np.exp(0.45 * np.sin(1.7 * u + ph[0]) + 0.35 * np.cos(1.3 * v + ph[1])
-                     + 0.2 * np.sin(1.1 * (u + v) + ph[2]) + rng.normal(0, 0.12, m))
-    spatial[blocks["emerging_hot"] + blocks["cooling"]] = 1.0
-    rate = spatial[:, None] * _cycle(YEARS)[None, :]
-    rate[blocks["emerging_hot"]] *= 1 + 2.8 * np.clip((YEARS - 2017) / 4, 0, 1)
-    rate[blocks["cooling"]] *= 1 + 2.2 * np.clip((2020 - YEARS) / 4, 0, 1)
+    surface = (
+        SURFACE[0] * np.sin(1.7 * u + ph[0])
+        + SURFACE[1] * np.cos(1.3 * v + ph[1])
+        + SURFACE[2] * np.sin(1.1 * (u + v) + ph[2])
+    )
+    # spread the ranks evenly over LEVEL_RANGE (log scale): wide middle classes, no long tails
+    level = surface + rng.normal(0, UNIT_SD, m)
+    level = LEVEL_RANGE * ((np.argsort(np.argsort(level)) + 0.5) / m - 0.5)
+    # the Tamsivar court district files few foreclosures: a smooth dip brings its block down
+    # to the bottom fifth, so a 0 there reads as a code, not as a jump of several classes
+    zero = blocks["sentinel_zeros_2016"]
+    dist = np.hypot(*((pts - pts[zero].mean(axis=0)) / (DIP_RADIUS * AXES)).T)
+    depth = max(0.0, float(np.mean(level[zero])) - np.quantile(level, DIP_TO))
+    level -= depth * np.exp(-(dist**2)) / np.mean(np.exp(-(dist[zero] ** 2)))
+    drift = np.empty((m, T))
+    drift[:, 0] = rng.normal(0, DRIFT_SD / np.sqrt(1 - AR**2), m)
+    for t in range(1, T):
+        drift[:, t] = AR * drift[:, t - 1] + rng.normal(0, DRIFT_SD, m)
+    clusters = blocks["emerging_hot"] + blocks["cooling"]
+    level[clusters] = np.log(1.15) + rng.normal(0, UNIT_SD / 2, len(clusters))
+    log_rate = np.log(_cycle(YEARS))[None, :] + level[:, None] + drift
+    log_rate[blocks["emerging_hot"]] += np.log(CLUSTER_RISE) * np.clip((YEARS - 2017) / 4, 0, 1)
+    log_rate[blocks["cooling"]] += np.log(CLUSTER_RISE) * np.clip((2020 - YEARS) / 4, 0, 1)
     for key, year in (("jump_2019", 2019), ("jump_2021", 2021)):
-        rate[singles[key]] = np.where(year > YEARS, 5.0, 35.0)
-    rate[singles["spike_2017"], YEARS == 2017] *= 6.0
-    base = 300.0 * 10.0 ** np.sqrt(rng.random(m))  # 300-3000, most above 1,000
-    base[big] = rng.uniform(1500, 3000, len(big))
-    growth = rng.uniform(-0.01, 0.015, m)
+        lo_hi = np.quantile(level[:n], [0.1, 0.95])
+        log_rate[singles[key]] = (
+            np.log(_cycle(YEARS)) + np.where(year > YEARS, *lo_hi) + drift[singles[key]] / 2
+        )
+    spike, tiny = singles["spike_2017"], singles["small_base"]
+    log_rate[spike] += np.quantile(level[:n], 0.3) - level[spike]  # a middling unit
+    low = np.quantile(level[:n], 0.05)
+    log_rate[tiny] += (low - level[tiny])[:, None]  # few mortgages, few filings
+    rate = np.exp(log_rate)
+    rate[spike, YEARS == 2017] *= 6.0
+    # fewer mortgages where filings run high (as in poorer neighbourhoods), more where low
+    lo, hi = np.log(BASE)
+    base = np.exp(np.clip((lo + hi) / 2 - BASE_TILT * level + rng.normal(0, 0.3, m), lo, hi))
+    sure = big + zero  # stories that must read clearly get a large base
+    base[sure] = rng.uniform(3000, 6000, len(sure))
+    growth = rng.uniform(-0.008, 0.008, m)
     parcels = np.rint(base[:, None] * (1 + growth[:, None] * (YEARS - 2012))).astype(int)
     parcels[singles["small_base"]] = rng.integers(8, 20, (3, 1))
     filings = rng.poisson(rate * parcels / 1000.0)
     t16 = int(np.flatnonzero(YEARS == 2016)[0])
-    zero = blocks["sentinel_zeros_2016"]
     filings[zero, t16] = 0  # not-reported code
     for i in sorted({j for k in zero for j in nb[k]} - set(zero)):
         while filings[i, t16] == 0:  # the block must stand out against reporting neighbours
@@ -242,15 +346,29 @@ def generate(out_dir: Path, *, seed: int = 20261201) -> DemoFiles:
 
     # --- long tables with the planted defects
     all_ids = np.append(ids, ORPHAN_ID)
-    miss = {i: YEARS[s: s + k] for i in singles["missing_years"]
-            for k in [int(rng.integers(1, 4))] for s in [int(rng.integers(1, 12 - k))]}
-    keep = [(i, t) for i in range(m) if i not in singles["no_rows"] for t in range(T - 1)
-            if YEARS[t] not in miss.get(i, ())]
+    miss = {
+        i: YEARS[s : s + k]
+        for i in singles["missing_years"]
+        for k in [int(rng.integers(1, 4))]
+        for s in [int(rng.integers(1, 12 - k))]
+    }
+    keep = [
+        (i, t)
+        for i in range(m)
+        if i not in singles["no_rows"]
+        for t in range(T - 1)
+        if YEARS[t] not in miss.get(i, ())
+    ]
     cells_txt = {(i, t): str(filings[i, t]) for i, t in keep}
-    flagged = set(big) | set(blocks["sentinel_zeros_2016"]) | {nj, n} \
+    flagged = (
+        set(big)
+        | set(blocks["sentinel_zeros_2016"])
+        | {nj, n}
         | {i for v in singles.values() for i in v}
+    )
     ordinary = [c for c in keep if c[0] not in flagged]
-    small = [c for c in ordinary if 1 <= filings[c] <= 4]
+    # suppression hits small counts: 15 of the 60 smallest non-zero cells
+    small = sorted((c for c in ordinary if filings[c] >= 1), key=lambda c: filings[c])[:60]
     for c in (small[j] for j in rng.choice(len(small), 15, replace=False)):
         cells_txt[c] = "(S)"
     rest = [c for c in ordinary if cells_txt[c] != "(S)"]
@@ -260,46 +378,86 @@ def generate(out_dir: Path, *, seed: int = 20261201) -> DemoFiles:
     def frame(rows: list[tuple[int, int]], text: dict[tuple[int, int], str]) -> pd.DataFrame:
         uid = [all_ids[i] for i, _ in rows]
         drop = rng.random(len(rows)) < 0.4  # spreadsheet ate the leading zero
-        return pd.DataFrame({"unit_id": [s[1:] if d else s for s, d in zip(uid, drop, strict=True)],
-                             "year": [int(YEARS[t]) for _, t in rows],
-                             "filings": [text[c] for c in rows],
-                             "mortgaged_parcels": [int(parcels[c]) for c in rows]})
+        return pd.DataFrame(
+            {
+                "unit_id": [s[1:] if d else s for s, d in zip(uid, drop, strict=True)],
+                "year": [int(YEARS[t]) for _, t in rows],
+                "filings": [text[c] for c in rows],
+                "mortgaged_parcels": [int(parcels[c]) for c in rows],
+            }
+        )
 
     stories = {k: tuple(sorted(map(str, ids[v]))) for k, v in (blocks | singles).items()}
-    stories |= {"island": (str(ids[n - 1]),), "new_jumper_2025": (str(ids[nj]),),
-                "orphan_table_id": (ORPHAN_ID,)}
-    files = DemoFiles(out_dir / "county_units.gpkg", out_dir / "filings.csv",
-                      out_dir / "filings_2025.csv", out_dir / "demo.toml", out_dir / "README.md",
-                      stories=stories)
+    stories |= {
+        "island": (str(ids[n - 1]),),
+        "new_jumper_2025": (str(ids[nj]),),
+        "orphan_table_id": (ORPHAN_ID,),
+    }
+    files = DemoFiles(
+        out_dir / "county_units.gpkg",
+        out_dir / "filings.csv",
+        out_dir / "filings_2025.csv",
+        out_dir / "demo.toml",
+        out_dir / "README.md",
+        stories=stories,
+    )
     frame(keep, cells_txt).to_csv(files.table, index=False, lineterminator="\n")
     nxt = [(i, T - 1) for i in range(m) if i not in singles["no_rows"]]
     frame(nxt, {c: str(filings[c]) for c in nxt}).to_csv(
-        files.table_next, index=False, lineterminator="\n")
+        files.table_next, index=False, lineterminator="\n"
+    )
     files.geometry.unlink(missing_ok=True)
     gpd.GeoDataFrame({"unit_id": ids, "name": names}, geometry=geoms, crs="EPSG:4326").to_file(
-        files.geometry, layer="units", driver="GPKG", engine="pyogrio")
+        files.geometry, layer="units", driver="GPKG", engine="pyogrio"
+    )
     files.config.write_text(CONFIG, encoding="utf-8")
-    gaps = ", ".join(f"{ids[i]} ({y[0]}-{y[-1]})" if len(y) > 1 else f"{ids[i]} ({y[0]})"
-                     for i, y in sorted(miss.items()))
-    files.readme.write_text(_readme(files.stories, gaps, seed, n), encoding="utf-8")
+    rates = filings[:, :-1] / parcels[:, :-1] * 1000.0
+    facts = {
+        key: tuple(
+            5 * round(float(np.median(rates[singles[key][0], sel])) / 5)
+            for sel in (YEARS[:-1] < year, YEARS[:-1] >= year)
+        )
+        for key, year in (("jump_2019", 2019), ("jump_2021", 2021))
+    }
+    facts["suppressed"] = (int(min(filings[c] for c in small)), int(max(filings[c] for c in small)))
+    gaps = ", ".join(
+        f"{ids[i]} ({y[0]}-{y[-1]})" if len(y) > 1 else f"{ids[i]} ({y[0]})"
+        for i, y in sorted(miss.items())
+    )
+    files.readme.write_text(_readme(files.stories, gaps, facts, seed, n), encoding="utf-8")
     return files
 
 
-def _readme(st: dict[str, tuple[str, ...]], gaps: str, seed: int, n_units: int) -> str:
-    """README text for the demo folder, listing the planted stories."""
-    rows = [("Emerging hot cluster (rises from 2018, high by 2021-2024)", st["emerging_hot"]),
-            ("Cooling cluster (high 2012-2016, average by 2020)", st["cooling"]),
-            ("Jump that stays up (~5 to ~35 per 1,000 in 2019)", st["jump_2019"]),
-            ("Jump that stays up (~5 to ~35 per 1,000 in 2021)", st["jump_2021"]),
-            ("One-year spike in 2017 (looks like a data error)", st["spike_2017"]),
-            ("Sentinel zeros in 2016 (Tamsivar court district, not reported)",
-             st["sentinel_zeros_2016"]),
-            ("Small base (< 20 mortgaged parcels)", st["small_base"]),
-            (f"Rows absent from filings.csv: {gaps}", st["missing_years"]),
-            ("Layer unit with no rows at all", st["no_rows"]),
-            ("Table ID with no polygon", st["orphan_table_id"]),
-            ("Island unit (islet off the east coast)", st["island"]),
-            ("New jumper in filings_2025.csv (>= 2 classes up)", st["new_jumper_2025"])]
+def _readme(
+    st: dict[str, tuple[str, ...]],
+    gaps: str,
+    facts: dict[str, tuple[int, int]],
+    seed: int,
+    n_units: int,
+) -> str:
+    """README text for the demo folder, listing the planted stories.
+
+    ``facts`` holds figures measured on the generated data: the jump units' median rate
+    before/after their jump and the range of the counts hidden behind ``(S)``.
+    """
+    j19, j21, sup = facts["jump_2019"], facts["jump_2021"], facts["suppressed"]
+    rows = [
+        ("Emerging hot cluster (rises from 2018, high by 2021-2024)", st["emerging_hot"]),
+        ("Cooling cluster (high 2012-2016, average by 2020)", st["cooling"]),
+        (f"Jump that stays up (~{j19[0]} to ~{j19[1]} per 1,000 in 2019)", st["jump_2019"]),
+        (f"Jump that stays up (~{j21[0]} to ~{j21[1]} per 1,000 in 2021)", st["jump_2021"]),
+        ("One-year spike in 2017 (looks like a data error)", st["spike_2017"]),
+        (
+            "Sentinel zeros in 2016 (Tamsivar court district, not reported)",
+            st["sentinel_zeros_2016"],
+        ),
+        ("Small base (< 20 mortgaged parcels)", st["small_base"]),
+        (f"Rows absent from filings.csv: {gaps}", st["missing_years"]),
+        ("Layer unit with no rows at all", st["no_rows"]),
+        ("Table ID with no polygon", st["orphan_table_id"]),
+        ("Island unit (islet off the east coast)", st["island"]),
+        ("New jumper in filings_2025.csv (>= 2 classes up)", st["new_jumper_2025"]),
+    ]
     table = "\n".join(f"| {what} | {' '.join(who)} |" for what, who in rows)
     return f"""# Demo data: Quillmarsh County (invented)
 
@@ -319,8 +477,12 @@ Generated by `mapdrift.demo.generate` with seed {seed}:
     {_COMMAND}
 
 Filings are Poisson draws around a county-wide cycle (peak 2012, trough about
-2018, mild rise after) with smooth spatial variation. Defects on purpose: 15
-`(S)` suppressed cells and 5 blank `filings` cells, and about 40% of rows
+2018, mild rise after). Each unit keeps its own level from year to year: a
+smooth spatial surface plus a stable unit effect, with a slow AR(1) drift on
+top, so ranks persist from year to year and most of the change is the planted
+stories. Most units have 1,500-6,000 mortgaged parcels (fewer
+where filing rates run high). Defects on purpose: 15 `(S)` suppressed cells
+(counts {sup[0]}-{sup[1]}) and 5 blank `filings` cells, and about 40% of rows
 with the leading zero of `unit_id` dropped (`7001` for `07001`).
 
 ## Planted stories
