@@ -10,6 +10,7 @@ Parsed with :mod:`tomllib` only.
 from __future__ import annotations
 
 import dataclasses
+import os
 import re
 import sys
 import types
@@ -192,7 +193,7 @@ def _coerce(value: Any, tp: Any, base: Path | None) -> Any:
         if not isinstance(value, str):
             raise TypeError("a path string")
         p = Path(value).expanduser()
-        return p if p.is_absolute() or base is None else base / p
+        return p if p.is_absolute() or base is None else Path(os.path.normpath(base / p))
     if isinstance(tp, type) and isinstance(value, tp):
         return value
     raise TypeError(_type_name(tp))

@@ -35,7 +35,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from mapdrift.errors import ConfigError
-from mapdrift.findings import Finding, examples
+from mapdrift.findings import Finding, examples, plural
 
 if TYPE_CHECKING:
     import geopandas as gpd
@@ -406,15 +406,15 @@ def build_weights(
         shown = ", ".join(_unit_ids(ids, island_idx[:5]))
         if islands == "nearest":
             m = _attach_nearest(geoms, m, island_idx)
-            what = "linked to their nearest unit (--islands nearest)"
+            what = "linked to the nearest unit (--islands nearest)"
         else:
             what = "left without neighbours and labelled isolated (--islands exclude)"
         findings.append(
             Finding(
                 "warning",
                 "weights-islands",
-                f"{len(island_idx)} units have no neighbour under {kind_text} weights "
-                f"(e.g. {shown}); {what}",
+                f"units with no neighbour under {kind_text} weights: {shown} "
+                f"({plural(len(island_idx), 'unit')}); {what}",
                 _unit_ids(ids, island_idx),
             )
         )

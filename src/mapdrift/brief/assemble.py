@@ -132,11 +132,16 @@ def top_movers(state: RunState, n: int = 10) -> pd.DataFrame | None:
     j = ch.jumps.copy()
     j["abs"] = j["size"].abs()
     j = j.sort_values(["abs", "to_period", "unit"], ascending=[False, False, True]).head(n)
+    small = {u for f in state.findings if f.code == "rates-small-base" for u in f.units}
+    check = [
+        "; ".join(x for x in ("came back: check data" if s else "", "small base: unstable" if u in small else "") if x)
+        for u, s in zip(j["unit"], j["spike"])
+    ]
     return j.assign(
         step=[f"{a}→{b}" for a, b in zip(j["from_period"], j["to_period"])],
         classes=[f"{a}→{b}" for a, b in zip(j["from_class"], j["to_class"])],
         values=[f"{a:.1f}→{b:.1f}" for a, b in zip(j["value_before"], j["value_after"])],
-        check=np.where(j["spike"], "came back: check data", ""),
+        check=check,
     )[["unit", "name", "step", "classes", "values", "check"]]
 
 

@@ -43,6 +43,7 @@ class WhatsNew:
     new_trends: pd.DataFrame
     ended_trends: pd.DataFrame
     findings: tuple[str, ...] = field(default=())
+    small_base: frozenset[str] = field(default=frozenset())
 
     def bullets(self) -> list[str]:
         """One sentence per kind of news, for the report and the slide."""
@@ -162,9 +163,11 @@ def compare_runs(
         new_jumps = cur[mask]
     else:
         new_jumps = cur.reset_index(drop=True) if len(cur) else _empty(key)
-    if len(new_jumps):  # largest first: the clearest news leads
-        order = new_jumps.assign(_abs=new_jumps["size"].abs()).sort_values(["_abs", "to_period", "unit"], ascending=[False, False, True])
-        new_jumps = order.drop(columns="_abs").reset_index(drop=True)
+    small = frozenset(u for f in findings if f.code == "rates-small-base" for u in f.units)
+    if len(new_jumps):  # the clearest news leads: reliable bases first, then the largest moves
+        order = new_jumps.assign(_small=new_jumps["unit"].isin(small), _abs=new_jumps["size"].abs())
+        order = order.sort_values(["_small", "_abs", "to_period", "unit"], ascending=[True, False, False, True])
+        new_jumps = order.drop(columns=["_small", "_abs"]).reset_index(drop=True)
     old_ev = _events(_read(previous, "cluster_changes.csv"))
     now_ev = _events(cluster_changes)
     ev_rows = sorted(now_ev - old_ev, key=lambda t: (t[2], t[1], t[0]))
@@ -201,4 +204,5 @@ def compare_runs(
         new_trends=new_trends,
         ended_trends=ended,
         findings=tuple(_finding_news(prev_findings, findings)),
+        small_base=small,
     )
