@@ -50,7 +50,8 @@ class WhatsNew:
         out = []
         if len(self.new_jumps):
             ex = [
-                f"{r.unit} ({r.from_period}→{r.to_period}, {r.direction} {abs(int(r.size))})"
+                f"{r.unit} ({r.from_period}→{r.to_period}, {r.direction} {abs(int(r.size))}"
+                + (", small base: unstable)" if r.unit in self.small_base else ")")
                 for r in self.new_jumps.itertuples()
             ]
             out.append(f"{plural(len(self.new_jumps), 'new jump')}: {examples(ex)}.")
@@ -166,7 +167,9 @@ def compare_runs(
     small = frozenset(u for f in findings if f.code == "rates-small-base" for u in f.units)
     if len(new_jumps):  # the clearest news leads: reliable bases first, then the largest moves
         order = new_jumps.assign(_small=new_jumps["unit"].isin(small), _abs=new_jumps["size"].abs())
-        order = order.sort_values(["_small", "_abs", "to_period", "unit"], ascending=[True, False, False, True])
+        order = order.sort_values(
+            ["_small", "_abs", "to_period", "unit"], ascending=[True, False, False, True]
+        )
         new_jumps = order.drop(columns=["_small", "_abs"]).reset_index(drop=True)
     old_ev = _events(_read(previous, "cluster_changes.csv"))
     now_ev = _events(cluster_changes)
