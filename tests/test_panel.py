@@ -303,3 +303,34 @@ def test_column_errors_name_file_and_fix(layer_file, table_file):
         load_panel(InputSpec(geometry=layer, table=t, id="unit_id", period="year"))
     with pytest.raises(InputError, match="not found"):
         load_panel(spec(layer.with_name("nope.gpkg"), t))
+
+
+@pytest.mark.parametrize("suffix", [".geojson", ".fgb", ".parquet", ".shp"])
+def test_layer_formats(tmp_path, table_file, suffix):
+    # Open formats (GeoJSON, FlatGeobuf, GeoParquet, Shapefile) give the same panel.
+    gdf = grid_layer(2, crs="EPSG:3857")
+    path = tmp_path / f"units{suffix}"
+    if suffix == ".parquet":
+        gdf.to_parquet(path)
+    else:
+        gdf.to_file(path)
+    ids = [f"{i + 1:05d}" for i in range(4)]
+    p = load_panel(spec(path, table_file(long_rows(ids, YEARS))))
+    # FlatGeobuf's spatial index may reorder features: the panel follows the layer's order
+    assert sorted(p.units) == ids and p.values[p.units.index("00004"), 2] == 3 + 20
+
+
+@pytest.mark.parametrize("suffix", [".tsv", ".parquet", ".xlsx"])
+def test_table_formats(layer_file, tmp_path, suffix):
+    layer = layer_file(n_side=2)
+    ids = [f"{i + 1:05d}" for i in range(4)]
+    df = pd.DataFrame(long_rows(ids, YEARS))
+    path = tmp_path / f"values{suffix}"
+    if suffix == ".tsv":
+        df.to_csv(path, sep="\t", index=False)
+    elif suffix == ".parquet":
+        df.to_parquet(path)
+    else:
+        df.to_excel(path, index=False)
+    p = load_panel(spec(layer, path))
+    assert p.periods == tuple(YEARS) and p.values[0, 0] == 18.0

@@ -47,6 +47,7 @@ def read_table(path: Path) -> pd.DataFrame:
         elif suffix == ".tsv":
             df = pd.read_csv(path, dtype=str, keep_default_na=False, sep="\t", encoding="utf-8-sig")
         elif suffix == ".parquet":
+            _need_pyarrow(path)
             df = pd.read_parquet(path)
             df = df.astype(object).where(df.notna(), "").astype(str)
         elif suffix == ".xlsx":
@@ -142,3 +143,13 @@ def to_numbers(
             )
             out[hit] = np.nan
     return out, findings
+
+
+def _need_pyarrow(path: Path) -> None:
+    try:
+        import pyarrow  # noqa: F401
+    except ImportError:
+        raise InputError(
+            f"{path}: reading Parquet needs pyarrow; `pip install pyarrow` (or mapdrift[parquet]) "
+            "or save the file as GeoPackage/CSV"
+        ) from None

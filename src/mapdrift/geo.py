@@ -48,6 +48,7 @@ def read_layer(path: Path, layer: str | None) -> gpd.GeoDataFrame:
         )
     try:
         if suffix in (".parquet", ".geoparquet"):
+            _need_pyarrow(path)
             gdf = gpd.read_parquet(path)
         else:
             if suffix == ".gpkg" and layer is None:
@@ -249,3 +250,13 @@ def prepare_geometry(
             )
         )
     return gdf, findings
+
+
+def _need_pyarrow(path: Path) -> None:
+    try:
+        import pyarrow  # noqa: F401
+    except ImportError:
+        raise InputError(
+            f"{path}: reading Parquet needs pyarrow; `pip install pyarrow` (or mapdrift[parquet]) "
+            "or save the file as GeoPackage/CSV"
+        ) from None
