@@ -495,8 +495,13 @@ def run(
     force: bool = False,
     progress: Progress | None = None,
     steps: list[tuple[str, Callable[[RunState], str]]] | None = None,
+    on_start: Progress | None = None,
 ) -> RunResult:
-    """Run every step into ``out``; raise StepError naming the failed step (``out`` untouched)."""
+    """Run every step into ``out``; raise StepError naming the failed step (``out`` untouched).
+
+    ``progress`` gets one summary line per finished step; ``on_start`` the name of each step as
+    it starts (the CLI shows a spinner with it).
+    """
     run_spec: RunSpec = merge(RunSpec, config.section("run"), {})
     out = Path(out or run_spec.out or default_out(config))
     prepare_out(out, force=force)
@@ -515,6 +520,8 @@ def run(
     try:
         for name, step in steps or STEPS:
             t0 = time.perf_counter()
+            if on_start is not None:
+                on_start(name)
             try:
                 summary = step(state)
             except MapdriftError as exc:

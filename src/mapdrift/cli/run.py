@@ -18,11 +18,25 @@ def _o(default: Any, *names: str, help: str) -> Any:
 
 def run_config(config: Any, *, out: Path | None, force: bool) -> Any:
     """Run the pipeline with progress lines; shared by ``run`` and ``demo``."""
+    import sys
+
     from mapdrift.pipeline import run
 
-    target = out
-    echo(f"mapdrift run: {config.path}" + (f" -> {target}" if target else ""))
-    result = run(config, out=out, force=force, progress=echo)
+    echo(f"mapdrift run: {config.path}" + (f" -> {out}" if out else ""))
+    if state.get("quiet") or not sys.stdout.isatty():
+        result = run(config, out=out, force=force, progress=echo)
+    else:  # a spinner naming the running step, one line per finished step
+        from rich.console import Console
+
+        console = Console()
+        with console.status("starting") as status:
+            result = run(
+                config,
+                out=out,
+                force=force,
+                progress=lambda line: console.print(line, markup=False, highlight=False),
+                on_start=lambda name: status.update(f"running {name} ..."),
+            )
     n_warn = sum(f.level == "warning" for f in result.findings)
     echo(
         f"done: {len(result.outputs)} files in {result.out} ({n_warn} data warnings; see report.html)"
@@ -101,5 +115,4 @@ def run_cmd(
         },
     )
     cfg = cfg.with_values("brief", {"title": title})
-    _ = state
     run_config(cfg, out=out, force=force)
