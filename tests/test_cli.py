@@ -102,3 +102,18 @@ def test_main_returns_exit_codes(capsys):
     assert main(["check", "/nonexistent.gpkg"]) == 1
     assert "geometry file not found" in capsys.readouterr().err
     assert main(["--version"]) == 0
+
+
+def test_run_usage_and_output_exists(runner, tmp_path):
+    r = runner.invoke(app, ["run", str(tmp_path / "nope.toml")])
+    assert r.exit_code == 2 and "config file not found" in r.output
+    bad = tmp_path / "bad.toml"
+    bad.write_text('[inputs]\ngeometry = "x.gpkg"\n[clusters]\npermutatons = 99\n')
+    r = runner.invoke(app, ["run", str(bad)])
+    assert r.exit_code == 2 and "bad.toml:4: key 'permutatons' in [clusters] is not a known key" in r.output
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "report.html").write_text("last year's")
+    r = runner.invoke(app, ["run", str(DEMO / "demo.toml"), "--out", str(out)])
+    assert r.exit_code == 3 and "--force" in r.output
+    assert (out / "report.html").read_text() == "last year's"
