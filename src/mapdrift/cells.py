@@ -21,7 +21,7 @@ from mapdrift.findings import Finding, examples
 if TYPE_CHECKING:
     import pandas as pd
 
-__all__ = ["TABLE_SUFFIXES", "read_table", "to_numbers"]
+__all__ = ["TABLE_SUFFIXES", "need_pyarrow", "read_table", "to_numbers"]
 
 TABLE_SUFFIXES = (".csv", ".tsv", ".txt", ".parquet", ".xlsx")
 _THOUSANDS = re.compile(r"^[+-]?\d{1,3}(,\d{3})+(\.\d+)?$")
@@ -47,7 +47,7 @@ def read_table(path: Path) -> pd.DataFrame:
         elif suffix == ".tsv":
             df = pd.read_csv(path, dtype=str, keep_default_na=False, sep="\t", encoding="utf-8-sig")
         elif suffix == ".parquet":
-            _need_pyarrow(path)
+            need_pyarrow(path)
             df = pd.read_parquet(path)
             df = df.astype(object).where(df.notna(), "").astype(str)
         elif suffix == ".xlsx":
@@ -145,7 +145,8 @@ def to_numbers(
     return out, findings
 
 
-def _need_pyarrow(path: Path) -> None:
+def need_pyarrow(path: Path) -> None:
+    """Raise a one-line InputError when Parquet is asked for but pyarrow is missing."""
     try:
         import pyarrow  # noqa: F401
     except ImportError:

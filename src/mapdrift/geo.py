@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from mapdrift.cells import need_pyarrow
 from mapdrift.errors import InputError
 from mapdrift.findings import Finding, examples
 
@@ -48,7 +49,7 @@ def read_layer(path: Path, layer: str | None) -> gpd.GeoDataFrame:
         )
     try:
         if suffix in (".parquet", ".geoparquet"):
-            _need_pyarrow(path)
+            need_pyarrow(path)
             gdf = gpd.read_parquet(path)
         else:
             if suffix == ".gpkg" and layer is None:
@@ -251,12 +252,3 @@ def prepare_geometry(
         )
     return gdf, findings
 
-
-def _need_pyarrow(path: Path) -> None:
-    try:
-        import pyarrow  # noqa: F401
-    except ImportError:
-        raise InputError(
-            f"{path}: reading Parquet needs pyarrow; `pip install pyarrow` (or mapdrift[parquet]) "
-            "or save the file as GeoPackage/CSV"
-        ) from None

@@ -60,7 +60,9 @@ def write_csv(
             out[col] = out[col].map(defuse)
     out.columns = [defuse(str(c)) for c in out.columns]
     if index:
+        name = out.index.name
         out.index = out.index.map(defuse)
+        out.index.name = defuse(name) if isinstance(name, str) else name
     text = out.to_csv(index=index, float_format=float_format, lineterminator="\n")
     if warning:
         text = f"# {warning}\n" + text

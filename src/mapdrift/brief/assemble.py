@@ -134,7 +134,14 @@ def top_movers(state: RunState, n: int = 10) -> pd.DataFrame | None:
     j = j.sort_values(["abs", "to_period", "unit"], ascending=[False, False, True]).head(n)
     small = {u for f in state.findings if f.code == "rates-small-base" for u in f.units}
     check = [
-        "; ".join(x for x in ("came back: check data" if s else "", "small base: unstable" if u in small else "") if x)
+        "; ".join(
+            x
+            for x in (
+                "came back: check data" if s else "",
+                "small base: unstable" if u in small else "",
+            )
+            if x
+        )
         for u, s in zip(j["unit"], j["spike"])
     ]
     return j.assign(

@@ -13,7 +13,16 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from mapdrift.atomic import atomic_path
-from mapdrift.brief.slides import MARGIN, Box, Slide, W, layout, table_cells, table_geometry
+from mapdrift.brief.slides import (
+    MARGIN,
+    Box,
+    Slide,
+    W,
+    layout,
+    split_text_region,
+    table_cells,
+    table_geometry,
+)
 from mapdrift.brief.textfit import fit
 
 __all__ = ["EMU_PER_PX", "FONT", "write_deck"]
@@ -164,19 +173,11 @@ def write_deck(slides: Sequence[Slide], path: Path, *, footer: str = "") -> Path
                     if p.exists():
                         _picture(sh, p, box)
             if r.text is not None:
-                tb = r.text
-                if s.table is not None:
-                    cells = table_cells(s.table)
-                    tbox = (
-                        tb
-                        if not s.bullets
-                        else (tb[0], tb[1], tb[2], tb[1] + 0.7 * (tb[3] - tb[1]))
-                    )
-                    size, _w = table_geometry(cells, tbox)
-                    _table(sh, s, tbox)
-                    tb = (tb[0], tb[1] + size * 1.5 * len(cells) + 30, tb[2], tb[3])
-                if s.bullets:
-                    _textbox(sh, tb, list(s.bullets), max_px=34, min_px=16, bullets=True)
+                table_box, bullets_box = split_text_region(s, r.text)
+                if table_box is not None:
+                    _table(sh, s, table_box)
+                if bullets_box is not None:
+                    _textbox(sh, bullets_box, list(s.bullets), max_px=34, min_px=16, bullets=True)
             if s.caption:
                 _textbox(sh, r.caption, [s.caption], max_px=24, colour=(91, 100, 117))
         foot = f"{footer}   {n}/{len(slides)}" if footer else f"{n}/{len(slides)}"

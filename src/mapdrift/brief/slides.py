@@ -17,7 +17,16 @@ if TYPE_CHECKING:
     import pandas as pd
     from PIL import Image
 
-__all__ = ["H", "W", "Box", "Slide", "draw_slide", "layout", "write_slide_pngs"]
+__all__ = [
+    "H",
+    "W",
+    "Box",
+    "Slide",
+    "draw_slide",
+    "layout",
+    "split_text_region",
+    "write_slide_pngs",
+]
 
 W, H = 1920, 1080
 MARGIN = 80
@@ -183,11 +192,24 @@ def table_geometry(cells: list[list[str]], box: Box) -> tuple[float, list[float]
     return size, [n + extra for n in need]
 
 
-def _table_box(slide: Slide, box: Box) -> Box:
-    """The table's share of the text box: all of it, or the top 70 % when bullets follow."""
-    if not slide.bullets:
-        return box
-    return (box[0], box[1], box[2], box[1] + 0.7 * (box[3] - box[1]))
+def split_text_region(slide: Slide, box: Box) -> tuple[Box | None, Box | None]:
+    """Where the table and the bullets go inside the text box (shared by PNG and PPTX).
+
+    The table takes the whole box, or its top 70 % when bullets follow; the bullets start 30 px
+    below the table's last row.
+    """
+    table_box = bullets_box = None
+    top = box[1]
+    if slide.table is not None:
+        table_box = (
+            box if not slide.bullets else (box[0], box[1], box[2], box[1] + 0.7 * (box[3] - box[1]))
+        )
+        cells = table_cells(slide.table)
+        size, _ = table_geometry(cells, table_box)
+        top = box[1] + size * 1.5 * len(cells) + 30
+    if slide.bullets:
+        bullets_box = (box[0], top, box[2], box[3])
+    return table_box, bullets_box
 
 
 def _table(draw, df: pd.DataFrame, box: Box) -> list[Box]:
@@ -246,13 +268,11 @@ def draw_slide(
             if path.exists():
                 _paste(img, path, box)
         if r.text is not None:
-            tb = r.text
-            if slide.table is not None:
-                tboxes = _table(d, slide.table, _table_box(slide, r.text))
-                boxes += tboxes
-                tb = (tb[0], max(b[3] for b in tboxes) + 30, tb[2], tb[3])
-            if slide.bullets:
-                boxes += _bullets(d, slide.bullets, tb)
+            table_box, bullets_box = split_text_region(slide, r.text)
+            if table_box is not None:
+                boxes += _table(d, slide.table, table_box)
+            if bullets_box is not None:
+                boxes += _bullets(d, slide.bullets, bullets_box)
         if slide.caption:
             boxes.append(_text(d, slide.caption, r.caption, 24, MUTED))
     foot = f"{footer}   {number}/{total}" if footer else f"{number}/{total}"

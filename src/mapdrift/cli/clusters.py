@@ -93,8 +93,8 @@ def clusters(
 ) -> None:
     """Global and local Moran's I (or Gi*) per period, cluster changes and trends per unit."""
     from mapdrift.clusters import ClusterOptions, analyse_clusters, write_clusters
-    from mapdrift.clusters.io import check_free
     from mapdrift.config import merge
+    from mapdrift.outputs import check_free
     from mapdrift.panel import load_panel
 
     flags = {

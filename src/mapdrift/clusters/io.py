@@ -1,18 +1,17 @@
-"""Writing the cluster step's tables (atomically; never over an existing file without force)."""
+"""Writing the cluster step's tables (atomically, text defused; never over an existing file
+without force)."""
 
 from __future__ import annotations
 
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from mapdrift.atomic import write_text
-from mapdrift.errors import OutputExistsError
-from mapdrift.findings import examples
+from mapdrift.outputs import check_free, write_csv
 
 if TYPE_CHECKING:
     from mapdrift.clusters.core import ClusterResult
 
-__all__ = ["OUTPUT_FILES", "check_free", "write_clusters"]
+__all__ = ["OUTPUT_FILES", "write_clusters"]
 
 #: File name -> frame name in ClusterResult.frames.
 OUTPUT_FILES: dict[str, str] = {
@@ -24,19 +23,6 @@ OUTPUT_FILES: dict[str, str] = {
 }
 
 
-def check_free(paths: list[Path], force: bool) -> None:
-    """Raise OutputExistsError naming the files that exist, unless ``force``."""
-    if force:
-        return
-    existing = [p for p in paths if p.exists()]
-    if existing:
-        raise OutputExistsError(
-            f"{existing[0].parent}: {len(existing)} output files exist "
-            f"({examples([p.name for p in existing], 4)}); pass --force to overwrite or choose "
-            "another --out folder"
-        )
-
-
 def write_clusters(result: ClusterResult, out: Path | str, *, force: bool = False) -> list[Path]:
     """Write the tables into ``out``; returns the paths written. CSV floats keep 10 digits."""
     out = Path(out)
@@ -44,7 +30,5 @@ def write_clusters(result: ClusterResult, out: Path | str, *, force: bool = Fals
     check_free(targets, force)
     written = []
     for path, frame in zip(targets, OUTPUT_FILES.values(), strict=True):
-        df = result.frames[frame]
-        text = df.to_csv(index=frame == "transitions", float_format="%.10g", lineterminator="\n")
-        written.append(write_text(path, text))
+        written.append(write_csv(result.frames[frame], path, index=frame == "transitions"))
     return written
