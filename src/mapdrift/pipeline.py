@@ -232,6 +232,14 @@ def _step_animate(state: RunState) -> str:
     labels = [b.labels for b in c.breaks] if c.per_period else list(c.breaks[0].labels)
     text = _text(state)
     text["legend_title"] = p.meta.unit_label or p.meta.variable
+    ch = state.results.get("changes")
+    if ch is not None and len(ch.jumps):  # outline the units that jumped into each period
+        index = {u: i for i, u in enumerate(p.units)}
+        landed = {label: [] for label in p.period_labels}
+        for unit, to in zip(ch.jumps["unit"], ch.jumps["to_period"].astype(str)):
+            landed[to].append(index[unit])
+        text["outlines"] = [landed[label] for label in p.period_labels]
+        text["outline_label"] = f"jumped {ch.options.jump}+ classes since the previous period"
     done = []
     for fmt in ("gif", "mp4"):
         if fmt in formats:
@@ -428,9 +436,9 @@ STEPS: list[tuple[str, Callable[[RunState], str]]] = [
     ("load", _step_load),
     ("smooth", _step_smooth),
     ("classify", _step_classify),
-    ("animate", _step_animate),
     ("changes", _step_changes),
     ("clusters", _step_clusters),
+    ("animate", _step_animate),
     ("units", _step_units),
     ("whats-new", _step_whatsnew),
     ("findings", _step_findings),
