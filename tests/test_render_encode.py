@@ -158,3 +158,38 @@ def test_animate_rejects_unknown_suffix_and_bad_size(tmp_path):
     with pytest.raises(ConfigError, match="WIDTHxHEIGHT"):
         parse_size("1280by720")
     assert parse_size("800x450") == (800, 450)
+
+
+def test_gif_from_packed_frames_equals_gif_from_rgb_frames(tmp_path):
+    # write_gif reads a FrameRenderer as packed pixels; the file must be the same as from the
+    # plain RGB frames (the generic path)
+    g, r = _renderer(4)
+    a = write_gif(r, tmp_path / "packed.gif", exact_colours=r.exact_colours)
+    b = write_gif(
+        (r.frame(j) for j in range(r.n_frames)), tmp_path / "rgb.gif", exact_colours=r.exact_colours
+    )
+    assert a.read_bytes() == b.read_bytes()
+    r.close()
+
+
+def test_fixed_palette_matches_kdtree_nearest_and_keeps_exact_colours():
+    # reference: scipy's cKDTree nearest neighbour on the 5-bit cell centres
+    from scipy.spatial import cKDTree
+
+    from mapdrift.render.encode import FixedPalette
+    from mapdrift.render.frames import pack_rgb, unpack_rgb
+
+    rng = np.random.default_rng(4)
+    pal = FixedPalette(rng.integers(0, 256, (120, 3)))
+    img = rng.integers(0, 256, (64, 80, 3)).astype(np.uint8)
+    img[:8] = pal.colours[7]  # an exact palette colour maps to itself
+    idx = pal.index(img)
+    assert (idx[:8] == 7).all()
+    assert (pal.index_packed(pack_rgb(img)) == idx).all()
+    assert (unpack_rgb(pack_rgb(img)) == img).all()
+    flat = img.reshape(-1, 3)
+    exact = (flat[:, None, :] == pal.colours[None]).all(axis=2).any(axis=1)
+    centre = (flat[~exact] // 8 * 8 + 3.5).astype(float)
+    dist, _ = cKDTree(pal.colours.astype(float)).query(centre)
+    got = np.sqrt(((centre - pal.colours[idx.ravel()[~exact]].astype(float)) ** 2).sum(axis=1))
+    assert np.allclose(got, dist)  # same distance (ties may pick either entry)

@@ -50,20 +50,20 @@ class FixedPalette:
                 "a GIF palette holds at most 255 colours here (one slot is transparency)"
             )
         self.colours = colours
-        centres = np.arange(32, dtype=np.float32) * 8 + 3.5
-        cell = np.stack(np.meshgrid(centres, centres, centres, indexing="ij"), -1).reshape(-1, 3)
-        from scipy.spatial import cKDTree
+        self._nearest = _nearest_to_cells(colours).reshape(32, 32, 32)  # [r5, g5, b5]
+        self._tables: dict[str, np.ndarray] = {}
 
-        _, nearest = cKDTree(colours.astype(np.float64)).query(cell.astype(np.float64))
-        nearest = nearest.astype(np.uint8)
-        lut = nearest.reshape(32, 32, 32).repeat(8, 0).repeat(8, 1).repeat(8, 2).ravel()
-        keys = (
-            (colours[:, 0].astype(np.int64) << 16)
-            | (colours[:, 1].astype(np.int64) << 8)
-            | colours[:, 2]
-        )
-        lut[keys] = np.arange(len(colours), dtype=np.uint8)
-        self._lut = lut
+    def _table(self, order: str) -> np.ndarray:
+        """The 2**24-entry lookup keyed ``R << 16 | G << 8 | B`` ("rgb") or packed ("bgr")."""
+        if order not in self._tables:
+            near = self._nearest if order == "rgb" else self._nearest.transpose(2, 1, 0)
+            big = np.broadcast_to(near[:, None, :, None, :, None], (32, 8, 32, 8, 32, 8))
+            lut = big.reshape(-1)  # one copy of 16 MB
+            c = self.colours.astype(np.int64)
+            hi, lo = (c[:, 0], c[:, 2]) if order == "rgb" else (c[:, 2], c[:, 0])
+            lut[(hi << 16) | (c[:, 1] << 8) | lo] = np.arange(len(c), dtype=np.uint8)
+            self._tables[order] = lut
+        return self._tables[order]
 
     @classmethod
     def for_frame(
@@ -103,12 +103,36 @@ class FixedPalette:
         """``[H, W]`` uint8 palette indices of an ``[H, W, 3]`` uint8 frame."""
         f = frame.astype(np.uint32)
         keys = (f[..., 0] << 16) | (f[..., 1] << 8) | f[..., 2]
-        return self._lut[keys]
+        return self._table("rgb")[keys]
+
+    def index_packed(self, packed: np.ndarray) -> np.ndarray:
+        """Palette indices of a frame packed as uint32 ``R | G << 8 | B << 16`` (top byte ignored).
+
+        Same result as :meth:`index` on the unpacked frame, without unpacking it.
+        """
+        return self._table("bgr")[packed & np.uint32(0xFFFFFF)]
 
     def pillow_palette(self) -> list[int]:
         pal = np.zeros((256, 3), dtype=np.uint8)
         pal[: len(self.colours)] = self.colours
         return pal.ravel().tolist()
+
+
+def _nearest_to_cells(colours: np.ndarray) -> np.ndarray:
+    """Index of the palette colour nearest (Euclidean RGB) each 5-bit cell centre, uint8.
+
+    Brute force in float64 (exact for these integer and half-integer values), in chunks.
+    """
+    centres = np.arange(32, dtype=np.float64) * 8 + 3.5
+    cell = np.stack(np.meshgrid(centres, centres, centres, indexing="ij"), -1).reshape(-1, 3)
+    c = colours.astype(np.float64)
+    c2 = (c * c).sum(axis=1)
+    out = np.empty(len(cell), dtype=np.uint8)
+    step = 4096
+    for lo in range(0, len(cell), step):
+        d = c2[None, :] - 2.0 * (cell[lo : lo + step] @ c.T)
+        out[lo : lo + step] = d.argmin(axis=1)
+    return out
 
 
 def write_gif(
@@ -125,20 +149,24 @@ def write_gif(
     """Write an animated GIF, one frame at a time, with one fixed palette and no dithering.
 
     Each frame shows ``seconds_per_period``, the last ``hold_last`` seconds (the stream is read
-    one frame ahead to know which is last). ``durations_ms`` overrides both. ``loop=0`` loops forever. GIF delays are stored
-    in 1/100 s. Returns ``path``.
+    one frame ahead to know which is last). ``durations_ms`` overrides both. ``loop=0`` loops
+    forever. GIF delays are stored in 1/100 s. Returns ``path``.
+
+    ``frames`` may be any iterable of ``[H, W, 3]`` uint8 arrays; a
+    :class:`~mapdrift.render.frames.FrameRenderer` (anything with ``packed_frames()``) is read
+    as packed pixels and indexed without unpacking, with the same result.
     """
     from PIL import GifImagePlugin, Image
 
     if seconds_per_period <= 0 or hold_last < 0:
         raise ConfigError("--seconds-per-period must be > 0 and --hold-last >= 0")
     path = _check_target(Path(path), force)
-    it = iter(frames)
+    packed = callable(getattr(frames, "packed_frames", None))
+    it = iter(frames.packed_frames() if packed else frames)  # type: ignore[attr-defined]
     try:
         current = next(it)
     except StopIteration:
         raise ConfigError("no frames to write; the panel has no periods") from None
-    h, w = current.shape[:2]
     palette: FixedPalette | None = None
     prev: np.ndarray | None = None
     written = 0
@@ -158,8 +186,13 @@ def write_gif(
                 )
             dur = max(20, int(round(dur / 10.0)) * 10)
             if palette is None:
-                palette = FixedPalette.for_frame(current, exact_colours)
-            idx = palette.index(current)
+                rgb = (
+                    current.view(np.uint8).reshape(*current.shape, 4)[..., :3]
+                    if packed
+                    else current
+                )
+                palette = FixedPalette.for_frame(rgb, exact_colours)
+            idx = palette.index_packed(current) if packed else palette.index(current)
             if prev is None:
                 im = Image.fromarray(idx, mode="P")
                 im.putpalette(palette.pillow_palette())

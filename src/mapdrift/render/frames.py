@@ -3,9 +3,14 @@
 :class:`FrameRenderer` prepares, once per animation: the label raster (unit per pixel, with
 sub-pixel edge detail), the static furniture as an antialiased RGBA overlay (title, legend
 swatches and ranges, boundaries, scale bar, timeline rule, caption, notice), the no-data hatching
-pattern, and one transparent matplotlib figure holding the few per-period artists. A frame is
-then ``colour_of_class[code_of_unit[label]]`` plus two alpha composites: its cost depends on the
-pixel count only, not on the number of polygons.
+pattern, and one transparent matplotlib figure holding the few per-period artists, which are
+drawn once per distinct text as small sprites (:mod:`mapdrift.render.sprites`). A frame is then
+``colour_of_class[code_of_unit[label]]`` plus alpha composites over the pixels the overlay and the
+sprites touch: its cost depends on the pixel count only, not on the number of polygons.
+
+Frames are computed as packed ``uint32`` pixels (bytes R, G, B, unused: ``R | G << 8 | B << 16``)
+so that gathers move one word per pixel; :meth:`FrameRenderer.frame` unpacks to ``[H, W, 3]``
+and the GIF encoder indexes the packed frames directly (:meth:`FrameRenderer.packed_frame`).
 
 Codes: ``codes[:, j]`` is each unit's category in period ``j`` (0..k-1), ``-1`` = no data, drawn
 as the hatched no-data swatch. Colours are by category index, never by which categories happen
@@ -26,9 +31,11 @@ from mapdrift.findings import Finding
 from mapdrift.palettes import NODATA, NODATA_HATCH
 from mapdrift.render import furniture as fur
 from mapdrift.render import layout as lay
+from mapdrift.render.pixels import hatch_alpha, pack_rgb, unpack_rgb
 from mapdrift.render.raster import LabelRaster, metres_per_unit
+from mapdrift.render.sprites import SpriteCache, composite
 
-__all__ = ["FrameRenderer", "render_frames", "unit_rings_px"]
+__all__ = ["FrameRenderer", "pack_rgb", "render_frames", "unit_rings_px", "unpack_rgb"]
 
 log = logging.getLogger(__name__)
 
@@ -47,14 +54,6 @@ def unit_rings_px(geoms: Any, transform: Any) -> tuple[list[np.ndarray], np.ndar
     xy = np.column_stack([cx + transform.left, cy + transform.top])
     cuts = np.flatnonzero(np.diff(ring_of)) + 1
     return np.split(xy, cuts), part_of[ring_part]
-
-
-def _hatch_alpha(h: int, w: int, spacing: float, width: float) -> np.ndarray:
-    """Antialiased diagonal lines (rising to the right), alpha 0..1, aligned to the frame origin."""
-    yy, xx = np.mgrid[0:h, 0:w].astype(np.float32)
-    u = np.mod(xx + 0.5 + (h - yy - 0.5), spacing)
-    dist = np.minimum(u, spacing - u) / np.float32(np.sqrt(2.0))
-    return np.clip(width / 2 + 0.5 - dist, 0.0, 1.0).astype(np.float32)
 
 
 def _rgba(fig: Any) -> np.ndarray:
@@ -97,7 +96,7 @@ class FrameRenderer:
         north_arrow: bool = False,
         scale_units: str = "km",
         min_unit_px: float = 0.0,
-        supersample: int = 3,
+        supersample: int = 2,
         crs: Any = None,
         show_period: bool = True,
     ) -> None:
@@ -179,6 +178,7 @@ class FrameRenderer:
         self._prepare_static()
         self._fig, ax = lay.new_figure(self.layout, transparent=True)
         self._dyn = fur.DynamicArtists(ax, self.layout, self.chrome)
+        self._sprites = SpriteCache(self._fig)
 
     # -- preparation -----------------------------------------------------------------------
     def _boundary_width(self) -> float | None:
@@ -215,7 +215,7 @@ class FrameRenderer:
         over = _rgba(fig).astype(np.float32) / 255.0
         fig.clear()
         alpha = over[..., 3:4]
-        hatch = _hatch_alpha(
+        hatch = hatch_alpha(
             L.height, L.width, spacing=max(6.0 * L.s, 4.0), width=max(1.3 * L.s, 1.0)
         )
         # base frame: paper, the no-data swatch hatched exactly as on the map, furniture on top
@@ -228,6 +228,7 @@ class FrameRenderer:
         base[y : y + sh, x : x + sw] = nod * (1 - a) + hat * a
         base = base * (1 - alpha) + over[..., :3] * alpha
         self._base = np.round(base * 255).astype(np.uint8)
+        self._base_packed = pack_rgb(self._base)
         # over the map box: only pixels the overlay touches are composited per frame
         sl = (slice(tr.top, tr.top + tr.height), slice(tr.left, tr.left + tr.width))
         a_map = alpha[sl][..., 0].ravel()
@@ -235,12 +236,22 @@ class FrameRenderer:
         a_sel = a_map[self._ov_idx, None]
         c_sel = over[sl][..., :3].reshape(-1, 3)[self._ov_idx]
         # integer compositing: out = (px * (256 - a) + c * a) >> 8, a and c * a in 1/256 steps
+        # (a fourth, zero channel so the packed pixels are blended as whole words)
         self._ov_a = np.round(a_sel * 256).astype(np.uint16)
-        self._ov_c = np.round(c_sel * a_sel * 255 * 256).astype(np.uint16)
+        ov_c = np.zeros((len(self._ov_idx), 4), dtype=np.uint16)
+        ov_c[:, :3] = np.round(c_sel * a_sel * 255 * 256).astype(np.uint16)
+        self._ov_c = ov_c
         h_map = hatch[sl].ravel()
-        self._hatch_idx = np.flatnonzero(h_map > 0)
-        self._hatch_a = h_map[self._hatch_idx, None]
-        self._hatch_rgb = (nod * (1 - self._hatch_a) + hat * self._hatch_a) * 255.0
+        hatch_idx = np.flatnonzero(h_map > 0)
+        hatch_a = h_map[hatch_idx, None]
+        hatch_rgb = np.round((nod * (1 - hatch_a) + hat * hatch_a) * 255.0).astype(np.uint8)
+        # hatch pixels grouped by the unit they show, so a frame finds its no-data units' pixels
+        # by slicing instead of testing every hatch pixel
+        lab = self.raster.label.ravel()[hatch_idx]
+        order = np.argsort(lab, kind="stable")
+        self._hatch_idx = hatch_idx[order]
+        self._hatch_packed = pack_rgb(hatch_rgb[order])
+        self._hatch_start = np.searchsorted(lab[order], np.arange(len(self.codes) + 1))
         self._map_slice = sl
 
     # -- frames ------------------------------------------------------------------------------
@@ -277,28 +288,54 @@ class FrameRenderer:
 
     def map_image(self, j: int) -> np.ndarray:
         """The map box of period ``j`` (fill, hatching, boundaries), ``[h, w, 3]`` uint8."""
+        tr = self.layout.transform
+        return unpack_rgb(self._map_packed(j).reshape(tr.height, tr.width))
+
+    def _map_packed(self, j: int) -> np.ndarray:
+        """The map box of period ``j`` as flat packed uint32 pixels (see the module docstring)."""
         c = self.codes[:, j].astype(np.int64)
-        unit_rgb = self._class_rgb[np.where(c < 0, len(self.colours), c)]
-        img = np.ascontiguousarray(self.raster.colourise(unit_rgb, self._paper))
-        flat = img.reshape(-1, 3)
         nod = c < 0
+        unit_rgb = self._class_rgb[np.where(nod, len(self.colours), c)]
+        flat = self.raster.colourise_packed(unit_rgb, self._paper)
         if nod.any() and self._hatch_idx.size:
-            flag = np.zeros(len(c) + 1, dtype=bool)
-            flag[1:] = nod
-            lab = self.raster.label.ravel()[self._hatch_idx] + 1
-            sel = flag[lab]
-            flat[self._hatch_idx[sel]] = np.round(self._hatch_rgb[sel]).astype(np.uint8)
+            units = np.flatnonzero(nod)
+            lo, hi = self._hatch_start[units], self._hatch_start[units + 1]
+            n = hi - lo
+            if n.sum():
+                sel = np.repeat(lo - (np.cumsum(n) - n), n) + np.arange(int(n.sum()))
+                flat[self._hatch_idx[sel]] = self._hatch_packed[sel]
         if self._ov_idx.size:
-            px = flat[self._ov_idx].astype(np.uint16)
-            flat[self._ov_idx] = ((px * (256 - self._ov_a) + self._ov_c + 128) >> 8).astype(
-                np.uint8
-            )
-        return img
+            px = flat[self._ov_idx].view(np.uint8).reshape(-1, 4).astype(np.uint16)
+            mixed = ((px * (256 - self._ov_a) + self._ov_c + 128) >> 8).astype(np.uint8)
+            flat[self._ov_idx] = mixed.view("<u4").ravel()
+        return flat
+
+    def packed_frame(self, j: int) -> np.ndarray:
+        """Frame of period ``j`` as ``[height, width]`` packed uint32 (a new array).
+
+        ``unpack_rgb(packed_frame(j))`` equals :meth:`frame`; encoders that index colours
+        (GIF) use it to skip unpacking.
+        """
+        out = self._base_packed.copy()
+        out[self._map_slice] = self._map_packed(j).reshape(
+            self.layout.transform.height, self.layout.transform.width
+        )
+        out8 = out.view(np.uint8).reshape(*out.shape, 4)
+        for sprite in self._dynamic_sprites(j):
+            composite(out8, sprite)
+        return out
 
     def frame(self, j: int) -> np.ndarray:
         """Frame of period ``j`` as ``[height, width, 3]`` uint8 (a new array)."""
-        out = self._base.copy()
-        out[self._map_slice] = self.map_image(j)
+        return unpack_rgb(self.packed_frame(j))
+
+    def packed_frames(self) -> Iterator[np.ndarray]:
+        """Every frame in order, packed (see :meth:`packed_frame`)."""
+        for j in range(self.n_frames):
+            yield self.packed_frame(j)
+
+    def _dynamic_sprites(self, j: int) -> list[Any]:
+        """Update the per-period artists for ``j`` and return their sprites (drawn on first use)."""
         counts, nodata = self.class_counts(j)
         segs: list[np.ndarray] = []
         call: list[str] = []
@@ -309,18 +346,20 @@ class FrameRenderer:
             segs = self._segments(units)
             if self.names is not None:
                 call = [self.names[u] for u in units]
-        self._dyn.update(j, counts, nodata, outlines=segs, callouts=call, n_outlined=n_out)
-        dyn = _rgba(self._fig)
-        a = dyn[..., 3]
-        idx = np.flatnonzero(a.ravel())
-        if idx.size:
-            flat = out.reshape(-1, 3)
-            al = a.ravel()[idx, None].astype(np.uint16)
-            src = dyn[..., :3].reshape(-1, 3)[idx].astype(np.uint16)
-            flat[idx] = ((src * al + flat[idx].astype(np.uint16) * (255 - al) + 127) // 255).astype(
-                np.uint8
-            )
-        return out
+        d = self._dyn
+        d.update(j, counts, nodata, outlines=segs, callouts=call, n_outlined=n_out)
+        groups: list[tuple[Any, list[Any]]] = []
+        if d.period is not None:
+            groups.append((("period", d.period.get_text(), d.period.get_fontsize()), [d.period]))
+        for i, t in enumerate(d.counts):
+            groups.append((("count", i, t.get_text()), [t]))
+        for i, t in enumerate(d.labels):
+            groups.append((("label", i, t.get_text()), [t]))
+        if d.marker is not None:
+            groups.append((("timeline", j), [d.progress, d.marker, d.current]))
+        if segs or d.callouts.get_text():  # change every frame: drawn fresh, not cached
+            groups.append((None, [d.outlines, d.callouts]))
+        return [s for s in self._sprites.get_many(groups) if s is not None]
 
     def _segments(self, units: np.ndarray) -> list[np.ndarray]:
         if self._ring_sorted:

@@ -11,6 +11,7 @@ pixel); see :mod:`mapdrift.render.furniture`.
 
 from __future__ import annotations
 
+import functools
 import math
 import textwrap
 from dataclasses import dataclass, field
@@ -102,6 +103,7 @@ class Layout:
     extras: dict[str, Any] = field(default_factory=dict)
 
 
+@functools.lru_cache(maxsize=4096)
 def _text_width(text: str, size: float, weight: str = "normal") -> float:
     from matplotlib.font_manager import FontProperties
     from matplotlib.textpath import TextToPath

@@ -289,19 +289,24 @@ class LabelRaster:
         Mixed pixels blend their two units' colours (``outside`` for the part outside every
         unit) by area, which antialiases the fill edges. Cost: O(pixels), not O(units).
         """
+        img = self.colourise_packed(unit_rgb, outside)
+        rgba = img.view(np.uint8).reshape(self.transform.height, self.transform.width, 4)
+        return rgba[..., :3]
+
+    def colourise_packed(self, unit_rgb: np.ndarray, outside: Any) -> np.ndarray:
+        """As :meth:`colourise`, as flat little-endian uint32 pixels ``R | G << 8 | B << 16``."""
         lut = np.zeros((unit_rgb.shape[0] + 1, 4), dtype=np.uint8)
         lut[0, :3] = outside
         lut[1:, :3] = unit_rgb
-        lut32 = lut.view(np.uint32).ravel()
+        lut32 = lut.view("<u4").ravel()
         img = np.take(lut32, self.label.ravel() + 1)
         if self.mixed.size:
             ca = np.take(lut32, self.mixed_a + 1).view(np.uint8).reshape(-1, 4).astype(np.uint16)
             cb = np.take(lut32, self.mixed_b + 1).view(np.uint8).reshape(-1, 4).astype(np.uint16)
             w = self.mixed_w[:, None]
             mix = ((ca * w + cb * (256 - w) + 128) >> 8).astype(np.uint8)
-            img[self.mixed] = mix.view(np.uint32).ravel()
-        rgba = img.view(np.uint8).reshape(self.transform.height, self.transform.width, 4)
-        return rgba[..., :3]
+            img[self.mixed] = mix.view("<u4").ravel()
+        return img
 
 
 def _two_labels(sub: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
