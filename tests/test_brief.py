@@ -9,11 +9,11 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import grid_layer
 
+from conftest import grid_layer
 from mapdrift.brief.content import Brief, Section, Table
 from mapdrift.brief.report import render_html, render_markdown
-from mapdrift.brief.slides import H, W, Slide, draw_slide
+from mapdrift.brief.slides import H, Slide, W, draw_slide
 from mapdrift.brief.textfit import line_height, wrap
 from mapdrift.config import load_config
 from mapdrift.outputs import defuse, write_csv
@@ -46,12 +46,18 @@ def tiny_run(tmp_path_factory):
     for i, u in enumerate(gdf["unit_id"]):
         level = 5 + (i % 5) * 2
         for y in range(2015, 2023):
-            rows.append({"unit_id": u, "year": y, "rate": round(level + rng.normal(0, 0.8) + (4 if i < 6 and y > 2019 else 0), 2)})
+            rows.append(
+                {
+                    "unit_id": u,
+                    "year": y,
+                    "rate": round(level + rng.normal(0, 0.8) + (4 if i < 6 and y > 2019 else 0), 2),
+                }
+            )
     pd.DataFrame(rows).to_csv(d / "values.csv", index=False)
     (d / "run.toml").write_text(
         '[inputs]\ngeometry = "units.gpkg"\ntable = "values.csv"\nid = "unit_id"\nname = "name"\n'
         'period = "year"\nvalue = "rate"\nvariable = "Vacancy rate"\nunit_label = "per 100 homes"\n'
-        '[classes]\nk = 4\n[clusters]\npermutations = 199\n'
+        "[classes]\nk = 4\n[clusters]\npermutations = 199\n"
         '[brief]\ntitle = "Vacancy in the test grid"\nauthor = "Test team"\n'
     )
     return run(load_config(d / "run.toml"), out=d / "out")
@@ -75,7 +81,17 @@ def test_report_sections_and_escaping(tiny_run):
     text = (tiny_run.out / "report.html").read_text()
     p = _Sections()
     p.feed(text)
-    for key in ("answer", "maps", "change", "transitions", "clusters", "trends", "data-quality", "method", "cautions"):
+    for key in (
+        "answer",
+        "maps",
+        "change",
+        "transitions",
+        "clusters",
+        "trends",
+        "data-quality",
+        "method",
+        "cautions",
+    ):
         assert key in p.ids, key
     assert p.images >= 8  # every figure embedded
     assert EVIL not in text and "&lt;script&gt;alert(1)&lt;/script&gt;" in text
@@ -125,7 +141,10 @@ def test_deck_movie_pictures_notes_and_no_overflow(tiny_run):
             if shape.has_text_frame:
                 assert not _overflows(shape), shape.text_frame.text[:60]
             assert shape.left >= 0 and shape.top >= 0
-            assert shape.left + shape.width <= prs.slide_width and shape.top + shape.height <= prs.slide_height
+            assert (
+                shape.left + shape.width <= prs.slide_width
+                and shape.top + shape.height <= prs.slide_height
+            )
 
 
 def test_slide_pngs_are_16_9_and_text_stays_inside(tiny_run):
@@ -135,7 +154,12 @@ def test_slide_pngs_are_16_9_and_text_stays_inside(tiny_run):
         with Image.open(p) as im:
             assert im.size == (W, H) == (1920, 1080)
     long = "A very long sentence about suppressed cells and sentinel zeros " * 6
-    slide = Slide("notes", "Data notes with a title that goes on for quite a while " * 2, bullets=(long,) * 8, notice="Classes differ by period; frames are not comparable.")
+    slide = Slide(
+        "notes",
+        "Data notes with a title that goes on for quite a while " * 2,
+        bullets=(long,) * 8,
+        notice="Classes differ by period; frames are not comparable.",
+    )
     _, boxes = draw_slide(slide, 1, 1)
     for x0, y0, x1, y1 in boxes:
         assert 0 <= x0 <= x1 <= W and 0 <= y0 <= y1 <= H
@@ -143,7 +167,8 @@ def test_slide_pngs_are_16_9_and_text_stays_inside(tiny_run):
 
 def test_markdown_and_html_escape_tables():
     brief = Brief(
-        title="T <b>", sections=(Section("s", "S", tables=(Table(pd.DataFrame({"name": [EVIL]}), "c"),)),)
+        title="T <b>",
+        sections=(Section("s", "S", tables=(Table(pd.DataFrame({"name": [EVIL]}), "c"),)),),
     )
     assert EVIL not in render_html(brief)
     assert "<b>" not in render_html(brief).split("<title>")[1].split("</title>")[0]
@@ -191,5 +216,7 @@ def test_report_in_headless_browser(tiny_run, tmp_path):
     probe = json.loads(m.group(1).replace("&quot;", '"').replace("&amp;", "&"))
     assert probe["images"] >= 8 and probe["undecoded"] == 0
     assert probe["errors"] == []
-    console = [line for line in proc.stderr.splitlines() if "CONSOLE" in line and "probe" not in line]
+    console = [
+        line for line in proc.stderr.splitlines() if "CONSOLE" in line and "probe" not in line
+    ]
     assert console == [], console

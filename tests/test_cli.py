@@ -110,7 +110,10 @@ def test_run_usage_and_output_exists(runner, tmp_path):
     bad = tmp_path / "bad.toml"
     bad.write_text('[inputs]\ngeometry = "x.gpkg"\n[clusters]\npermutatons = 99\n')
     r = runner.invoke(app, ["run", str(bad)])
-    assert r.exit_code == 2 and "bad.toml:4: key 'permutatons' in [clusters] is not a known key" in r.output
+    assert (
+        r.exit_code == 2
+        and "bad.toml:4: key 'permutatons' in [clusters] is not a known key" in r.output
+    )
     out = tmp_path / "out"
     out.mkdir()
     (out / "report.html").write_text("last year's")

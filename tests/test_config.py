@@ -42,3 +42,17 @@ def test_unknown_section_and_bad_toml(tmp_path):
     p.write_text("[inputs\n")
     with pytest.raises(ConfigError, match="not valid TOML"):
         load_config(p)
+
+
+def test_values_checked_at_load(tmp_path):
+    # out-of-range values stop when the file is read, naming the file and section
+    p = tmp_path / "c.toml"
+    p.write_text("[clusters]\nalpha = 1.5\n")
+    with pytest.raises(ConfigError, match=r"c.toml: \[clusters\] --alpha must be between 0 and 1"):
+        load_config(p)
+    p.write_text("[classes]\nk = 12\n")
+    with pytest.raises(ConfigError, match=r"\[classes\] k = 12 classes is out of range"):
+        load_config(p)
+    p.write_text('[inputs]\ngeometry = "a.gpkg"\nper = "1000"\n')
+    with pytest.raises(ConfigError, match="key 'per' in \\[inputs\\] should be a number"):
+        load_config(p)

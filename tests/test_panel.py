@@ -334,3 +334,14 @@ def test_table_formats(layer_file, tmp_path, suffix):
         df.to_excel(path, index=False)
     p = load_panel(spec(layer, path))
     assert p.periods == tuple(YEARS) and p.values[0, 0] == 18.0
+
+
+def test_all_text_value_column_stops(layer_file, table_file):
+    layer = layer_file(n_side=2)
+    rows = [
+        {"unit_id": f"{i + 1:05d}", "year": y, "rate": v}
+        for i in range(4)
+        for y, v in zip(YEARS, ["high", "5,3", "low"])
+    ]
+    with pytest.raises(InputError, match=r"no usable number in column 'rate'.*5\.3, not 5,3"):
+        load_panel(spec(layer, table_file(rows)))

@@ -9,8 +9,8 @@ import re
 from pathlib import Path
 
 import pytest
-from conftest import DEMO
 
+from conftest import DEMO
 from mapdrift.config import load_config
 from mapdrift.errors import OutputExistsError, StepError
 from mapdrift.pipeline import STEPS, run

@@ -158,7 +158,7 @@ def detect_zero_block(
         mad = 1.4826 * float(np.median(np.abs(nz - med)))
         if float(nz.min()) >= 0.25 * med and (mad == 0 or med / mad > 3):
             suspect = zeros.copy()
-            reason = f"the smallest non-zero value is {nz.min():.3g} (median {med:.3g})"
+            reason = f"all {n0} sit far below the smallest non-zero value, {nz.min():.3g} (median {med:.3g})"
     if not reason:
         others = np.where(zeros | ~np.isfinite(values), np.nan, values)
         with np.errstate(all="ignore"), warnings.catch_warnings():
@@ -181,7 +181,7 @@ def detect_zero_block(
         top = int(np.argmax(per_period)) if per_period.size else 0
         if implausible.sum() >= 3 and per_period[top] >= 0.5 * implausible.sum():
             suspect = implausible
-            reason = f"{int(implausible.sum())} are {kind}"
+            reason = f"{int(implausible.sum())} of the {n0} exact zeros are {kind}"
     if not reason:
         return None
     per_period = suspect.sum(axis=0)
@@ -195,7 +195,7 @@ def detect_zero_block(
     return Finding(
         "warning",
         "values-zero-block",
-        f"{n0} values are exactly 0 and look like a missing-value code: {reason}{where} "
+        f"exact zeros that look like a missing-value code: {reason}{where} "
         f"(units {examples(affected)}); if 0 means 'not reported' there, blank those cells in the source (or pass --missing 0 if every 0 is such a code)",
         affected,
     )
@@ -355,7 +355,7 @@ def load(spec: InputSpec) -> Panel:
         ex = examples([f"{a}/{b}" for a, b in pairs.itertuples(index=False)])
         if spec.duplicates == "error":
             raise InputError(
-                f"{tpath}: {len(pairs)} (unit, period) pairs have more than one row (e.g. {ex}); "
+                f"{tpath}: {plural(len(pairs), '(unit, period) pair')} with more than one row (e.g. {ex}); "
                 "fix the table or pass --duplicates first|mean|sum"
             )
         if spec.duplicates not in ("first", "mean", "sum"):
@@ -495,6 +495,13 @@ def load(spec: InputSpec) -> Panel:
             )
         )
 
+    if not np.isfinite(values).any():
+        what = "rates" if roles else f"column {str(label['value'])!r}"
+        raise InputError(
+            f"{tpath}: no usable number in {what}: every cell is missing or text (see the "
+            "values-not-numeric counts with `mapdrift check --json`); check --value/--columns, "
+            "and write decimals with a point (5.3, not 5,3)"
+        )
     raise_errors(findings, InputError)
     variable = spec.variable or (
         f"{spec.numerator} per {spec.per:g} {spec.denominator}"

@@ -38,6 +38,7 @@ __all__ = [
     "fisher_jenks",
     "fit_breaks",
     "format_labels",
+    "parse_basis",
     "quantile_edges",
 ]
 
@@ -523,7 +524,7 @@ class Classes:
         return (self.codes < 0).sum(axis=0)
 
 
-def _parse_basis(basis: str) -> tuple[str, str | None]:
+def parse_basis(basis: str) -> tuple[str, str | None]:
     if basis in ("pooled", "per-period", "file"):
         return basis, None
     if basis.startswith("period:") and len(basis) > len("period:"):
@@ -571,7 +572,7 @@ def classify(
             )
         all_b: tuple[Breaks, ...] = (reused,)
     else:
-        kind, ref = _parse_basis(basis)
+        kind, ref = parse_basis(basis)
         kw: dict[str, Any] = dict(
             scheme=scheme,
             k=k,

@@ -16,7 +16,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from mapdrift.errors import InputError
-from mapdrift.findings import Finding, examples
+from mapdrift.findings import Finding, examples, plural
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -25,6 +25,7 @@ __all__ = ["TABLE_SUFFIXES", "need_pyarrow", "read_table", "to_numbers"]
 
 TABLE_SUFFIXES = (".csv", ".tsv", ".txt", ".parquet", ".xlsx")
 _THOUSANDS = re.compile(r"^[+-]?\d{1,3}(,\d{3})+(\.\d+)?$")
+_DECIMAL_COMMA = re.compile(r"^[+-]?\d+,\d+$")
 
 
 def read_table(path: Path) -> pd.DataFrame:
@@ -111,6 +112,9 @@ def to_numbers(
     n_marked = sum(markers.values())
     if n_marked:
         by_marker = ", ".join(f"{m!r} x{c}" for m, c in markers.most_common(6))
+        commas = sum(c for m, c in markers.items() if _DECIMAL_COMMA.match(m))
+        if commas:
+            by_marker += f"; {commas} look like decimal commas (write 5.3, not 5,3)"
         findings.append(
             Finding(
                 "warning" if any(m != "(blank)" for m in markers) else "note",
@@ -123,7 +127,7 @@ def to_numbers(
     if np.isinf(out).any():
         bad = ids[np.isinf(out)] if ids is not None else np.flatnonzero(np.isinf(out))
         raise InputError(
-            f"{where}: {int(np.isinf(out).sum())} cells of {column!r} are infinite (units "
+            f"{where}: {plural(int(np.isinf(out).sum()), 'cell')} of {column!r} infinite (units "
             f"{examples(bad)}); fix the source or mark them missing"
         )
     if missing_codes:

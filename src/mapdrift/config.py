@@ -51,6 +51,16 @@ class ClassSpec:
     isolate_zeros: bool = False
     breaks_file: Path | None = None
 
+    def __post_init__(self) -> None:
+        from mapdrift.breaks import Scheme, parse_basis
+
+        scheme = Scheme.parse(self.scheme)
+        if scheme is not Scheme.MANUAL and not 2 <= self.k <= 9:
+            raise ConfigError(f"k = {self.k} classes is out of range; choose k from 2 to 9")
+        if scheme is Scheme.MANUAL and not self.values:
+            raise ConfigError("scheme manual needs break values, e.g. --values 0,2,5,10")
+        parse_basis(self.basis)
+
 
 @dataclass(frozen=True)
 class RunSpec:
@@ -111,6 +121,7 @@ class Config:
         checked = section_from_dict(section, given)
         sections = {k: dict(v) for k, v in self.sections.items()}
         sections.setdefault(section, {}).update(checked)
+        _check_values(section, sections[section], None)
         return Config(path=self.path, sections=sections)
 
 
@@ -177,11 +188,6 @@ def _coerce(value: Any, tp: Any, base: Path | None) -> Any:
     if tp is float:
         if isinstance(value, bool):
             raise TypeError("a number")
-        if isinstance(value, str):
-            try:
-                return float(value)
-            except ValueError:
-                raise TypeError("a number") from None
         if not isinstance(value, int | float):
             raise TypeError("a number")
         return float(value)
@@ -234,9 +240,7 @@ def load_config(path: Path | str) -> Config:
     try:
         text = path.read_text(encoding="utf-8")
     except FileNotFoundError:
-        raise ConfigError(
-            f"{path}: config file not found; check the path given to --config"
-        ) from None
+        raise ConfigError(f"{path}: config file not found; check the path") from None
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -252,7 +256,22 @@ def load_config(path: Path | str) -> Config:
             valid = ", ".join(s for s in SECTIONS if s != "run")
             raise ConfigError(f"{path}: section [{name}] is not known; valid sections: {valid}")
         sections[name] = section_from_dict(name, raw, path=path, text=text)
+    for name, values in sections.items():
+        _check_values(name, values, path)
     return Config(path=path, sections=sections)
+
+
+def _check_values(section: str, values: Mapping[str, Any], path: Path | None) -> None:
+    """Build the section's dataclass now, so a bad value (alpha = 1.5, weights = "queeen")
+    stops at load time naming the file and section, not later inside a step."""
+    cls = _dataclass_for(section)
+    try:
+        cls(**values)
+    except ConfigError as exc:
+        where = f"{path}: [{section}]" if path is not None else f"[{section}]"
+        raise ConfigError(f"{where} {exc}") from None
+    except TypeError:
+        return  # a required key (e.g. [inputs] geometry) may come from the command line
 
 
 def _root_section(root: Mapping[str, Any], path: Path, text: str) -> dict[str, Any]:

@@ -201,8 +201,8 @@ def prepare_geometry(
         else:
             minx, miny, maxx, maxy = bounds
             raise InputError(
-                f"{path}: the layer has no CRS and its coordinates ({minx:,.0f}, {miny:,.0f}) to "
-                f"({maxx:,.0f}, {maxy:,.0f}) are not longitude/latitude; pass --crs, e.g. --crs EPSG:26915"
+                f"{path}: the layer has no CRS and its coordinates ({minx:.0f} {miny:.0f}) to "
+                f"({maxx:.0f} {maxy:.0f}) are not longitude/latitude; pass --crs, e.g. --crs EPSG:26915"
             )
     src = CRS(gdf.crs)
     if src.is_geographic:
@@ -215,7 +215,7 @@ def prepare_geometry(
                 )
             raise InputError(
                 f"{path}: the CRS is geographic ({src.to_string()}) but the coordinates "
-                f"({minx:,.0f}, {miny:,.0f}) look like metres or feet; pass the true CRS with --crs"
+                f"({minx:.0f} {miny:.0f}) look like metres or feet; pass the true CRS with --crs"
             )
     elif _fits_lonlat(bounds) and (bounds[2] - bounds[0]) < 10 and (bounds[3] - bounds[1]) < 10:
         findings.append(
@@ -251,4 +251,3 @@ def prepare_geometry(
             )
         )
     return gdf, findings
-

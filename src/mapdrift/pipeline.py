@@ -533,10 +533,10 @@ def run(
             try:
                 summary = step(state)
             except MapdriftError as exc:
-                log.error("step %s failed: %s", name, exc)
+                log.info("step %s failed: %s", name, exc)  # the CLI prints the error itself
                 raise type(exc)(f"step {name!r} failed: {exc}") from exc
             except Exception as exc:
-                log.exception("step %s failed", name)
+                log.info("step %s failed", name, exc_info=True)
                 raise StepError(
                     f"step {name!r} failed: {type(exc).__name__}: {exc}; earlier outputs in {out} were left untouched"
                 ) from exc
