@@ -101,10 +101,18 @@ def test_report_sections_and_escaping(tiny_run):
 
 
 def test_units_csv_defused_and_complete(tiny_run):
-    df = pd.read_csv(tiny_run.out / "units.csv", dtype={"unit_id": str})
+    df = pd.read_csv(tiny_run.out / "units.csv", dtype={"unit": str})
     assert len(df) == 25
     assert df.loc[1, "name"] == "'" + FORMULA
-    for col in ("class_2015", "value_2022", "trajectory", "jumps", "cluster_2022", "trend"):
+    for col in (
+        "class_2015",
+        "value_2022",
+        "trajectory",
+        "n_jumps",
+        "change_flags",
+        "cluster_2022",
+        "trend",
+    ):
         assert col in df.columns, col
 
 

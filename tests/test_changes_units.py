@@ -80,12 +80,12 @@ def test_jumps_without_bridging():
     slow = j[j["unit"] == "slow_back"].sort_values("from_period")
     assert not slow["spike"].any()  # back 3 columns after landing: outside the window of 2
     u = res.units.set_index("unit")
-    assert u["flags"].to_dict() == {
+    assert u["change_flags"].to_dict() == {
         "spike": "jump;spike",
         "climb": "",
-        "top": "persistent-top",
-        "bottom": "persistent-bottom",
-        "hole": "persistent-top",
+        "top": "stayed-top",
+        "bottom": "stayed-bottom",
+        "hole": "stayed-top",
         "slow_back": "jump",
         "gap_jump": "",
         "empty": "",
@@ -128,9 +128,9 @@ def test_moves_and_net_change():
 def test_persistence_window():
     res = _result(persist=2)
     u = res.units.set_index("unit")
-    assert bool(u.loc["climb", "persistent_top"])  # top in 2019 and 2020
+    assert bool(u.loc["climb", "stayed_top"])  # top in 2019 and 2020
     res = _result(persist=3)
-    assert not bool(res.units.set_index("unit").loc["climb", "persistent_top"])
+    assert not bool(res.units.set_index("unit").loc["climb", "stayed_top"])
 
 
 def test_flag_categories_for_the_map():
@@ -138,9 +138,9 @@ def test_flag_categories_for_the_map():
     by_unit = dict(zip(HISTORIES, res.flag, strict=True))
     assert FLAG_LABELS[by_unit["spike"]] == "spike (check data)"
     assert FLAG_LABELS[by_unit["slow_back"]] == "jumps up and down"
-    assert FLAG_LABELS[by_unit["hole"]] == "persistent top"
-    assert FLAG_LABELS[by_unit["top"]] == "persistent top"
-    assert FLAG_LABELS[by_unit["bottom"]] == "persistent bottom"
+    assert FLAG_LABELS[by_unit["hole"]] == "stayed in top class"
+    assert FLAG_LABELS[by_unit["top"]] == "stayed in top class"
+    assert FLAG_LABELS[by_unit["bottom"]] == "stayed in bottom class"
     assert FLAG_LABELS[by_unit["climb"]] == "no flag"
     assert by_unit["empty"] == -1
     codes = {f.code for f in res.findings}

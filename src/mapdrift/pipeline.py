@@ -210,7 +210,7 @@ def _text(state: RunState) -> dict[str, Any]:
     p = state.panel
     brief = state.section(BriefSpec, "brief")
     title = brief.title or p.meta.variable
-    sub = p.meta.unit_label or ""
+    sub = brief.subtitle or p.meta.unit_label or ""
     return {
         "title": title,
         "subtitle": sub,
@@ -265,6 +265,7 @@ def _step_animate(state: RunState) -> str:
         p.period_labels,
         size=tuple(opt.size),
         scale_units=opt.scale_units,
+        north_arrow=opt.north_arrow,
         names=p.names,
         **text,
     )
@@ -344,7 +345,8 @@ def _step_clusters(state: RunState) -> str:
     last = result.period_labels[-1]
     hh = int((result.codes[:, -1] == 0).sum())
     sig = int(result.trend.significant.sum())
-    return f"{hh} units high-high in {last}; {sig} significant trends ({result.significance})"
+    trend_sig = result.significance.replace("per period", "across units")
+    return f"{hh} units high-high in {last}; {sig} significant trends ({trend_sig})"
 
 
 def _step_units(state: RunState) -> str:
@@ -360,6 +362,8 @@ def _step_units(state: RunState) -> str:
         for col in df.columns:
             if col not in ("unit", "name"):
                 extra[col] = df[col].to_numpy()
+    small = {u for f in state.findings if f.code == "rates-small-base" for u in f.units}
+    extra["small_base"] = [u in small for u in state.panel.units]
     df = units_table(state.panel, state.classes, extra)
     state.results["units"] = df
     write_csv(df, state.path("units.csv"), warning=state.notice)
@@ -385,6 +389,7 @@ def _step_whatsnew(state: RunState) -> str:
         cluster_changes=cl.changes if cl is not None else None,
         trends=cl.trends if cl is not None else None,
         findings=state.findings,
+        names=dict(zip(state.panel.units, state.panel.names)),
     )
     state.results["whatsnew"] = wn
     write_text(

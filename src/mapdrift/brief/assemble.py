@@ -51,17 +51,22 @@ def headline(state: RunState) -> list[tuple[str, str]]:
         )
     cl = state.results.get("clusters")
     if cl is not None:
-        joined = sum(1 for v in cl.changes["joined_high_cluster"] if v)
+        joined = np.array([bool(v) for v in cl.changes["joined_high_cluster"]])
+        still = joined & (cl.codes[:, -1] == 0)
         out.append(
             (f"units in a high-high cluster in {per[-1]}", f"{int((cl.codes[:, -1] == 0).sum())}")
         )
-        out.append(("units that joined a high-high cluster", f"{joined}"))
-        up = (
-            int((cl.trends["significant"] & (cl.trends["direction"] == "rising")).sum())
-            if "direction" in cl.trends
-            else 0
+        out.append(
+            (
+                f"units that joined a high-high cluster between {per[0]} and {per[-1]} "
+                f"({int(still.sum())} still in one in {per[-1]})",
+                f"{int(joined.sum())}",
+            )
         )
-        out.append(("units with a significant rising trend", f"{up}"))
+        sig = cl.trends["significant"].astype(bool)
+        for word in ("rising", "falling"):
+            n = int((sig & (cl.trends["direction"] == word)).sum())
+            out.append((f"units with a significant {word} trend", f"{n}"))
     nd = int(np.isnan(p.values).all(axis=1).sum())
     out.append(("units with no data at all (kept on the map)", f"{nd}"))
     return out
@@ -207,7 +212,7 @@ def build_brief(state: RunState) -> Brief:
                 "change",
                 "Which units changed",
                 paragraphs=(
-                    f"Net class change from {per[0]} to {per[-1]}, and the units whose path is worth a look (jumps, spikes, persistently top or bottom).",
+                    f"Net class change from {per[0]} to {per[-1]}, and the units whose path is worth a look (jumps, spikes, stayed in the top or bottom class).",
                 ),
                 figures=(
                     _fig(state, "change_map.png", f"Class change {per[0]} to {per[-1]}"),
@@ -272,30 +277,46 @@ def build_brief(state: RunState) -> Brief:
             for c in ("unit", "name", "sequence", "joined_high_cluster", "left_high_cluster")
             if c in ctab.columns
         ]
+        a, b = cl.change_periods
+        sig_text = cl.significance[0].upper() + cl.significance[1:]
         sections.append(
             Section(
                 "clusters",
-                "Is the change clustered in space?",
+                "Where high and low values cluster",
                 paragraphs=(
-                    f"Global Moran's I is significant in {len(sig_periods)} of {len(g)} periods ({examples(sig_periods, 6) or 'none'}). {cl.significance.capitalize()}.",
-                    "High-high: a high unit among high neighbours; low-low likewise; high-low and low-high are spatial outliers.",
+                    f"Global Moran's I (each period tested on its own, permutation p <= {cl.options.alpha:g}, no correction across periods) shows significant clustering in {len(sig_periods)} of {len(g)} periods ({examples(sig_periods, 6) or 'none'}).",
+                    f"Local clusters: {sig_text}. High-high: a high unit among high neighbours; low-low likewise; high-low and low-high are spatial outliers.",
                 ),
                 figures=(
                     _fig(state, "global_moran.png", "Global Moran's I per period"),
                     _fig(state, "cluster_map.png", f"Local clusters, {per[-1]}"),
-                    _fig(state, "change_cluster_map.png", "Where the change itself is clustered"),
                 ),
                 tables=(
                     Table(
                         events[cols],
-                        "Units that joined a high-high cluster",
+                        f"Units that joined a high-high cluster between {per[0]} and {per[-1]}",
                         csv_name="cluster_changes.csv",
                     ),
                 ),
             )
         )
+        sections.append(
+            Section(
+                "change-clusters",
+                "Is the change clustered in space?",
+                paragraphs=(
+                    f"Local clusters of the change in value from {a} to {b}: where units rose (or fell) together with their neighbours. {sig_text.replace(' per period', '')}.",
+                ),
+                figures=(
+                    _fig(
+                        state, "change_cluster_map.png", f"Where the change {a} to {b} is clustered"
+                    ),
+                ),
+            )
+        )
         tr = cl.trends
-        sig = tr[tr["significant"].astype(bool)].sort_values("theil_sen_slope", ascending=False)
+        sig = tr[tr["significant"].astype(bool)]
+        sig = sig.iloc[np.argsort(-np.abs(sig["theil_sen_slope"].to_numpy()), kind="stable")]
         tcols = [
             c
             for c in ("unit", "name", "direction", "theil_sen_slope", "p_adjusted")
@@ -311,7 +332,13 @@ def build_brief(state: RunState) -> Brief:
                 figures=(
                     _fig(state, "trend_map.png", "Theil-Sen slope where the trend is significant"),
                 ),
-                tables=(Table(sig[tcols], "Significant trends", csv_name="trends.csv"),),
+                tables=(
+                    Table(
+                        sig[tcols],
+                        f"Significant trends, steepest first (slope in {state.panel.meta.unit_label or 'value units'} per period)",
+                        csv_name="trends.csv",
+                    ),
+                ),
             )
         )
     sections.append(
@@ -351,15 +378,24 @@ def _notes(brief: Brief, extra: str = "") -> str:
 
 
 def _short(message: str, limit: int = 160) -> str:
-    return message if len(message) <= limit else message[: limit - 1].rsplit(" ", 1)[0] + "…"
+    """The message, or its first clauses up to ``limit`` characters (cut at '; ' if possible)."""
+    if len(message) <= limit:
+        return message
+    head = message[:limit]
+    cut = head.rfind("; ")
+    head = head[:cut] if cut > limit // 2 else head.rsplit(" ", 1)[0]
+    return head.rstrip(",;:( ") + " …"
 
 
 def build_slides(state: RunState, brief: Brief) -> list[Slide]:
-    """The deck: title, answer, animation, small multiples, change, transitions, movers,
-    clusters, trends, what's new, data notes."""
+    """The deck: title, answer, what's new, animation, small multiples, then one picture per
+    slide (change, flagged units, transitions, flow, movers, clusters, change clusters, trends)
+    and the data notes. Pictures carry their own titles and sources, so the slide adds a
+    takeaway title and the page number only."""
     d = state.staging
     per = state.panel.period_labels
     notice = brief.warning
+    first, last = per[0], per[-1]
     slides = [
         Slide(
             "title",
@@ -377,51 +413,75 @@ def build_slides(state: RunState, brief: Brief) -> list[Slide]:
             notes=_notes(brief, "The headline numbers of this run."),
         ),
     ]
+    sec = brief.section("whats-new")
+    if sec is not None:
+        slides.append(
+            Slide(
+                "whats-new",
+                "What's new since the previous run",
+                bullets=tuple(_short(b, 230) for b in sec.bullets[:8]),
+                notice=notice,
+                notes=_notes(brief, "Differences from the previous run."),
+            )
+        )
     gif, mp4, poster = d / "animation.gif", d / "animation.mp4", d / "poster.png"
+    same = (
+        "Every frame on the same classes"
+        if not state.classes.per_period
+        else "Classes differ by period"
+    )
     if poster.exists():
         slides.append(
             Slide(
                 "animation",
-                f"{state.panel.meta.variable}, {per[0]} to {per[-1]}",
-                subtitle=brief.subtitle,
+                f"{same}: {first} to {last}",
                 images=(poster,),
                 movie=mp4 if mp4.exists() else None,
                 fallback=gif if gif.exists() else None,
                 notice=notice,
-                caption="Same classes in every frame." if not state.classes.per_period else "",
-                notes=_notes(brief, "Animation: one frame per period."),
+                notes=_notes(
+                    brief,
+                    "Animation: one frame per period; outlined units jumped into that period.",
+                ),
             )
         )
-    if (d / "small_multiples.png").exists():
-        slides.append(
-            Slide(
-                "small-multiples",
-                "Every period side by side",
-                images=(d / "small_multiples.png",),
-                notice=notice,
-                notes=_notes(brief),
+    pictures = [
+        (
+            "small-multiples",
+            "small_multiples.png",
+            "Every period side by side",
+            "All periods on one page.",
+        ),
+        (
+            "change",
+            "change_map.png",
+            f"Which units changed class, {first} to {last}",
+            "Net class change between the first and the last period.",
+        ),
+        (
+            "flagged",
+            "flagged_units.png",
+            "Units worth a closer look",
+            "Jumps, spikes (often data errors) and units that stayed in the top or bottom class.",
+        ),
+        (
+            "transitions",
+            "transition_heatmap.png",
+            "How units move between classes",
+            "Counts of moves between consecutive periods, pooled.",
+        ),
+        (
+            "flow",
+            "class_flow.png",
+            f"Where units moved, {first} to {last}",
+            "Shares of units per class in the first and last period.",
+        ),
+    ]
+    for key, name, title, note in pictures:
+        if (d / name).exists():
+            slides.append(
+                Slide(key, title, images=(d / name,), notice=notice, notes=_notes(brief, note))
             )
-        )
-    if (d / "change_map.png").exists():
-        slides.append(
-            Slide(
-                "change",
-                f"Which units changed, {per[0]} to {per[-1]}",
-                images=(d / "change_map.png", d / "flagged_units.png"),
-                notice=notice,
-                notes=_notes(brief, "Net class change and flagged units."),
-            )
-        )
-    if (d / "transition_heatmap.png").exists():
-        slides.append(
-            Slide(
-                "transitions",
-                "How units move between classes",
-                images=(d / "transition_heatmap.png", d / "class_flow.png"),
-                notice=notice,
-                notes=_notes(brief),
-            )
-        )
     movers = top_movers(state, 10)
     if movers is not None:
         slides.append(
@@ -430,47 +490,56 @@ def build_slides(state: RunState, brief: Brief) -> list[Slide]:
                 "Top movers",
                 table=movers,
                 bullets=(
-                    "A jump that came back soon after is often a data error: check it first.",
+                    "A jump that came back soon after is often a data error; a small base makes rates unstable: check both first.",
                 ),
                 notice=notice,
                 notes=_notes(brief, "Largest one-step jumps."),
             )
         )
-    if (d / "cluster_map.png").exists():
-        slides.append(
-            Slide(
-                "clusters",
-                "Is the change clustered in space?",
-                images=(d / "cluster_map.png", d / "global_moran.png"),
-                notice=notice,
-                notes=_notes(brief),
-            )
+    cl = state.results.get("clusters")
+    later = [
+        (
+            "clusters",
+            "cluster_map.png",
+            f"Where high and low values cluster, {last}",
+            "Local clusters in the last period.",
+        ),
+        (
+            "global-moran",
+            "global_moran.png",
+            "How clustered the map is, period by period",
+            "Global Moran's I per period.",
+        ),
+        (
+            "change-clusters",
+            "change_cluster_map.png",
+            "Is the change clustered in space?",
+            "Local clusters of the change between two periods.",
+        ),
+        (
+            "trends",
+            "trend_map.png",
+            "Trends per unit",
+            "Theil-Sen slope where the Mann-Kendall trend is significant.",
+        ),
+    ]
+    if cl is not None:
+        a, b = cl.change_periods
+        later[2] = (
+            "change-clusters",
+            "change_cluster_map.png",
+            f"Is the change {a} to {b} clustered in space?",
+            later[2][3],
         )
-    if (d / "trend_map.png").exists():
-        slides.append(
-            Slide(
-                "trends",
-                "Trends per unit",
-                images=(d / "trend_map.png",),
-                notice=notice,
-                notes=_notes(brief),
+    for key, name, title, note in later:
+        if (d / name).exists():
+            slides.append(
+                Slide(key, title, images=(d / name,), notice=notice, notes=_notes(brief, note))
             )
-        )
-    sec = brief.section("whats-new")
-    if sec is not None:
-        slides.append(
-            Slide(
-                "whats-new",
-                "What's new since the previous run",
-                bullets=tuple(_short(b, 200) for b in sec.bullets[:8]),
-                notice=notice,
-                notes=_notes(brief),
-            )
-        )
     warn = [f for f in state.findings if f.level == "warning"]
-    bullets = tuple(_short(f.message) for f in warn[:7]) or ("No data problems found.",)
-    if len(warn) > 7:
-        bullets += (f"… and {len(warn) - 7} more warnings in findings.json and the report.",)
+    bullets = tuple(_short(f.message, 230) for f in warn[:6]) or ("No data problems found.",)
+    if len(warn) > 6:
+        bullets += (f"… and {len(warn) - 6} more warnings in findings.json and the report.",)
     slides.append(
         Slide(
             "data-notes",

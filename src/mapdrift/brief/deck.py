@@ -180,7 +180,8 @@ def write_deck(slides: Sequence[Slide], path: Path, *, footer: str = "") -> Path
                     _textbox(sh, bullets_box, list(s.bullets), max_px=34, min_px=16, bullets=True)
             if s.caption:
                 _textbox(sh, r.caption, [s.caption], max_px=24, colour=(91, 100, 117))
-        foot = f"{footer}   {n}/{len(slides)}" if footer else f"{n}/{len(slides)}"
+        src = "" if s.images else footer  # pictures carry their own source line
+        foot = f"{src}   {n}/{len(slides)}" if src else f"{n}/{len(slides)}"
         _textbox(
             sh,
             (MARGIN + 600, r.footer[1], W - MARGIN, r.footer[1] + 30),

@@ -24,9 +24,17 @@ FLAG_COLOURS: tuple[str, ...] = (
     "#7b3294",  # jumps up and down
     "#e66101",  # jump up
     "#3b6fb6",  # jump down
-    "#1b7837",  # persistent top
-    "#a6dba0",  # persistent bottom
+    "#1b7837",  # stayed in top class
+    "#a6dba0",  # stayed in bottom class
     "#f4f4f4",  # no flag
+)
+#: Legend words for the first four cluster labels on a map of change (high-high, low-low,
+#: high-low, low-high of the change between two periods).
+CHANGE_CLUSTER_LABELS: tuple[str, ...] = (
+    "rise among rises",
+    "fall among falls",
+    "rise among falls",
+    "fall among rises",
 )
 CHANGE_PICTURES = (
     "transition_heatmap.png",
@@ -96,7 +104,11 @@ def change_pictures(result: Any, panel: Any, out: Path, *, force: bool = False) 
             labels,
             out / "change_map.png",
             title=f"{var}: class change, {first} to {last}",
-            subtitle=f"Classes moved between {first} and {last} (same breaks in both)",
+            subtitle=(
+                f"Classes moved between {first} and {last} (same breaks in both)"
+                if notice is None
+                else f"Class ranks moved between {first} and {last}; breaks differ by period"
+            ),
             caption=source,
             legend_title="net change",
             nodata_label=f"no data in {first} or {last}",
@@ -115,7 +127,7 @@ def change_pictures(result: Any, panel: Any, out: Path, *, force: bool = False) 
             title=f"{var}: units to look at",
             subtitle=(
                 f"jump = {opts.jump}+ classes in one step; spike = jumped and came back within "
-                f"{opts.spike_window} periods; persistent = top or bottom class in each of the "
+                f"{opts.spike_window} periods; stayed = top or bottom class in each of the "
                 f"last {opts.persist} periods"
             ),
             caption=(
@@ -144,8 +156,9 @@ def cluster_pictures(result: Any, panel: Any, out: Path, *, force: bool = False)
     opt = result.options
     var = panel.meta.variable or "value"
     sig = result.significance
+    stat_name = "Local Moran's I" if opt.statistic == "local-moran" else "Getis-Ord Gi*"
     caption = (
-        f"{opt.statistic} with {result.weights.kind} weights, {opt.permutations} permutations "
+        f"{stat_name} with {result.weights.kind} weights, {opt.permutations} permutations "
         f"(seed {opt.seed}); {sig}. {panel.meta.source}".strip()
     )
     written: list[Path] = []
@@ -155,8 +168,9 @@ def cluster_pictures(result: Any, panel: Any, out: Path, *, force: bool = False)
             list(result.period_labels), g["moran_i"], g["expected_i"], g["p_permutation"],
             out / "global_moran.png", alpha=opt.alpha, title=f"Spatial clustering of {var.lower()}",
             subtitle=f"Global Moran's I per period ({result.weights.kind} weights)",
-            caption=f"Markers filled where the permutation p-value <= {opt.alpha:g} "
-            f"({opt.permutations} permutations, seed {opt.seed}). {panel.meta.source}".strip(),
+            caption=f"Markers filled where the permutation p-value <= {opt.alpha:g}, each period "
+            f"tested on its own, no correction across periods ({opt.permutations} permutations, "
+            f"seed {opt.seed}). {panel.meta.source}".strip(),
         )
     )  # fmt: skip
     colours = [CLUSTER_COLOURS[label] for label in LABELS]
@@ -177,14 +191,19 @@ def cluster_pictures(result: Any, panel: Any, out: Path, *, force: bool = False)
     )
     last = result.codes[:, -1]
     written.append(
-        static_map(panel.geometry, last, colours, labels, out / "cluster_map.png",
+        static_map(panel.geometry, last, colours, labels, out / "cluster_map.png", legend_title="local clusters",
                  title=f"{title}, {result.period_labels[-1]}", subtitle=sub, caption=caption, force=force)
     )  # fmt: skip
     a, b = result.change_periods
+    # the categories of a map of change speak of rises and falls, not of high and low levels
+    change_labels = list(CHANGE_CLUSTER_LABELS) + labels[4:]
+    change_sig = sig.replace(" per period", "")
+    change_caption = caption.replace(sig, change_sig)
     written.append(
-        static_map(panel.geometry, result.change_codes, colours, labels, out / "change_cluster_map.png",
+        static_map(panel.geometry, result.change_codes, colours, change_labels, out / "change_cluster_map.png",
                  title=f"Where the change in {var.lower()} is clustered, {a} to {b}",
-                 subtitle=f"Local clusters of the change {a}-{b}, {sig}", caption=caption, force=force)
+                 subtitle=f"Local clusters of the change {a} to {b}, {change_sig}",
+                 legend_title=f"change {a} to {b}", caption=change_caption, force=force)
     )  # fmt: skip
     written.append(
         static_map(panel.geometry, result.trend_codes, diverging(5), list(result.trend_labels),

@@ -76,6 +76,8 @@ def _fmt(v: object) -> str:
     if isinstance(v, float):
         if v != v:  # NaN
             return ""
+        if v != 0 and abs(v) < 0.01:  # small p-values keep two significant digits
+            return f"{v:.2g}"
         return f"{v:,.2f}" if abs(v) < 1e6 else f"{v:,.0f}"
     return str(v)
 
@@ -163,7 +165,12 @@ def _table_md(t: Table) -> str:
     for rec in df.itertuples(index=False):
         lines.append("| " + " | ".join(_md_escape(_fmt(v)) for v in rec) + " |")
     lines.append("")
-    lines.append(f"*{_md_escape(t.caption)}*")
+    more = ""
+    if len(t.df) > t.max_rows:
+        more = f" Showing {t.max_rows} of {len(t.df)} rows" + (
+            f"; all in {t.csv_name}." if t.csv_name else "."
+        )
+    lines.append(f"*{_md_escape(t.caption + more)}*")
     return "\n".join(lines)
 
 

@@ -275,6 +275,7 @@ def draw_slide(
                 boxes += _bullets(d, slide.bullets, bullets_box)
         if slide.caption:
             boxes.append(_text(d, slide.caption, r.caption, 24, MUTED))
+    footer = "" if slide.images else footer  # pictures carry their own source line
     foot = f"{footer}   {number}/{total}" if footer else f"{number}/{total}"
     size = 20
     x = W - MARGIN - text_width(foot, size)

@@ -26,14 +26,14 @@ __all__ = ["units_table", "write_units_gpkg"]
 def units_table(
     panel: Panel, classes: Classes, extra: Mapping[str, Any] | None = None
 ) -> pd.DataFrame:
-    """One row per unit: id, name, value and class per period, then ``extra`` columns.
+    """One row per unit: ``unit`` (ID), name, value and class per period, then ``extra`` columns.
 
     Class columns are 1-based (``class_2019`` = 1 is the lowest class); no data is empty.
     ``extra`` maps column names to per-unit arrays (jumps, flags, cluster labels, trend...).
     """
     import pandas as pd
 
-    data: dict[str, Any] = {"unit_id": list(panel.units), "name": list(panel.names)}
+    data: dict[str, Any] = {"unit": list(panel.units), "name": list(panel.names)}
     for j, label in enumerate(panel.period_labels):
         data[f"value_{label}"] = panel.values[:, j]
     for j, label in enumerate(panel.period_labels):

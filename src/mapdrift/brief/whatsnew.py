@@ -9,7 +9,7 @@ period), a trend by (unit, direction) among significant trends; findings by (cod
 from __future__ import annotations
 
 import json
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -44,13 +44,18 @@ class WhatsNew:
     ended_trends: pd.DataFrame
     findings: tuple[str, ...] = field(default=())
     small_base: frozenset[str] = field(default=frozenset())
+    names: dict[str, str] = field(default_factory=dict)
+
+    def _who(self, unit: str) -> str:
+        name = self.names.get(unit, "")
+        return f"{unit} {name}" if name and name != unit else unit
 
     def bullets(self) -> list[str]:
         """One sentence per kind of news, for the report and the slide."""
         out = []
         if len(self.new_jumps):
             ex = [
-                f"{r.unit} ({r.from_period}→{r.to_period}, {r.direction} {abs(int(r.size))}"
+                f"{self._who(r.unit)} ({r.from_period}→{r.to_period}, {r.direction} {abs(int(r.size))}"
                 + (", small base: unstable)" if r.unit in self.small_base else ")")
                 for r in self.new_jumps.itertuples()
             ]
@@ -65,16 +70,17 @@ class WhatsNew:
             )
             if len(ev):
                 out.append(
-                    f"{plural(ev['unit'].nunique(), 'unit')} newly {words}: {examples([f'{u} ({p})' for u, p in zip(ev['unit'], ev['period'])])}."
+                    f"{plural(ev['unit'].nunique(), 'unit')} newly {words}: {examples([f'{self._who(u)} ({p})' for u, p in zip(ev['unit'], ev['period'])])}."
                 )
         if len(self.new_trends):
             ex = [
-                f"{u} ({d})" for u, d in zip(self.new_trends["unit"], self.new_trends["direction"])
+                f"{self._who(u)} ({d})"
+                for u, d in zip(self.new_trends["unit"], self.new_trends["direction"])
             ]
             out.append(f"{plural(len(self.new_trends), 'new significant trend')}: {examples(ex)}.")
         if len(self.ended_trends):
             out.append(
-                f"{plural(len(self.ended_trends), 'trend')} no longer significant: {examples(list(self.ended_trends['unit']))}."
+                f"{plural(len(self.ended_trends), 'trend')} no longer significant: {examples([self._who(u) for u in self.ended_trends['unit']])}."
             )
         out.extend(self.findings)
         return out
@@ -121,7 +127,8 @@ def _finding_news(prev_findings: list[dict], findings: Sequence[Finding]) -> lis
         new_units = [u for u in f.units if u not in before[f.code]]
         if new_units:
             out.append(
-                f"{f.code}: {plural(len(new_units), 'unit')} newly affected: {examples(new_units)}."
+                f"Data check {f.code} now also names {examples(new_units)} "
+                f"({plural(len(new_units), 'unit')})."
             )
     now = {f.code for f in findings}
     for code in sorted(set(before) - now):
@@ -136,6 +143,7 @@ def compare_runs(
     cluster_changes: pd.DataFrame | None,
     trends: pd.DataFrame | None,
     findings: Sequence[Finding],
+    names: Mapping[str, str] | None = None,
 ) -> WhatsNew:
     """Compare this run's tables with the previous run's folder."""
     import pandas as pd
@@ -208,4 +216,5 @@ def compare_runs(
         ended_trends=ended,
         findings=tuple(_finding_news(prev_findings, findings)),
         small_base=small,
+        names=dict(names or {}),
     )

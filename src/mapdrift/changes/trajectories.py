@@ -11,7 +11,7 @@ unbridged gap or with a no-data cell is never a move):
 - ``spike``: a jump followed, within ``spike_window`` period columns after it landed, by a move
   back of at least ``jump`` classes from the landing class (``2-5-2``, ``2-5-5-3`` with a window
   of 2): often a data error worth checking.
-- ``persistent-top`` / ``persistent-bottom``: in the highest / lowest class in each of the last
+- ``stayed-top`` / ``stayed-bottom``: in the highest / lowest class in each of the last
   ``persist`` periods (no data in any of them, or fewer periods than ``persist`` -> not
   flagged).
 """
@@ -43,8 +43,8 @@ FLAG_LABELS: tuple[str, ...] = (
     "jumps up and down",
     "jump up",
     "jump down",
-    "persistent top",
-    "persistent bottom",
+    "stayed in top class",
+    "stayed in bottom class",
     "no flag",
 )
 
@@ -183,8 +183,8 @@ def unit_changes(
         [
             (up | down, "jump"),
             (unit_spike, "spike"),
-            (p_top, "persistent-top"),
-            (p_bottom, "persistent-bottom"),
+            (p_top, "stayed-top"),
+            (p_bottom, "stayed-bottom"),
         ]
     )
     table = pd.DataFrame(
@@ -197,12 +197,12 @@ def unit_changes(
             "largest_move_from": lfrom,
             "largest_move_to": lto,
             "net_change": net,
-            "jumps": n_jumps,
+            "n_jumps": n_jumps,
             "jump": up | down,
             "spike": unit_spike,
-            "persistent_top": p_top,
-            "persistent_bottom": p_bottom,
-            "flags": texts,
+            "stayed_top": p_top,
+            "stayed_bottom": p_bottom,
+            "change_flags": texts,
         }
     )
     return UnitChanges(table=table, jumps=jumps, net_change=net, flag=flag)
@@ -228,8 +228,8 @@ def flag_codes(
     """One category per unit for the flagged map (index into :data:`FLAG_LABELS`, -1 = no data)."""
     out = np.full(len(spike), FLAG_LABELS.index("no flag"), dtype=np.int16)
     # assign from the lowest priority up so the highest-priority flag wins
-    out[bottom] = FLAG_LABELS.index("persistent bottom")
-    out[top] = FLAG_LABELS.index("persistent top")
+    out[bottom] = FLAG_LABELS.index("stayed in bottom class")
+    out[top] = FLAG_LABELS.index("stayed in top class")
     out[down] = FLAG_LABELS.index("jump down")
     out[up] = FLAG_LABELS.index("jump up")
     out[up & down] = FLAG_LABELS.index("jumps up and down")

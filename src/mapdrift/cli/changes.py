@@ -136,8 +136,8 @@ def changes(
     u = result.units
     echo(
         f"flagged: {int(u['jump'].sum())} units jumped {options.jump}+ classes, "
-        f"{int(u['spike'].sum())} spikes, {int(u['persistent_top'].sum())} persistent top, "
-        f"{int(u['persistent_bottom'].sum())} persistent bottom"
+        f"{int(u['spike'].sum())} spikes, {int(u['stayed_top'].sum())} stayed in top class, "
+        f"{int(u['stayed_bottom'].sum())} stayed in bottom class"
     )
     if result.warning:
         echo(typer.style(f"warning: {result.warning}", fg=typer.colors.YELLOW))
