@@ -223,3 +223,9 @@ def test_property_pooled_breaks_identical_across_periods(rows):
     assert len(c.breaks) == 1
     for j in range(3):  # each period classified with the one pooled set
         np.testing.assert_array_equal(c.codes[:, j], c.breaks[0].classify(v[:, j]))
+
+
+def test_isolated_zero_class_label():
+    x = np.array([0.0] * 10 + list(np.linspace(1, 20, 40)))
+    b = fit_breaks(x, "quantile", 3, isolate_zeros=True)
+    assert b.labels[0] == "exactly 0" and b.labels[1].startswith("0 - ")

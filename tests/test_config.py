@@ -56,3 +56,15 @@ def test_values_checked_at_load(tmp_path):
     p.write_text('[inputs]\ngeometry = "a.gpkg"\nper = "1000"\n')
     with pytest.raises(ConfigError, match="key 'per' in \\[inputs\\] should be a number"):
         load_config(p)
+
+
+def test_typos_get_a_suggestion_and_line(tmp_path):
+    p = tmp_path / "c.toml"
+    p.write_text("[cluster]\nalpha = 0.1\n")
+    with pytest.raises(
+        ConfigError, match=r"c.toml:1: section \[cluster\] is not known; did you mean \[clusters\]"
+    ):
+        load_config(p)
+    p.write_text("[clusters]\npermutatons = 99\n")
+    with pytest.raises(ConfigError, match="did you mean 'permutations'"):
+        load_config(p)

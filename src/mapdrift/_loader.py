@@ -400,7 +400,7 @@ def load(spec: InputSpec) -> Panel:
     if spec.table is not None and len(matched) < 0.5 * len(layer_ids):
         hints = closest(table_only, layer_ids)
         hint = (
-            "; closest layer IDs: " + ", ".join(f"{a} ~ {b}" for a, b in hints.items())
+            "; closest layer IDs: " + ", ".join(f"{a} -> {b}?" for a, b in hints.items())
             if hints
             else ""
         )
@@ -412,7 +412,9 @@ def load(spec: InputSpec) -> Panel:
     if table_only:
         hints = closest(table_only, [u for u in layer_ids if u not in set(table_ids)] or layer_ids)
         hint = (
-            " (closest: " + ", ".join(f"{a} ~ {b}" for a, b in hints.items()) + ")" if hints else ""
+            " (closest layer IDs: " + ", ".join(f"{a} -> {b}?" for a, b in hints.items()) + ")"
+            if hints
+            else ""
         )
         rows = int(long["id"].isin(table_only).sum())
         findings.append(

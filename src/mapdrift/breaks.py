@@ -458,8 +458,12 @@ def fit_breaks(
         notes.append(
             f"head/tail breaks found {len(edges)} classes (the tail ended), not {requested}"
         )
+    labels = format_labels(edges, float(np.min(x)))
+    if isolate_zeros and edges[0] == 0.0 and len(edges) > 1:
+        labels = ("exactly 0",) + labels[1:]
     return Breaks(
         edges=tuple(edges),
+        labels=labels,
         scheme=scheme.value,
         basis=basis,
         lower=float(np.min(x)),

@@ -147,6 +147,13 @@ def _where(path: Path | None, text: str, section: str | None, key: str) -> str:
     )
 
 
+def _did_you_mean(word: str, choices: Any, fmt: str) -> str:
+    import difflib
+
+    near = difflib.get_close_matches(word, sorted(choices), n=1)
+    return f"did you mean {fmt.format(near[0])}? " if near else ""
+
+
 def _type_name(tp: Any) -> str:
     return getattr(tp, "__name__", str(tp))
 
@@ -223,7 +230,8 @@ def section_from_dict(
         if key not in names:
             valid = ", ".join(sorted(names))
             raise ConfigError(
-                f"{_where(path, text, section, key)} is not a known key; valid keys: {valid}"
+                f"{_where(path, text, section, key)} is not a known key; "
+                f"{_did_you_mean(key, names, '{!r}')}valid keys: {valid}"
             )
         try:
             out[key] = _coerce(value, hints[key], base)
@@ -253,8 +261,13 @@ def load_config(path: Path | str) -> Config:
         if not isinstance(raw, dict):
             continue
         if name not in SECTIONS or name == "run":
-            valid = ", ".join(s for s in SECTIONS if s != "run")
-            raise ConfigError(f"{path}: section [{name}] is not known; valid sections: {valid}")
+            valid = [s for s in SECTIONS if s != "run"]
+            head = re.compile(rf"\s*\[\s*{re.escape(name)}\s*\]")
+            line = next((i for i, t in enumerate(text.splitlines(), 1) if head.match(t)), None)
+            raise ConfigError(
+                f"{path}{f':{line}' if line else ''}: section [{name}] is not known; "
+                f"{_did_you_mean(name, valid, '[{}]')}valid sections: {', '.join(valid)}"
+            )
         sections[name] = section_from_dict(name, raw, path=path, text=text)
     for name, values in sections.items():
         _check_values(name, values, path)

@@ -25,7 +25,7 @@ from typing import Any
 
 from mapdrift.config import BriefSpec, ClassSpec, Config, RunSpec, merge
 from mapdrift.errors import ConfigError, InputError, MapdriftError, StepError
-from mapdrift.findings import Finding
+from mapdrift.findings import Finding, plural
 
 __all__ = ["STEPS", "RunResult", "RunState", "default_out", "prepare_out", "run"]
 
@@ -396,7 +396,10 @@ def _step_whatsnew(state: RunState) -> str:
         state.path("whats_new.json"),
         json.dumps({"previous": str(wn.previous), "news": wn.bullets()}, indent=2) + "\n",
     )
-    return f"{len(wn.new_jumps)} new jumps, {len(wn.cluster_events)} new cluster events, {len(wn.new_trends)} new trends"
+    return (
+        f"{plural(len(wn.new_jumps), 'new jump')}, {plural(len(wn.cluster_events), 'new cluster event')}, "
+        f"{plural(len(wn.new_trends), 'new trend')}"
+    )
 
 
 def _step_findings(state: RunState) -> str:
@@ -407,7 +410,7 @@ def _step_findings(state: RunState) -> str:
         json.dumps([f.to_dict() for f in state.findings], indent=2) + "\n",
     )
     n = {lvl: sum(f.level == lvl for f in state.findings) for lvl in ("warning", "note")}
-    return f"{n['warning']} warnings, {n['note']} notes"
+    return f"{plural(n['warning'], 'warning')}, {plural(n['note'], 'note')}"
 
 
 def _step_brief(state: RunState) -> str:

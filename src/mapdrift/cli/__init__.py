@@ -13,10 +13,10 @@ from mapdrift.cli._app import app, main
 # Command modules register themselves on `app` when imported.
 from mapdrift.cli import check as _check  # noqa: E402,F401  isort: skip
 from mapdrift.cli import breaks as _breaks  # noqa: E402,F401  isort: skip
-from mapdrift.cli import run as _run  # noqa: E402,F401  isort: skip
-from mapdrift.cli import demo as _demo  # noqa: E402,F401  isort: skip
+from mapdrift.cli import animate as _animate  # noqa: E402,F401  isort: skip
 from mapdrift.cli import changes as _changes  # noqa: E402,F401  isort: skip
 from mapdrift.cli import clusters as _clusters  # noqa: E402,F401  isort: skip
-from mapdrift.cli import animate as _animate  # noqa: E402,F401  isort: skip
+from mapdrift.cli import run as _run  # noqa: E402,F401  isort: skip
+from mapdrift.cli import demo as _demo  # noqa: E402,F401  isort: skip
 
 __all__ = ["app", "main"]

@@ -51,7 +51,9 @@ def _main(
 ) -> None:
     state["debug"] = debug
     state["quiet"] = quiet
-    level = logging.DEBUG if debug else logging.INFO if verbose else logging.WARNING
+    # library warnings travel as findings (printed, in findings.json and the report), so the
+    # console shows only errors unless -v or --debug
+    level = logging.DEBUG if debug else logging.INFO if verbose else logging.ERROR
     if quiet:
         level = logging.ERROR
     # the console shows `level` and above; the pipeline's run.log (a handler of its own) may

@@ -10,6 +10,7 @@ import typer
 from mapdrift.cli._app import command
 from mapdrift.cli._options import input_options
 from mapdrift.cli._print import echo, print_findings
+from mapdrift.findings import plural
 
 
 def completeness_lines(panel: Any, width: int = 100) -> list[str]:
@@ -72,4 +73,5 @@ def check(
         echo(line)
     n_warn = sum(f.level == "warning" for f in panel.findings)
     echo()
-    echo(f"Usable: {n_warn} warnings, {sum(f.level == 'note' for f in panel.findings)} notes.")
+    n_note = sum(f.level == "note" for f in panel.findings)
+    echo(f"Usable: {plural(n_warn, 'warning')}, {plural(n_note, 'note')}.")

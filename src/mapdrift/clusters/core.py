@@ -269,7 +269,9 @@ def analyse_clusters(
             )
             findings.append(
                 Finding(
-                    "warning",
+                    # under Bonferroni nothing can pass: a warning; under FDR it only limits
+                    # significance to groups of small p-values, as clusters are: a note
+                    "warning" if opt.correction == "bonferroni" else "note",
                     "clusters-permutation-floor",
                     f"with {opt.permutations} permutations the smallest possible p-value is "
                     f"{floor:.3g}, above {opt.alpha:g}/{m} tests, so after {opt.correction} "
