@@ -228,4 +228,4 @@ def test_property_pooled_breaks_identical_across_periods(rows):
 def test_isolated_zero_class_label():
     x = np.array([0.0] * 10 + list(np.linspace(1, 20, 40)))
     b = fit_breaks(x, "quantile", 3, isolate_zeros=True)
-    assert b.labels[0] == "exactly 0" and b.labels[1].startswith("0 - ")
+    assert b.labels[0] == "exactly 0" and b.labels[1].startswith("0.0 - ")
