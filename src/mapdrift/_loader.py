@@ -505,12 +505,15 @@ def load(spec: InputSpec) -> Panel:
             "and write decimals with a point (5.3, not 5,3)"
         )
     raise_errors(findings, InputError)
+    def words(col: str | None) -> str:  # column names read as words in titles
+        return str(col).replace("_", " ").replace("*", "").strip()
+
     variable = spec.variable or (
-        f"{spec.numerator} per {spec.per:g} {spec.denominator}"
-        if roles
-        else (spec.value or spec.columns or "value")
+        f"{words(spec.numerator)} rate" if roles else words(spec.value or spec.columns or "value")
     )
-    unit_label = spec.unit_label or (f"per {spec.per:,g} {spec.denominator}" if roles else "")
+    unit_label = spec.unit_label or (
+        f"{words(spec.numerator)} per {spec.per:,g} {words(spec.denominator)}" if roles else ""
+    )
     geometry = gdf.geometry.reset_index(drop=True)
     inputs = tuple(p for p in (gpath, spec.table, *spec.append, spec.crosswalk) if p is not None)
     log.info("loaded %d units x %d periods from %s", len(layer_ids), len(periods), examples(inputs))
