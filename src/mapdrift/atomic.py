@@ -32,10 +32,18 @@ def atomic_path(target: Path | str, suffix: str | None = None) -> Iterator[Path]
     tmp_path = Path(tmp)
     try:
         yield tmp_path
+        if tmp_path.is_file():  # mkstemp makes 0600 files; outputs get the usual umask mode
+            os.chmod(tmp_path, 0o666 & ~_umask())
         os.replace(tmp_path, target)
     finally:
         if tmp_path.exists():
             tmp_path.unlink()
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def write_bytes(target: Path, data: bytes) -> Path:

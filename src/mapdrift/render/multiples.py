@@ -64,12 +64,11 @@ def small_multiples(
     required wording such as the per-period warning).
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.collections import PathCollection
     from matplotlib.figure import Figure
     from matplotlib.patches import Rectangle
     from matplotlib.transforms import Affine2D
 
-    from mapdrift.render.static import unit_paths
+    from mapdrift.render.static import add_vector_map, unit_paths
 
     codes = np.asarray(codes_2d)
     n_units, n_p = codes.shape
@@ -172,30 +171,8 @@ def small_multiples(
         )
         t = aff + ax.transData
         cj = codes[:, j]
-        have, none = np.flatnonzero(cj >= 0), np.flatnonzero(cj < 0)
-        if have.size:
-            ax.add_collection(
-                PathCollection(
-                    [paths[i] for i in have],
-                    facecolors=[colours[int(cj[i])] for i in have],
-                    edgecolors=lay.BOUNDARY,
-                    linewidths=lw,
-                    transform=t,
-                )
-            )
-        if none.size:
-            ax.add_collection(
-                PathCollection(
-                    [paths[i] for i in none],
-                    facecolors=NODATA,
-                    edgecolors=lay.BOUNDARY,
-                    hatch="////",
-                    hatchcolor=NODATA_HATCH,
-                    linewidths=lw,
-                    transform=t,
-                )
-            )
-        nd = int(none.size)
+        add_vector_map(ax, paths, cj, colours, linewidth=lw, transform=t)
+        nd = int((cj < 0).sum())
         if nd:
             ax.text(
                 x0 + cell_w,

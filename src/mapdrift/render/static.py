@@ -70,10 +70,15 @@ def add_vector_map(
     linewidth: float = 0.4,
     outline_units: Sequence[int] | None = None,
     outline_width: float = 1.6,
+    transform: Any = None,
 ) -> None:
-    """Draw units as vector polygons: class colour by code, hatched no-data grey for ``-1``."""
+    """Draw units as vector polygons: class colour by code, hatched no-data grey for ``-1``.
+
+    ``transform`` (a matplotlib transform) places the paths; default: the axes' data units.
+    """
     from matplotlib.collections import PathCollection
 
+    place = {"transform": transform} if transform is not None else {}
     codes = np.asarray(codes)
     have = np.flatnonzero(codes >= 0)
     none = np.flatnonzero(codes < 0)
@@ -84,6 +89,7 @@ def add_vector_map(
                 facecolors=[colours[int(codes[i])] for i in have],
                 edgecolors=lay.BOUNDARY,
                 linewidths=linewidth,
+                **place,
             )
         )
     if none.size:
@@ -95,6 +101,7 @@ def add_vector_map(
                 hatch="////",
                 hatchcolor=NODATA_HATCH,
                 linewidths=linewidth,
+                **place,
             )
         )
     if outline_units is not None and len(outline_units):
@@ -104,6 +111,7 @@ def add_vector_map(
                 facecolors="none",
                 edgecolors=lay.OUTLINE,
                 linewidths=outline_width,
+                **place,
             )
         )
 
