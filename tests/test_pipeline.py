@@ -103,17 +103,11 @@ def _planted_new_jumper() -> str:
 
 
 def test_annual_rerun_reuses_breaks_and_reports_new_jumper(demo_run, tmp_path):
-    cfg_text = (DEMO / "demo.toml").read_text()
-    cfg_text = f'previous = "{demo_run.out.as_posix()}"\n' + cfg_text.replace(
-        'table = "filings.csv"', 'table = "filings.csv"\nappend = ["filings_2025.csv"]'
-    )
-    cfg_path = DEMO / ".test_rerun.toml"
-    cfg_path.write_text(cfg_text)
-    try:
-        cfg = load_config(cfg_path).with_values("brief", {"formats": ["html"]})
-        new = run(cfg, out=tmp_path / "2025")
-    finally:
-        cfg_path.unlink()
+    # the shipped rerun config, pointed at this test's 2024 run
+    cfg = load_config(DEMO / "rerun_2025.toml")
+    cfg = cfg.with_values("run", {"previous": str(demo_run.out)})
+    cfg = cfg.with_values("brief", {"formats": ["html"]})
+    new = run(cfg, out=tmp_path / "2025")
     old_b = json.loads((demo_run.out / "breaks.json").read_text())
     new_b = json.loads((new.out / "breaks.json").read_text())
     assert new_b["edges"] == old_b["edges"] and new_b["basis"] == "file"
