@@ -68,3 +68,18 @@ def test_typos_get_a_suggestion_and_line(tmp_path):
     p.write_text("[clusters]\npermutatons = 99\n")
     with pytest.raises(ConfigError, match="did you mean 'permutations'"):
         load_config(p)
+
+
+def test_set_overrides_any_key():
+    from conftest import DEMO
+
+    from mapdrift.config import parse_setting
+
+    assert parse_setting("clusters.permutations=9999") == ("clusters", "permutations", 9999)
+    assert parse_setting("animate.size=1920x1080") == ("animate", "size", "1920x1080")
+    assert parse_setting('brief.formats=["html"]') == ("brief", "formats", ["html"])
+    assert parse_setting("previous=outputs/2024") == ("run", "previous", "outputs/2024")
+    cfg = load_config(DEMO / "demo.toml").with_values("animate", {"size": "1920x1080"})
+    assert cfg.section("animate")["size"] == (1920, 1080)
+    with pytest.raises(ConfigError, match="SECTION.KEY=VALUE"):
+        parse_setting("permutations")

@@ -36,6 +36,7 @@ __all__ = [
     "SECTIONS",
     "load_config",
     "merge",
+    "parse_setting",
     "section_from_dict",
 ]
 
@@ -240,6 +241,25 @@ def section_from_dict(
                 f"{_where(path, text, section, key)} should be {exc}, got {value!r}"
             ) from None
     return out
+
+
+def parse_setting(text: str) -> tuple[str, str, Any]:
+    """``"clusters.permutations=9999"`` -> ``("clusters", "permutations", 9999)``.
+
+    The value is read as a TOML value (numbers, true/false, ["lists"]), else as plain text; a
+    key without a section is a top-level key (``previous=outputs/2024``).
+    """
+    key, sep, raw = text.partition("=")
+    if not sep or not key.strip():
+        raise ConfigError(
+            f"--set {text!r} should be SECTION.KEY=VALUE, e.g. --set clusters.permutations=9999"
+        )
+    section, _, name = key.strip().rpartition(".")
+    try:
+        value = tomllib.loads(f"v = {raw.strip()}")["v"]
+    except tomllib.TOMLDecodeError:
+        value = raw.strip()
+    return section or "run", name, value
 
 
 def load_config(path: Path | str) -> Config:

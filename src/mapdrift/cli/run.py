@@ -81,6 +81,11 @@ def run_cmd(
     correction: Optional[str] = _o(None, "--correction", help="fdr, bonferroni or none."),
     seed: Optional[int] = _o(None, "--seed", help="Seed of the permutation tests."),
     title: Optional[str] = _o(None, "--title", help="Title of the report and slides."),
+    settings: Optional[list[str]] = _o(
+        None,
+        "--set",
+        help="Override any config key: SECTION.KEY=VALUE (repeatable), e.g. --set animate.size=1920x1080.",
+    ),
 ) -> None:
     """Run every step (check, classes, animation, changes, clusters, briefing) from a config.
 
@@ -115,4 +120,14 @@ def run_cmd(
         },
     )
     cfg = cfg.with_values("brief", {"title": title})
+    from mapdrift.config import SECTIONS, parse_setting
+    from mapdrift.errors import ConfigError
+
+    for text in settings or ():
+        section, key, value = parse_setting(text)
+        if section not in SECTIONS:
+            raise ConfigError(
+                f"--set {text!r}: no section [{section}]; sections: {', '.join(SECTIONS)}"
+            )
+        cfg = cfg.with_values(section, {key: value})
     run_config(cfg, out=out, force=force)
