@@ -110,7 +110,8 @@ def test_annual_rerun_reuses_breaks_and_reports_new_jumper(demo_run, tmp_path):
     new = run(cfg, out=tmp_path / "2025")
     old_b = json.loads((demo_run.out / "breaks.json").read_text())
     new_b = json.loads((new.out / "breaks.json").read_text())
-    assert new_b["edges"] == old_b["edges"] and new_b["basis"] == "file"
+    assert new_b["edges"] == old_b["edges"] and new_b["basis"] == old_b["basis"] == "pooled"
+    assert new_b["fitted_on"] == "2012-2024" and new_b["reused_from"].startswith("the previous run")
     news = json.loads((new.out / "whats_new.json").read_text())["news"]
     jumper = _planted_new_jumper()
     assert jumper in news[0], news

@@ -196,7 +196,7 @@ def detect_zero_block(
         "warning",
         "values-zero-block",
         f"exact zeros that look like a missing-value code: {reason}{where} "
-        f"(units {examples(affected)}); if 0 means 'not reported' there, blank those cells in the source (or pass --missing 0 if every 0 is such a code)",
+        f"(units {examples(affected)}); if 0 means 'not reported' there, blank those cells in the source (or pass --missing 0, [inputs] missing = [0] in a config, if every 0 is such a code)",
         affected,
     )
 
@@ -259,6 +259,8 @@ def load(spec: InputSpec) -> Panel:
         df = df.astype(object).where(df.notna(), "")
         df[id_col] = layer_ids
         t_id = id_col
+    # the name findings use for the values' source: the table and any appended tables
+    tname = " + ".join(p.name for p in (tpath, *(spec.append if spec.table is not None else ())))
     roles: dict[str, str] = {}
     if spec.numerator or spec.denominator:
         if not (spec.numerator and spec.denominator):
@@ -297,7 +299,7 @@ def load(spec: InputSpec) -> Panel:
             Finding(
                 "warning",
                 "ids-blank-rows",
-                f"{tpath.name}: {int(no_id.sum())} rows have no unit ID and were left out",
+                f"{tname}: {int(no_id.sum())} rows have no unit ID and were left out",
             )
         )
         long = long[~no_id]
@@ -307,13 +309,13 @@ def load(spec: InputSpec) -> Panel:
             Finding(
                 "warning",
                 "periods-blank-rows",
-                f"{tpath.name}: {int(no_period.sum())} rows have no period and were left out",
+                f"{tname}: {int(no_period.sum())} rows have no period and were left out",
             )
         )
         long = long[~no_period]
     if spec.table is not None:
         padded, pad_findings = pad_ids(
-            long["id"].tolist(), layer_ids, width=spec.id_width, where=tpath.name
+            long["id"].tolist(), layer_ids, width=spec.id_width, where=tname
         )
         long["id"] = padded
         findings += pad_findings
@@ -328,13 +330,13 @@ def load(spec: InputSpec) -> Panel:
     }
     for c in num_cols:
         nums, f = to_numbers(
-            long[c], where=tpath.name, column=str(label[c]), missing_codes=spec.missing, ids=ids_arr
+            long[c], where=tname, column=str(label[c]), missing_codes=spec.missing, ids=ids_arr
         )
         long[c] = nums
         findings += f
 
     # -- periods --------------------------------------------------------------------------
-    mapping = parse_periods(long["period_text"].tolist(), where=f"{tpath.name} periods")
+    mapping = parse_periods(long["period_text"].tolist(), where=f"{tname} periods")
     long["period"] = long["period_text"].map(mapping)
     periods = tuple(sorted(set(mapping.values())))
     gaps = missing_periods(periods)
@@ -343,7 +345,7 @@ def load(spec: InputSpec) -> Panel:
             Finding(
                 "warning",
                 "periods-gap",
-                f"{tpath.name}: the series has gaps: no data for {examples(gaps)}; changes across a gap "
+                f"{tname}: the series has gaps: no data for {examples(gaps)}; changes across a gap "
                 "are not bridged unless asked",
             )
         )
@@ -370,7 +372,7 @@ def load(spec: InputSpec) -> Panel:
             Finding(
                 "warning",
                 "values-duplicates-combined",
-                f"{tpath.name}: {len(pairs)} (unit, period) pairs had several rows (e.g. {ex}); "
+                f"{tname}: {len(pairs)} (unit, period) pairs had several rows (e.g. {ex}); "
                 f"combined by {spec.duplicates} (--duplicates)",
                 tuple(pairs["id"].unique()),
             )
@@ -421,9 +423,9 @@ def load(spec: InputSpec) -> Panel:
             Finding(
                 "warning",
                 "ids-table-only",
-                f"{tpath.name}: table IDs with no polygon, not mapped: {examples(table_only)}{hint} "
-                f"({plural(len(table_only), 'ID')}, {plural(rows, 'row')}); check for a boundary "
-                "vintage change or typos",
+                f"{tname}: {plural(len(table_only), 'table ID')} ({plural(rows, 'row')}) with no "
+                f"polygon, not mapped: {examples(table_only, total=False)}{hint}; check for a "
+                "boundary vintage change or typos",
                 tuple(table_only),
             )
         )
@@ -505,6 +507,7 @@ def load(spec: InputSpec) -> Panel:
             "and write decimals with a point (5.3, not 5,3)"
         )
     raise_errors(findings, InputError)
+
     def words(col: str | None) -> str:  # column names read as words in titles
         return str(col).replace("_", " ").replace("*", "").strip()
 
@@ -567,7 +570,7 @@ def _rates(
                 "warning",
                 "rates-small-base",
                 f"{int(small.sum())} rates rest on fewer than {spec.min_base:g} {spec.denominator} "
-                f"(units {examples(us)}); such rates are unstable — read them with care or smooth them",
+                f"(units {examples(us)}); such rates are unstable — read them with care or smooth them (--smooth eb, [clusters] smooth = 'eb')",
                 us,
             )
         )

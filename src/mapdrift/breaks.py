@@ -101,6 +101,8 @@ class Breaks:
     center: float | None = None
     period: str | None = None
     notes: tuple[str, ...] = ()
+    fitted_on: str | None = None
+    reused_from: str | None = None
     open_low: bool = True
     open_high: bool = True
 
@@ -151,6 +153,8 @@ class Breaks:
             "scheme": self.scheme,
             "basis": self.basis,
             "period": self.period,
+            "fitted_on": self.fitted_on,
+            "reused_from": self.reused_from,
             "k": self.k,
             "requested_k": self.requested_k,
             "edges": list(self.edges),
@@ -182,6 +186,8 @@ class Breaks:
                 isolate_zeros=bool(d.get("isolate_zeros", False)),
                 center=d.get("center"),
                 period=d.get("period"),
+                fitted_on=d.get("fitted_on"),
+                reused_from=d.get("reused_from"),
                 notes=tuple(d.get("notes", ())),
             )
         except (KeyError, TypeError, ValueError) as exc:
@@ -549,6 +555,7 @@ def classify(
     isolate_zeros: bool = False,
     breaks_file: Path | str | None = None,
     breaks: Breaks | None = None,
+    reused_from: str | None = None,
 ) -> Classes:
     """Classify every unit-period value with breaks chosen by ``basis``.
 
@@ -561,7 +568,9 @@ def classify(
     if breaks_file is not None and breaks is None:
         breaks = Breaks.load(breaks_file)
     if breaks is not None:
-        reused = replace(breaks, basis="file") if breaks.basis != "file" else breaks
+        # the breaks keep how they were fitted (basis, periods); reused_from says where from
+        source = reused_from or (str(breaks_file) if breaks_file is not None else "saved breaks")
+        reused = replace(breaks, reused_from=source)
         below, above = reused.out_of_range(vals)
         if below or above:
             findings.append(
@@ -585,7 +594,8 @@ def classify(
             variable=variable,
         )
         if kind == "pooled":
-            all_b = (fit_breaks(vals, basis="pooled", **kw),)
+            span = f"{panel.period_labels[0]}-{panel.period_labels[-1]}"
+            all_b = (replace(fit_breaks(vals, basis="pooled", **kw), fitted_on=span),)
         elif kind == "per-period":
             bs = []
             for j, label in enumerate(panel.period_labels):
@@ -597,7 +607,9 @@ def classify(
             findings.append(Finding("warning", "breaks-per-period", PER_PERIOD_WARNING))
         elif kind == "period":
             j = panel.period_index(ref)
-            b = fit_breaks(vals[:, j], basis=f"period:{ref}", period=ref, **kw)
+            b = replace(
+                fit_breaks(vals[:, j], basis=f"period:{ref}", period=ref, **kw), fitted_on=ref
+            )
             all_b = (b,)
             below, above = b.out_of_range(vals)
             if below or above:
@@ -639,8 +651,14 @@ def classify(
 
 
 def describe(breaks: Breaks) -> str:
-    """One line for logs and reports, e.g. ``quantile, k=5, pooled: <= 4.1 | 4.1 - 6.3 | ...``."""
-    return f"{breaks.scheme}, k={breaks.k}, {breaks.basis}: " + " | ".join(breaks.labels)
+    """How the breaks were made, e.g. ``quantile, 5 classes, pooled over 2012-2024, reused from
+    the previous run (2024)``."""
+    text = f"{breaks.scheme}, {breaks.k} classes, {breaks.basis}"
+    if breaks.fitted_on:
+        text += f" over {breaks.fitted_on}"
+    if breaks.reused_from:
+        text += f", reused from {breaks.reused_from}"
+    return text
 
 
 __all__.append("describe")

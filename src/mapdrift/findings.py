@@ -45,12 +45,13 @@ class Finding:
         return cls(d["level"], d["code"], d["message"], tuple(d.get("units", ())))
 
 
-def examples(items: Iterable[Any], n: int = 5) -> str:
-    """Up to ``n`` items joined for a message: ``'a, b, c'`` or ``'a, b, c, ... (12 in all)'``."""
+def examples(items: Iterable[Any], n: int = 5, *, total: bool = True) -> str:
+    """Up to ``n`` items joined for a message: ``'a, b, c'`` or ``'a, b, c, ... (12 in all)'``
+    (``total=False`` when the message gives the count already: ``'a, b, c, ...'``)."""
     items = list(items)
     shown = ", ".join(str(x) for x in items[:n])
     if len(items) > n:
-        shown += f", ... ({len(items)} in all)"
+        shown += f", ... ({len(items)} in all)" if total else ", ..."
     return shown
 
 

@@ -62,7 +62,7 @@ def pad_ids(
                 "warning",
                 "ids-zero-padded",
                 f"{where}: {plural(len(changed), 'ID')} {'was' if len(changed) == 1 else 'were'} shorter than the layer's {width}-digit IDs and "
-                f"were zero-padded (e.g. {examples([f'{c} -> {c.zfill(width)}' for c in changed], 3)}); "
+                f"were zero-padded (e.g. {examples([f'{c} -> {c.zfill(width)}' for c in changed], 3, total=False)}); "
                 "they probably lost their leading zeros in a spreadsheet",
                 tuple(c.zfill(width) for c in changed),
             )

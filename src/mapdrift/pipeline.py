@@ -161,10 +161,12 @@ def _previous_breaks(state: RunState) -> Path | None:
 
 def _step_classify(state: RunState) -> str:
     from mapdrift.atomic import write_text
-    from mapdrift.breaks import classify
+    from mapdrift.breaks import classify, describe
+    from mapdrift.brief.whatsnew import previous_name
 
     cs: ClassSpec = state.section(ClassSpec, "classes")
     breaks_file = cs.breaks_file
+    reused_from = None
     prev = _previous_breaks(state)
     if prev is not None and breaks_file is None:
         if state.run.rebreak:
@@ -172,11 +174,12 @@ def _step_classify(state: RunState) -> str:
             state.findings.append(Finding("warning", "breaks-refitted", REBREAK_NOTICE))
         else:
             breaks_file = prev
+            reused_from = f"the previous run ({previous_name(state.run.previous)})"
             state.findings.append(
                 Finding(
                     "note",
                     "breaks-reused",
-                    f"class breaks reused from the previous run ({prev}) so frames compare with its briefing",
+                    f"class breaks reused from {reused_from} so frames compare with its briefing",
                 )
             )
     classes = classify(
@@ -187,6 +190,7 @@ def _step_classify(state: RunState) -> str:
         manual_values=cs.values or None,
         isolate_zeros=cs.isolate_zeros,
         breaks_file=breaks_file,
+        reused_from=reused_from,
     )
     state.classes = classes
     state.findings += classes.findings
@@ -203,7 +207,7 @@ def _step_classify(state: RunState) -> str:
     else:
         classes.breaks[0].save(state.path("breaks.json"))
     b = classes.breaks[0]
-    return f"{b.scheme}, {classes.k} classes, {b.basis}: " + " | ".join(b.labels)
+    return describe(b) + ": " + " | ".join(b.labels)
 
 
 def _text(state: RunState) -> dict[str, Any]:
@@ -379,7 +383,7 @@ def _step_whatsnew(state: RunState) -> str:
     if state.run.previous is None:
         return "no previous run given"
     from mapdrift.atomic import write_text
-    from mapdrift.brief.whatsnew import compare_runs
+    from mapdrift.brief.whatsnew import compare_runs, previous_name
 
     ch = state.results.get("changes")
     cl = state.results.get("clusters")
@@ -394,7 +398,7 @@ def _step_whatsnew(state: RunState) -> str:
     state.results["whatsnew"] = wn
     write_text(
         state.path("whats_new.json"),
-        json.dumps({"previous": str(wn.previous), "news": wn.bullets()}, indent=2) + "\n",
+        json.dumps({"previous": previous_name(wn.previous), "news": wn.bullets()}, indent=2) + "\n",
     )
     return (
         f"{plural(len(wn.new_jumps), 'new jump')}, {plural(len(wn.cluster_events), 'new cluster event')}, "
@@ -488,7 +492,9 @@ def _manifest(state: RunState, out: Path) -> None:
             statistic=o.statistic,
         )
     if state.run.previous is not None:
-        params["previous"] = str(state.run.previous)
+        from mapdrift.brief.whatsnew import previous_name
+
+        params["previous"] = previous_name(state.run.previous)
     outputs = [p for p in state.staging.rglob("*") if p.is_file() and p.name != "manifest.json"]
     write_manifest(
         state.path("manifest.json"),

@@ -406,7 +406,7 @@ def build_weights(
         shown = ", ".join(_unit_ids(ids, island_idx[:5]))
         if islands == "nearest":
             m = _attach_nearest(geoms, m, island_idx)
-            what = "linked to the nearest unit (--islands nearest)"
+            what = 'linked to the nearest unit (--islands nearest; --islands exclude or [clusters] islands = "exclude" leaves them out)'
         else:
             what = "left without neighbours and labelled isolated (--islands exclude)"
         findings.append(

@@ -11,8 +11,10 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from mapdrift.breaks import describe
 from mapdrift.brief.content import CAUTIONS, Brief, Figure, Section, Table, phrase
 from mapdrift.brief.slides import Slide
+from mapdrift.brief.whatsnew import previous_name
 from mapdrift.config import BriefSpec
 from mapdrift.findings import examples, plural
 
@@ -20,6 +22,7 @@ if TYPE_CHECKING:
     import pandas as pd
 
     from mapdrift.pipeline import RunState
+
 
 __all__ = ["build_brief", "build_slides", "headline", "method", "top_movers"]
 
@@ -85,8 +88,7 @@ def method(state: RunState) -> list[tuple[str, str]]:
         ),
         (
             "Classes",
-            f"{b.scheme}, {c.k} classes, basis {b.basis}"
-            + ("" if c.per_period else ": " + " | ".join(b.labels)),
+            describe(b) + ("" if c.per_period else ": " + " | ".join(b.labels)),
         ),
     ]
     if c.per_period:
@@ -122,7 +124,7 @@ def method(state: RunState) -> list[tuple[str, str]]:
         rows.append(
             (
                 "Previous run",
-                f"{state.run.previous}"
+                previous_name(state.run.previous)
                 + (" (breaks refitted)" if state.run.rebreak else " (breaks reused)"),
             )
         )
@@ -181,7 +183,7 @@ def build_brief(state: RunState) -> Brief:
             Section(
                 "whats-new",
                 "What's new since the previous run",
-                paragraphs=(f"Compared with the run in {wn.previous}.",),
+                paragraphs=(f"Compared with the previous run ({previous_name(wn.previous)}).",),
                 bullets=tuple(wn.bullets()),
             )
         )

@@ -21,7 +21,7 @@ from mapdrift.outputs import read_csv
 if TYPE_CHECKING:
     import pandas as pd
 
-__all__ = ["CLUSTER_EVENTS", "WhatsNew", "compare_runs"]
+__all__ = ["CLUSTER_EVENTS", "WhatsNew", "compare_runs", "previous_name"]
 
 #: cluster_changes.csv columns that list periods of an event, and how the report words them.
 CLUSTER_EVENTS: dict[str, str] = {
@@ -84,6 +84,18 @@ class WhatsNew:
             )
         out.extend(self.findings)
         return out
+
+
+def previous_name(previous: Path | None) -> str:
+    """A short name for the previous run in outputs: its folder relative to here, else its name
+    (no absolute local paths in a briefing that travels)."""
+    if previous is None:
+        return ""
+    folder = previous.parent if previous.suffix == ".json" else previous
+    try:
+        return folder.resolve().relative_to(Path.cwd().resolve()).as_posix()
+    except ValueError:
+        return folder.name
 
 
 def _read(prev: Path, name: str) -> pd.DataFrame | None:

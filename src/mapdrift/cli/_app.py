@@ -81,6 +81,18 @@ def command(name: str, **kwargs: Any) -> Callable[[F], F]:
                     raise
                 typer.secho(f"error: {exc}", fg=typer.colors.RED, err=True)
                 raise typer.Exit(exc.exit_code) from None
+            except (typer.Exit, typer.Abort, typer.TyperException, KeyboardInterrupt):
+                raise
+            except Exception as exc:  # a bug of ours: one line, the traceback with --debug
+                if state["debug"]:
+                    raise
+                typer.secho(
+                    f"internal error: {type(exc).__name__}: {exc} (run with --debug for the "
+                    "traceback and please report it)",
+                    fg=typer.colors.RED,
+                    err=True,
+                )
+                raise typer.Exit(4) from None
 
         app.command(name, **kwargs)(wrapper)
         return func

@@ -57,8 +57,10 @@ class FixedPalette:
         """The 2**24-entry lookup keyed ``R << 16 | G << 8 | B`` ("rgb") or packed ("bgr")."""
         if order not in self._tables:
             near = self._nearest if order == "rgb" else self._nearest.transpose(2, 1, 0)
-            big = np.broadcast_to(near[:, None, :, None, :, None], (32, 8, 32, 8, 32, 8))
-            lut = big.reshape(-1)  # one copy of 16 MB
+            # each 5-bit cell covers 8 x 8 x 8 byte values: repeat along the last axis, then the
+            # others (contiguous repeats, much faster than one 6-d broadcast copy)
+            lut = np.repeat(np.ascontiguousarray(near).reshape(-1), 8).reshape(32, 32, 256)
+            lut = np.repeat(np.repeat(lut, 8, axis=1), 8, axis=0).reshape(-1)  # 16 MB
             c = self.colours.astype(np.int64)
             hi, lo = (c[:, 0], c[:, 2]) if order == "rgb" else (c[:, 2], c[:, 0])
             lut[(hi << 16) | (c[:, 1] << 8) | lo] = np.arange(len(c), dtype=np.uint8)
@@ -87,7 +89,7 @@ class FixedPalette:
                 | (must_arr[:, 1].astype(np.int64) << 8)
                 | must_arr[:, 2]
             )
-            rest = flat[~np.isin(keys, must_keys)]
+            rest = flat[~np.isin(keys, must_keys, kind="table")]
             if len(rest):
                 img = Image.fromarray(rest[None, :, :])
                 q = img.quantize(
