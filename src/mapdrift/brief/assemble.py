@@ -46,9 +46,11 @@ def headline(state: RunState) -> list[tuple[str, str]]:
         out.append(
             (f"units in a lower class in {per[-1]} than in {per[0]}", f"{int((net < 0).sum())}")
         )
+        spikes = int((ch.units["jump"] & ch.units["spike"]).sum())
+        back = f" ({spikes} came straight back: check the data)" if spikes else ""
         out.append(
             (
-                f"units that jumped {ch.options.jump}+ classes in one year",
+                f"units that jumped {ch.options.jump}+ classes in one year{back}",
                 f"{int(ch.units['jump'].sum())}",
             )
         )
@@ -61,9 +63,18 @@ def headline(state: RunState) -> list[tuple[str, str]]:
         )
         out.append(
             (
-                f"units that joined a high-high cluster between {per[0]} and {per[-1]} "
-                f"({int(still.sum())} still in one in {per[-1]})",
+                f"units that entered (or re-entered) a high-high cluster between {per[0]} and "
+                f"{per[-1]} ({int(still.sum())} in one in {per[-1]})",
                 f"{int(joined.sum())}",
+            )
+        )
+        rises, falls = int((cl.change_codes == 0).sum()), int((cl.change_codes == 1).sum())
+        a, b = cl.change_periods
+        out.append(
+            (
+                f"units where the change {a} to {b} clusters in space ({rises} rise among rises, "
+                f"{falls} fall among falls)",
+                f"{rises + falls}",
             )
         )
         sig = cl.trends["significant"].astype(bool)
@@ -111,7 +122,7 @@ def method(state: RunState) -> list[tuple[str, str]]:
         rows.append(
             (
                 "Clusters",
-                f"{'local Moran (Anselin 1995)' if o.statistic == 'local-moran' else 'Getis-Ord Gi*'}, {o.permutations} conditional permutations, seed {o.seed}; {cl.significance}",
+                f"{'local Moran (Anselin 1995)' if o.statistic == 'local-moran' else 'Getis-Ord Gi*'}, {o.permutations} conditional permutations, two-sided p-values, seed {o.seed}; {cl.significance}",
             )
         )
         rows.append(
@@ -229,7 +240,9 @@ def build_brief(state: RunState) -> Brief:
         ]
         if hom.LR is not None and hom.p_LR is not None:
             paras.append(
-                f"Are the transition probabilities the same in every step? Anderson-Goodman likelihood-ratio test: G = {hom.LR:.1f}, df {hom.df}, p = {hom.p_LR:.3g}."
+                "Are the transition probabilities the same in every step? "
+                + ("No: they differ" if hom.p_LR <= 0.05 else "No evidence that they differ")
+                + f" (Anderson-Goodman likelihood-ratio test: G = {hom.LR:.1f}, df {hom.df}, p = {hom.p_LR:.3g})."
             )
         sections.append(
             Section(
@@ -280,13 +293,18 @@ def build_brief(state: RunState) -> Brief:
             if c in ctab.columns
         ]
         a, b = cl.change_periods
-        sig_text = cl.significance[0].upper() + cl.significance[1:]
+        sig_text = cl.significance
+        where_sig = (
+            "every period"
+            if len(sig_periods) == len(g)
+            else f"{len(sig_periods)} of {len(g)} periods ({examples(sig_periods, 6) or 'none'})"
+        )
         sections.append(
             Section(
                 "clusters",
                 "Where high and low values cluster",
                 paragraphs=(
-                    f"Global Moran's I (each period tested on its own, permutation p <= {cl.options.alpha:g}, no correction across periods) shows significant clustering in {len(sig_periods)} of {len(g)} periods ({examples(sig_periods, 6) or 'none'}).",
+                    f"Global Moran's I (each period tested on its own, permutation p <= {cl.options.alpha:g}, no correction across periods) shows significant clustering in {where_sig}.",
                     f"Local clusters: {sig_text}. High-high: a high unit among high neighbours; low-low likewise; high-low and low-high are spatial outliers.",
                 ),
                 figures=(
@@ -296,7 +314,7 @@ def build_brief(state: RunState) -> Brief:
                 tables=(
                     Table(
                         events[cols],
-                        f"Units that joined a high-high cluster between {per[0]} and {per[-1]}",
+                        f"Units that entered (or re-entered) a high-high cluster between {per[0]} and {per[-1]}.",
                         csv_name="cluster_changes.csv",
                     ),
                 ),

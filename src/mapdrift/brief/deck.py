@@ -45,6 +45,7 @@ def _textbox(
     bold: bool = False,
     colour=(29, 35, 48),
     bullets: bool = False,
+    align_right: bool = False,
 ):
     from pptx.dml.color import RGBColor
     from pptx.enum.text import MSO_AUTO_SIZE
@@ -62,7 +63,15 @@ def _textbox(
         p = tf.paragraphs[0] if i == 0 else tf.add_paragraph()
         # one explicit line break per wrapped line ("\v" becomes <a:br/>), so the layout does
         # not depend on the viewer's own wrapping
-        p.text = ("• " if bullets else "") + "\v".join(lines)
+        p.text = ("•\t" if bullets else "") + "\v".join(lines)
+        if bullets:  # hanging indent: wrapped lines start under the text, not the bullet
+            p._p.get_or_add_pPr().set("marL", str(_emu(36)))
+            p._p.get_or_add_pPr().set("indent", str(-_emu(36)))
+            p.space_after = Pt(size / 2 * 0.4)
+        if align_right:
+            from pptx.enum.text import PP_ALIGN
+
+            p.alignment = PP_ALIGN.RIGHT
         for run in p.runs:
             run.font.size = Pt(size / 2)
             run.font.bold = bold
@@ -189,6 +198,7 @@ def write_deck(slides: Sequence[Slide], path: Path, *, footer: str = "") -> Path
             max_px=20,
             min_px=10,
             colour=(91, 100, 117),
+            align_right=True,
         )
         if s.notes:
             sl.notes_slide.notes_text_frame.text = s.notes

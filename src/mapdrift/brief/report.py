@@ -39,8 +39,11 @@ caption { caption-side: bottom; text-align: left; color: var(--muted); font-size
 dl.method { display: grid; grid-template-columns: 14rem 1fr; gap: .25rem 1rem; }
 dl.method dt { font-weight: 600; } dl.method dd { margin: 0; }
 footer { margin-top: 3rem; color: var(--muted); font-size: .85rem; }
-@media print { body { margin: 0; max-width: none; font-size: 11pt; } h2 { break-after: avoid; }
-  figure, table, .metric { break-inside: avoid; } }
+@page { size: A4; margin: 14mm; }
+@media print { body { margin: 0; max-width: none; font-size: 10.5pt; }
+  h2, h2 + p, section > p { break-after: avoid; }
+  figure, .metric, tr, dl.method dt, dl.method dd { break-inside: avoid; }
+  figure img { max-height: 150mm; width: auto; } }
 """
 
 _MIME = {
@@ -185,7 +188,10 @@ def render_markdown(brief: Brief, root: Path) -> str:
     if brief.headline:
         out += (
             ["## The answer", ""]
-            + [f"- **{_md_escape(v)}** {_md_escape(k)}" for k, v in brief.headline]
+            + [
+                f"- **{_md_escape(v)}** {_md_escape(phrase(k, v)[len(v) + 1 :])}"
+                for k, v in brief.headline
+            ]
             + [""]
         )
     for s in brief.sections:

@@ -139,8 +139,7 @@ def _finding_news(prev_findings: list[dict], findings: Sequence[Finding]) -> lis
         new_units = [u for u in f.units if u not in before[f.code]]
         if new_units:
             out.append(
-                f"Data check {f.code} now also names {examples(new_units)} "
-                f"({plural(len(new_units), 'unit')})."
+                f"Newly named in a data check ({f.code}): {examples(new_units)}."
             )
     now = {f.code for f in findings}
     for code in sorted(set(before) - now):
