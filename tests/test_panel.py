@@ -345,3 +345,11 @@ def test_all_text_value_column_stops(layer_file, table_file):
     ]
     with pytest.raises(InputError, match=r"no usable number in column 'rate'.*5\.3, not 5,3"):
         load_panel(spec(layer, table_file(rows)))
+
+
+def test_rows_without_id_or_period_are_counted(layer_file, table_file):
+    layer = layer_file(n_side=2)
+    csv = "unit_id,year,rate\n00001,2019,1\n,2019,2\n00002,,3\n00002,2019,4\n00003,2019,5\n00004,2019,6\n"
+    p = load_panel(spec(layer, table_file(csv)))
+    assert find(p, "ids-blank-rows").message.endswith("1 row with no unit ID left out")
+    assert "1 row with no period" in find(p, "periods-blank-rows").message

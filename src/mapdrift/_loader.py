@@ -293,26 +293,15 @@ def load(spec: InputSpec) -> Panel:
     long["id"] = normalise_ids(long["id"].tolist())
     long["period_text"] = [str(p).strip() for p in long["period_text"]]
 
-    no_id = long["id"] == ""
-    if no_id.any():
-        findings.append(
-            Finding(
-                "warning",
-                "ids-blank-rows",
-                f"{tname}: {int(no_id.sum())} rows have no unit ID and were left out",
-            )
-        )
-        long = long[~no_id]
-    no_period = long["period_text"] == ""
-    if no_period.any():
-        findings.append(
-            Finding(
-                "warning",
-                "periods-blank-rows",
-                f"{tname}: {int(no_period.sum())} rows have no period and were left out",
-            )
-        )
-        long = long[~no_period]
+    for col, code, what in (
+        ("id", "ids-blank-rows", "unit ID"),
+        ("period_text", "periods-blank-rows", "period"),
+    ):
+        blank = long[col] == ""
+        if blank.any():  # rows that cannot be placed are counted, never dropped silently
+            msg = f"{tname}: {plural(int(blank.sum()), 'row')} with no {what} left out"
+            findings.append(Finding("warning", code, msg))
+            long = long[~blank]
     if spec.table is not None:
         padded, pad_findings = pad_ids(
             long["id"].tolist(), layer_ids, width=spec.id_width, where=tname
