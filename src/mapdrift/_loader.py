@@ -11,7 +11,7 @@ import logging
 import re
 import warnings
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -564,6 +564,3 @@ def _rates(
             )
         )
     return rate, findings
-
-
-_ = Any  # keep typing import used under TYPE_CHECKING variations

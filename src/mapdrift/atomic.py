@@ -11,7 +11,7 @@ from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
-__all__ = ["atomic_path", "write_bytes", "write_text"]
+__all__ = ["atomic_path", "write_bytes", "write_text", "write_with"]
 
 
 @contextmanager
@@ -63,6 +63,3 @@ def write_with(target: Path, writer: Callable[[Path], object]) -> Path:
     with atomic_path(target) as tmp:
         writer(tmp)
     return target
-
-
-__all__.append("write_with")

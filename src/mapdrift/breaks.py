@@ -23,7 +23,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from mapdrift.errors import ConfigError, InputError
-from mapdrift.findings import Finding, examples
+from mapdrift.findings import Finding
 
 if TYPE_CHECKING:
     from mapdrift.panel import Panel
@@ -35,6 +35,7 @@ __all__ = [
     "Classes",
     "Scheme",
     "classify",
+    "describe",
     "fisher_jenks",
     "fit_breaks",
     "format_labels",
@@ -659,7 +660,3 @@ def describe(breaks: Breaks) -> str:
     if breaks.reused_from:
         text += f", reused from {breaks.reused_from}"
     return text
-
-
-__all__.append("describe")
-_ = examples  # re-exported helper used by callers composing messages

@@ -468,7 +468,7 @@ def _swap_in(staging: Path, out: Path) -> None:
         shutil.rmtree(old, ignore_errors=True)
 
 
-def _manifest(state: RunState, out: Path) -> None:
+def _manifest(state: RunState) -> None:
     from mapdrift.brief.manifest import write_manifest
 
     c = state.classes
@@ -507,7 +507,6 @@ def _manifest(state: RunState, out: Path) -> None:
         timings=state.timings,
         summaries=state.summaries,
     )
-    _ = out
 
 
 def run(
@@ -561,7 +560,7 @@ def run(
                 progress(f"{name:<10} {summary}")
         root.removeHandler(handler)  # close the log before hashing it into the manifest
         handler.close()
-        _manifest(state, out)
+        _manifest(state)
         _swap_in(staging, out)
     finally:
         root.removeHandler(handler)

@@ -233,7 +233,6 @@ def build_brief(state: RunState) -> Brief:
                 ),
             )
         )
-        mk = ch.markov
         hom = ch.homogeneity
         paras = [
             f"{ch.transitions.n_pairs:,} unit steps between consecutive periods; share staying in their class: {np.trace(ch.transitions.counts) / max(ch.transitions.counts.sum(), 1):.0%}."
@@ -266,7 +265,6 @@ def build_brief(state: RunState) -> Brief:
                 ),
             )
         )
-        _ = mk
         movers = top_movers(state, 25)
         if movers is not None:
             sections.append(

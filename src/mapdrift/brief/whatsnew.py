@@ -138,9 +138,7 @@ def _finding_news(prev_findings: list[dict], findings: Sequence[Finding]) -> lis
             continue
         new_units = [u for u in f.units if u not in before[f.code]]
         if new_units:
-            out.append(
-                f"Newly named in a data check ({f.code}): {examples(new_units)}."
-            )
+            out.append(f"Newly named in a data check ({f.code}): {examples(new_units)}.")
     now = {f.code for f in findings}
     for code in sorted(set(before) - now):
         out.append(f"Resolved since the previous run: {code}.")
