@@ -210,7 +210,8 @@ def cluster_pictures(result: Any, panel: Any, out: Path, *, force: bool = False)
                  out / "trend_map.png", title=f"Trend in {var.lower()}",
                  subtitle=f"Theil-Sen slope where the Mann-Kendall trend is "
                  f"{result.trend.correction and sig.replace('per period', 'across units')}",
-                 caption=f"Slopes per period; neutral: no significant trend. {panel.meta.source}".strip(),
-                 force=force)
+                 caption=f"Slopes are change per period in {panel.meta.unit_label or 'the value'}; grey: no "
+                 f"significant trend. {panel.meta.source}".strip(),
+                 legend_title="trend (Theil-Sen slope)", force=force)
     )  # fmt: skip
     return written
