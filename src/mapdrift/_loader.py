@@ -10,6 +10,7 @@ from __future__ import annotations
 import logging
 import re
 import warnings
+from collections.abc import Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -31,6 +32,11 @@ __all__ = ["detect_zero_block", "load"]
 log = logging.getLogger(__name__)
 _ID_GUESSES = ("unit_id", "id", "geoid", "fid_code", "code")
 _NAME_GUESSES = ("name", "unit_name", "label")
+
+
+def _units_with(mask: np.ndarray, units: Sequence[str]) -> tuple[str, ...]:
+    """IDs of the units with any True cell in a ``[units, periods]`` mask (for findings)."""
+    return tuple(units[i] for i in np.flatnonzero(mask.any(axis=1)))
 
 
 def _column(df: pd.DataFrame, col: str, where: Path, flag: str) -> str:
@@ -186,7 +192,7 @@ def detect_zero_block(
         return None
     per_period = suspect.sum(axis=0)
     top = int(np.argmax(per_period))
-    affected = tuple(units[i] for i in np.flatnonzero(suspect.any(axis=1)))
+    affected = _units_with(suspect, units)
     where = (
         f"; {int(per_period[top])} of them in {labels[top]}"
         if per_period[top] >= 0.5 * suspect.sum()
@@ -455,7 +461,7 @@ def load(spec: InputSpec) -> Panel:
     labels = tuple(str(p) for p in periods)
     neg = values < 0
     if neg.any():
-        units_neg = tuple(layer_ids[i] for i in np.flatnonzero(neg.any(axis=1)))
+        units_neg = _units_with(neg, layer_ids)
         findings.append(
             Finding(
                 "warning",
@@ -532,7 +538,7 @@ def _rates(
         rate = num / den * spec.per
     zero = den == 0
     if zero.any():
-        uz = tuple(units[i] for i in np.flatnonzero(zero.any(axis=1)))
+        uz = _units_with(zero, units)
         findings.append(
             Finding(
                 "warning",
@@ -553,7 +559,7 @@ def _rates(
         )
     small = (den > 0) & (den < spec.min_base)
     if small.any():
-        us = tuple(units[i] for i in np.flatnonzero(small.any(axis=1)))
+        us = _units_with(small, units)
         findings.append(
             Finding(
                 "warning",

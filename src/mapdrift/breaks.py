@@ -35,6 +35,7 @@ __all__ = [
     "Classes",
     "Scheme",
     "classify",
+    "classify_spec",
     "describe",
     "fisher_jenks",
     "fit_breaks",
@@ -649,6 +650,21 @@ def classify(
             )
         )
     return Classes(codes=codes, breaks=all_b, findings=tuple(findings))
+
+
+def classify_spec(panel: Panel, spec: Any, **overrides: Any) -> Classes:
+    """:func:`classify` with the settings of a :class:`~mapdrift.config.ClassSpec` (scheme, k,
+    basis, values, isolate_zeros, breaks_file); ``overrides`` go to :func:`classify` as given
+    (e.g. ``breaks_file=None`` to refit, ``reused_from=...``)."""
+    kwargs: dict[str, Any] = {
+        "scheme": spec.scheme,
+        "k": spec.k,
+        "basis": spec.basis,
+        "manual_values": spec.values or None,
+        "isolate_zeros": spec.isolate_zeros,
+        "breaks_file": spec.breaks_file,
+    }
+    return classify(panel, **(kwargs | overrides))
 
 
 def describe(breaks: Breaks) -> str:

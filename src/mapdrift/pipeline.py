@@ -161,7 +161,7 @@ def _previous_breaks(state: RunState) -> Path | None:
 
 def _step_classify(state: RunState) -> str:
     from mapdrift.atomic import write_text
-    from mapdrift.breaks import classify, describe
+    from mapdrift.breaks import classify_spec, describe
     from mapdrift.brief.whatsnew import previous_name
 
     cs: ClassSpec = state.section(ClassSpec, "classes")
@@ -182,16 +182,7 @@ def _step_classify(state: RunState) -> str:
                     f"class breaks reused from {reused_from} so frames compare with its briefing",
                 )
             )
-    classes = classify(
-        state.panel,
-        scheme=cs.scheme,
-        k=cs.k,
-        basis=cs.basis,
-        manual_values=cs.values or None,
-        isolate_zeros=cs.isolate_zeros,
-        breaks_file=breaks_file,
-        reused_from=reused_from,
-    )
+    classes = classify_spec(state.panel, cs, breaks_file=breaks_file, reused_from=reused_from)
     state.classes = classes
     state.findings += classes.findings
     if classes.per_period:
@@ -300,7 +291,7 @@ def _step_animate(state: RunState) -> str:
 
 
 def _step_changes(state: RunState) -> str:
-    from mapdrift.breaks import classify
+    from mapdrift.breaks import classify_spec
     from mapdrift.brief.pictures import change_pictures
     from mapdrift.changes import ChangeOptions, analyse_changes, relative_panel, write_changes
 
@@ -309,9 +300,8 @@ def _step_changes(state: RunState) -> str:
     if opt.relative:
         cs: ClassSpec = state.section(ClassSpec, "classes")
         panel = relative_panel(panel, opt.relative)
-        classes = classify(
-            panel, scheme=cs.scheme, k=cs.k, basis=cs.basis, manual_values=cs.values or None
-        )
+        # relative values get breaks of their own: saved breaks are in the raw values' units
+        classes = classify_spec(panel, cs, breaks_file=None)
         state.findings.append(
             Finding(
                 "note",

@@ -112,7 +112,7 @@ def animate(
     --at PERIOD writes a single map instead.
     """
     from mapdrift import palettes
-    from mapdrift.cli.breaks import classify_from_spec
+    from mapdrift.breaks import classify_spec
     from mapdrift.config import merge
     from mapdrift.errors import OutputExistsError
     from mapdrift.panel import load_panel
@@ -139,7 +139,7 @@ def animate(
         if p.exists() and not force:
             raise OutputExistsError(f"{p} exists; pass --force to overwrite it")
     panel = load_panel(inputs)
-    cls = classify_from_spec(panel, classes)
+    cls = classify_spec(panel, classes)
     t = map_text(panel, cls)
     colours, labels = t.pop("colours"), t.pop("labels")
     findings = list(cls.findings)

@@ -13,21 +13,6 @@ from mapdrift.cli._print import echo, print_findings
 from mapdrift.errors import OutputExistsError
 
 
-def classify_from_spec(panel: Any, classes: Any) -> Any:
-    """Classes for a panel from a ClassSpec (shared by every command that classifies)."""
-    from mapdrift.breaks import classify
-
-    return classify(
-        panel,
-        scheme=classes.scheme,
-        k=classes.k,
-        basis=classes.basis,
-        manual_values=classes.values or None,
-        isolate_zeros=classes.isolate_zeros,
-        breaks_file=classes.breaks_file,
-    )
-
-
 @command("breaks")
 @input_options
 @class_options
@@ -40,6 +25,7 @@ def breaks(
     force: bool = typer.Option(False, "--force", help="Overwrite an existing --save file."),
 ) -> None:
     """Fit class breaks (pooled over all periods by default) and show the classes per period."""
+    from mapdrift.breaks import classify_spec
     from mapdrift.panel import load_panel
 
     if save is not None and save.exists() and not force:
@@ -47,7 +33,7 @@ def breaks(
             f"{save} exists; pass --force to overwrite it or choose another --save path"
         )
     panel = load_panel(inputs)
-    result = classify_from_spec(panel, classes)
+    result = classify_spec(panel, classes)
     counts = result.counts()
     nodata = result.no_data()
     for j, label in enumerate(panel.period_labels):

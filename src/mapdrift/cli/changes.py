@@ -86,10 +86,10 @@ def changes(
     jumps.csv, units.csv and more into --out, plus a transition heatmap, a flow of class shares
     from the first to the last period, a change map and a map of flagged units.
     """
+    from mapdrift.breaks import classify_spec
     from mapdrift.brief.pictures import CHANGE_PICTURES, change_pictures
     from mapdrift.changes import analyse_changes, relative_panel, write_changes
     from mapdrift.changes.io import check_outputs, output_names
-    from mapdrift.cli.breaks import classify_from_spec
     from mapdrift.panel import load_panel
 
     options = _options(
@@ -109,7 +109,7 @@ def changes(
     panel = load_panel(inputs)
     if options.relative:
         panel = relative_panel(panel, options.relative)
-    cls = classify_from_spec(panel, classes)
+    cls = classify_spec(panel, classes)
     result = analyse_changes(panel, cls, options)
     written = write_changes(result, out, force=True)
     if pictures:
