@@ -11,7 +11,7 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
-__all__ = ["LEVELS", "Finding", "examples", "plural", "raise_errors"]
+__all__ = ["LEVELS", "Finding", "examples", "plural", "raise_errors", "units_of"]
 
 Level = Literal["error", "warning", "note"]
 LEVELS: tuple[str, ...] = ("error", "warning", "note")
@@ -66,3 +66,8 @@ def raise_errors(findings: Sequence[Finding], error_cls: type[Exception]) -> Non
 def plural(n: int, word: str, words: str | None = None) -> str:
     """``plural(1, "ID")`` -> ``'1 ID'``; ``plural(3, "unit")`` -> ``'3 units'``."""
     return f"{n:,} {word if n == 1 else (words or word + 's')}"
+
+
+def units_of(findings: Iterable[Finding], code: str) -> frozenset[str]:
+    """The units named by the findings with ``code`` (e.g. the small-base units)."""
+    return frozenset(u for f in findings if f.code == code for u in f.units)

@@ -23,6 +23,7 @@ from mapdrift.findings import Finding
 __all__ = [
     "CLUSTER_COLOURS",
     "DIVERGING",
+    "FLAG_COLOURS",
     "MIN_DELTA_E",
     "NODATA",
     "NODATA_HATCH",
@@ -61,6 +62,17 @@ CLUSTER_COLOURS: dict[str, str] = {
     "isolated": "#a89fb5",
     "no data": NODATA,
 }
+
+#: Colours of the flagged-units map, in the order of ``mapdrift.changes.FLAG_LABELS``.
+FLAG_COLOURS: tuple[str, ...] = (
+    "#c51b7d",  # spike (check data)
+    "#7b3294",  # jumps up and down
+    "#e66101",  # jump up
+    "#3b6fb6",  # jump down
+    "#1b7837",  # stayed in top class
+    "#a6dba0",  # stayed in bottom class
+    "#f4f4f4",  # no flag
+)
 
 # Lightest colour a diverging centre may have, so it does not vanish into white paper.
 _MAX_CENTRE_L = 93.0

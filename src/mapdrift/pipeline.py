@@ -25,7 +25,7 @@ from typing import Any
 
 from mapdrift.config import BriefSpec, ClassSpec, Config, RunSpec, merge
 from mapdrift.errors import ConfigError, InputError, MapdriftError, StepError
-from mapdrift.findings import Finding, plural
+from mapdrift.findings import Finding, plural, units_of
 
 __all__ = ["STEPS", "RunResult", "RunState", "default_out", "prepare_out", "run"]
 
@@ -356,7 +356,7 @@ def _step_units(state: RunState) -> str:
         for col in df.columns:
             if col not in ("unit", "name"):
                 extra[col] = df[col].to_numpy()
-    small = {u for f in state.findings if f.code == "rates-small-base" for u in f.units}
+    small = units_of(state.findings, "rates-small-base")
     extra["small_base"] = [u in small for u in state.panel.units]
     df = units_table(state.panel, state.classes, extra)
     state.results["units"] = df

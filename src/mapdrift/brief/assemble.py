@@ -16,7 +16,7 @@ from mapdrift.brief.content import CAUTIONS, Brief, Figure, Section, Table, phra
 from mapdrift.brief.slides import Slide
 from mapdrift.brief.whatsnew import previous_name
 from mapdrift.config import BriefSpec
-from mapdrift.findings import examples, plural
+from mapdrift.findings import examples, plural, units_of
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -150,7 +150,7 @@ def top_movers(state: RunState, n: int = 10) -> pd.DataFrame | None:
     j = ch.jumps.copy()
     j["abs"] = j["size"].abs()
     j = j.sort_values(["abs", "to_period", "unit"], ascending=[False, False, True]).head(n)
-    small = {u for f in state.findings if f.code == "rates-small-base" for u in f.units}
+    small = units_of(state.findings, "rates-small-base")
     check = [
         "; ".join(
             x

@@ -13,21 +13,10 @@ from typing import Any
 __all__ = [
     "CHANGE_PICTURES",
     "CLUSTER_PICTURES",
-    "FLAG_COLOURS",
     "change_pictures",
     "cluster_pictures",
 ]
 
-#: Colours of the flagged-units map, in the order of ``mapdrift.changes.FLAG_LABELS``.
-FLAG_COLOURS: tuple[str, ...] = (
-    "#c51b7d",  # spike (check data)
-    "#7b3294",  # jumps up and down
-    "#e66101",  # jump up
-    "#3b6fb6",  # jump down
-    "#1b7837",  # stayed in top class
-    "#a6dba0",  # stayed in bottom class
-    "#f4f4f4",  # no flag
-)
 #: Legend words for the first four cluster labels on a map of change (high-high, low-low,
 #: high-low, low-high of the change between two periods).
 CHANGE_CLUSTER_LABELS: tuple[str, ...] = (
@@ -121,7 +110,7 @@ def change_pictures(result: Any, panel: Any, out: Path, *, force: bool = False) 
         static_map(
             panel.geometry,
             result.flag,
-            list(FLAG_COLOURS),
+            list(palettes.FLAG_COLOURS),
             list(FLAG_LABELS),
             out / "flagged_units.png",
             title=f"{var}: units to look at",

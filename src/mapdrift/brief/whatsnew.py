@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from mapdrift.errors import InputError
-from mapdrift.findings import Finding, examples, plural
+from mapdrift.findings import Finding, examples, plural, units_of
 from mapdrift.outputs import read_csv
 
 if TYPE_CHECKING:
@@ -181,7 +181,7 @@ def compare_runs(
         new_jumps = cur[mask]
     else:
         new_jumps = cur.reset_index(drop=True) if len(cur) else _empty(key)
-    small = frozenset(u for f in findings if f.code == "rates-small-base" for u in f.units)
+    small = units_of(findings, "rates-small-base")
     if len(new_jumps):  # the clearest news leads: reliable bases first, then the largest moves
         order = new_jumps.assign(_small=new_jumps["unit"].isin(small), _abs=new_jumps["size"].abs())
         order = order.sort_values(
