@@ -6,6 +6,8 @@ import json
 import subprocess
 import sys
 
+import pytest
+
 from conftest import DEMO, long_rows
 from mapdrift.cli import app
 
@@ -46,9 +48,35 @@ def test_check_demo_ok_and_json(runner):
     assert {f["code"] for f in data["findings"]} >= {"ids-zero-padded", "units-no-values"}
 
 
-def test_flags_override_config(runner):
-    r = runner.invoke(app, ["check", "--config", str(DEMO / "demo.toml"), "--per", "100", "--json"])
-    assert r.exit_code == 0
+def _saved_breaks(runner, tmp_path, name, *args):
+    out = tmp_path / f"{name}.json"
+    r = runner.invoke(app, ["breaks", *args, "--save", str(out)])
+    assert r.exit_code == 0, r.output
+    return json.loads(out.read_text())
+
+
+def test_flags_override_config(runner, tmp_path):
+    # demo.toml says per = 1000, quantile, k = 5; each flag given beside it must win.
+    cfg = str(DEMO / "demo.toml")
+    base = _saved_breaks(runner, tmp_path, "base", "--config", cfg)
+    assert base["k"] == 5 and base["scheme"] == "quantile"
+    per100 = _saved_breaks(runner, tmp_path, "per100", "--config", cfg, "--per", "100")
+    # rates per 100 are the per-1,000 rates divided by 10, so are their quantiles
+    assert per100["edges"] == pytest.approx([e / 10 for e in base["edges"]], rel=1e-12)
+    k3 = _saved_breaks(runner, tmp_path, "k3", "--config", cfg, "-k", "3", "-s", "equal-interval")
+    assert k3["k"] == 3 and k3["scheme"] == "equal-interval"
+    # a flag equal to the built-in default still beats a config that says otherwise
+    other = tmp_path / "per100.toml"
+    other.write_text(
+        (DEMO / "demo.toml").read_text().replace("per = 1000", "per = 100")
+        .replace('"county_units.gpkg"', f'"{(DEMO / "county_units.gpkg").as_posix()}"')
+        .replace('"filings.csv"', f'"{(DEMO / "filings.csv").as_posix()}"')
+    )  # fmt: skip
+    assert _saved_breaks(runner, tmp_path, "cfg100", "--config", str(other))["edges"] == (
+        per100["edges"]
+    )
+    back = _saved_breaks(runner, tmp_path, "flag1000", "--config", str(other), "--per", "1000")
+    assert back["edges"] == base["edges"]
 
 
 def test_bad_inputs_exit_1_with_one_line(runner, layer_file, table_file):

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import warnings
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -125,12 +126,27 @@ def test_cache_roundtrip(tmp_path):
     w1 = build_weights(g, "queen", cache_dir=tmp_path)
     files = list(tmp_path.glob("weights-*.npz"))
     assert len(files) == 1
+    stamp = (files[0].stat().st_ino, files[0].stat().st_mtime_ns)
     w2 = build_weights(g, "queen", cache_dir=tmp_path)
+    # a hit reads the file and leaves it alone; a miss would rebuild and atomically rewrite it
+    # (a new inode), so an always-missing cache fails here
+    assert (files[0].stat().st_ino, files[0].stat().st_mtime_ns) == stamp
+    assert w2.key == w1.key != "" and files[0].name == f"weights-{w1.key}.npz"
     assert (w1.W != w2.W).nnz == 0
     assert w2.islands == w1.islands and w2.findings == w1.findings
-    # another kind is another cache entry
+    # what is read back is the file's content: a different matrix stored under the key is
+    # returned as is (proves the hit path, not a rebuild that happens to agree)
+    other = build_weights(g, "rook")
+    from mapdrift.weights import _save_cache
+
+    _save_cache(files[0], replace(other, key=w1.key))
+    assert (build_weights(g, "queen", cache_dir=tmp_path).W != other.W).nnz == 0
+    # another kind, or other geometry, is another cache entry (an always-hitting cache fails)
     build_weights(g, "rook", cache_dir=tmp_path)
     assert len(list(tmp_path.glob("weights-*.npz"))) == 2
+    moved = _lattice(extra=[box(20, 20, 21, 21)])
+    w3 = build_weights(moved, "queen", cache_dir=tmp_path)
+    assert len(list(tmp_path.glob("weights-*.npz"))) == 3 and w3.key != w1.key
 
 
 @pytest.mark.parametrize("bad", ["hexagon", "knn", "knn:2.5", "distance:-3", "queen:2"])

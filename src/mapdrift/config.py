@@ -12,7 +12,7 @@ from __future__ import annotations
 import dataclasses
 import os
 import re
-import sys
+import tomllib
 import types
 import typing
 from collections.abc import Mapping
@@ -22,11 +22,6 @@ from pathlib import Path
 from typing import Any
 
 from mapdrift.errors import ConfigError
-
-if sys.version_info >= (3, 11):
-    import tomllib
-else:  # pragma: no cover
-    import tomli as tomllib
 
 __all__ = [
     "BriefSpec",
