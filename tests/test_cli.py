@@ -72,8 +72,9 @@ def test_flags_override_config(runner, tmp_path):
         .replace('"county_units.gpkg"', f'"{(DEMO / "county_units.gpkg").as_posix()}"')
         .replace('"filings.csv"', f'"{(DEMO / "filings.csv").as_posix()}"')
     )  # fmt: skip
-    assert _saved_breaks(runner, tmp_path, "cfg100", "--config", str(other))["edges"] == (
-        per100["edges"]
+    assert (
+        _saved_breaks(runner, tmp_path, "cfg100", "--config", str(other))["edges"]
+        == (per100["edges"])
     )
     back = _saved_breaks(runner, tmp_path, "flag1000", "--config", str(other), "--per", "1000")
     assert back["edges"] == base["edges"]

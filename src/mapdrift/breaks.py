@@ -26,6 +26,8 @@ from mapdrift.errors import ConfigError, InputError
 from mapdrift.findings import Finding
 
 if TYPE_CHECKING:
+    import geopandas as gpd
+
     from mapdrift.panel import Panel
 
 __all__ = [
@@ -128,6 +130,10 @@ class Breaks:
     @property
     def diverging(self) -> bool:
         return self.center is not None
+
+    def __repr__(self) -> str:
+        """How they were made, then one legend label per line."""
+        return f"<Breaks: {describe(self)}\n" + "\n".join(f"  {x}" for x in self.labels) + ">"
 
     def classify(self, values: np.ndarray) -> np.ndarray:
         """Class index per value (int16, ``-1`` for NaN); out-of-range values go to the end classes.
@@ -534,6 +540,34 @@ class Classes:
     def no_data(self) -> np.ndarray:
         """No-data units per period, shape ``[n_periods]``."""
         return (self.codes < 0).sum(axis=0)
+
+    def __repr__(self) -> str:
+        """Size, how the breaks were made, and units per class in the last period."""
+        n_u, n_p = self.codes.shape
+        b = self.breaks[-1]
+        last = self.counts()[-1] if n_p else np.zeros(self.k, dtype=int)
+        shares = ", ".join(f"{lab}: {n}" for lab, n in zip(b.labels, last))
+        head = describe(self.breaks[0]) if not self.per_period else f"{b.scheme}, per period"
+        return (
+            f"<Classes: {n_u:,} units x {n_p} periods; {head}\n"
+            f"  last period: {shares}; no data: {int(self.no_data()[-1]) if n_p else 0}"
+            + (f"\n  {self.warning}" if self.warning else "")
+            + ">"
+        )
+
+    def to_geodataframe(self, panel: Panel) -> gpd.GeoDataFrame:
+        """One row per unit of ``panel``: ``unit``, ``name``, the 1-based class per period
+        (``class_<period>``, empty for no data, as in ``units.csv``), geometry."""
+        import pandas as pd
+
+        from mapdrift.panel import with_geometry
+
+        data: dict[str, Any] = {"unit": list(panel.units), "name": list(panel.names)}
+        for j, label in enumerate(panel.period_labels):
+            c = self.codes[:, j].astype(np.float64) + 1
+            c[self.codes[:, j] < 0] = np.nan
+            data[f"class_{label}"] = pd.array(c, dtype="Int64")
+        return with_geometry(pd.DataFrame(data), panel)
 
 
 def parse_basis(basis: str) -> tuple[str, str | None]:

@@ -113,8 +113,12 @@ def ciede2000(
     dlp = l2 - l1
     dcp = c2p - c1p
     zero = (c1p * c2p) == 0
+    # Hue differences of exactly 180 degrees (Sharma et al.'s pairs 13-14) land an ulp either
+    # side depending on the platform's trigonometry: compare with a tolerance so every numpy
+    # and CPU takes the same (the paper's) branch.
+    eps = 1e-9
     dh = h2p - h1p
-    dh = np.where(dh > 180.0, dh - 360.0, np.where(dh < -180.0, dh + 360.0, dh))
+    dh = np.where(dh > 180.0 + eps, dh - 360.0, np.where(dh < -180.0 - eps, dh + 360.0, dh))
     dh = np.where(zero, 0.0, dh)
     dhp = 2.0 * np.sqrt(c1p * c2p) * np.sin(np.radians(dh) / 2.0)
     lbarp = (l1 + l2) / 2.0
@@ -124,7 +128,7 @@ def ciede2000(
         zero,
         hsum,
         np.where(
-            np.abs(h1p - h2p) <= 180.0,
+            np.abs(h1p - h2p) <= 180.0 + eps,
             hsum / 2.0,
             np.where(hsum < 360.0, (hsum + 360.0) / 2.0, (hsum - 360.0) / 2.0),
         ),

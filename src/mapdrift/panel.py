@@ -22,12 +22,23 @@ if TYPE_CHECKING:
     import geopandas as gpd
     import pandas as pd
 
-__all__ = ["InputSpec", "Panel", "PanelMeta", "load_panel", "period_label"]
+__all__ = ["InputSpec", "Panel", "PanelMeta", "load_panel", "period_label", "with_geometry"]
 
 
 def period_label(period: Any) -> str:
     """Text for a period: ``2019`` -> ``'2019'``, ``Period('2020Q1')`` -> ``'2020Q1'``."""
     return str(period)
+
+
+def _crs_text(crs: Any) -> str:
+    """``EPSG:3857``, else the projection's method (``Lambert Azimuthal Equal Area``)."""
+    if crs is None:
+        return "no CRS"
+    epsg = crs.to_epsg()
+    if epsg:
+        return f"EPSG:{epsg}"
+    op = crs.coordinate_operation
+    return op.method_name if op is not None else crs.name
 
 
 @dataclass(frozen=True)
@@ -122,6 +133,33 @@ class Panel:
         return replace(self, findings=self.findings + tuple(extra))
 
     # -- summaries ---------------------------------------------------------------------------
+    def __repr__(self) -> str:
+        """A few lines: size, periods, variable, missing share, findings (never the arrays)."""
+        per = self.period_labels
+        span = f"{per[0]} to {per[-1]}" if per else "no periods"
+        what = self.meta.variable + (f" ({self.meta.unit_label})" if self.meta.unit_label else "")
+        missing = float(np.isnan(self.values).mean()) if self.values.size else 0.0
+        levels = [f.level for f in self.findings]
+        found = ", ".join(
+            f"{levels.count(lvl)} {lvl}{'s' if levels.count(lvl) != 1 else ''}"
+            for lvl in ("error", "warning", "note")
+            if lvl in levels
+        )
+        crs = _crs_text(self.geometry.crs)
+        return (
+            f"<Panel: {self.n_units:,} units x {self.n_periods} periods ({span})\n"
+            f"  {what}; {missing:.1%} of cells missing\n"
+            f"  findings: {found or 'none'}; geometry in {crs}>"
+        )
+
+    def to_geodataframe(self) -> gpd.GeoDataFrame:
+        """One row per unit: ``unit``, ``name``, one value column per period label, geometry."""
+        import pandas as pd
+
+        df = pd.DataFrame({"unit": list(self.units), "name": list(self.names)})
+        values = pd.DataFrame(self.values, columns=list(self.period_labels))
+        return with_geometry(pd.concat([df, values], axis=1), self)
+
     def completeness(self) -> pd.DataFrame:
         """Per period: units with a value, missing, and share present."""
         import pandas as pd
@@ -172,6 +210,25 @@ class Panel:
             geometry = gpd.GeoSeries(list(geometry), crs=crs)
         geometry = geometry.reset_index(drop=True)
         return cls(units=units, periods=periods, values=values, geometry=geometry, **kwargs)
+
+
+def with_geometry(table: pd.DataFrame, where: Panel | gpd.GeoSeries) -> gpd.GeoDataFrame:
+    """``table`` (one row per unit, a ``unit`` column) joined to the polygons of ``where``.
+
+    Rows are matched by unit ID when ``where`` is a Panel (the table may be in any order;
+    units it lacks get empty rows), else by position. Used by every ``to_geodataframe()``.
+    """
+    import geopandas as gpd
+
+    if isinstance(where, Panel):
+        geometry = where.geometry.reset_index(drop=True)
+        if "unit" in table.columns and list(table["unit"]) != list(where.units):
+            table = table.set_index("unit").reindex(list(where.units)).reset_index()
+    else:
+        geometry = where.reset_index(drop=True)
+    if len(table) != len(geometry):
+        raise ValueError(f"{len(table)} rows but {len(geometry)} polygons")
+    return gpd.GeoDataFrame(table.reset_index(drop=True), geometry=geometry, crs=geometry.crs)
 
 
 @dataclass(frozen=True)

@@ -74,6 +74,14 @@ class RunResult:
     summaries: dict[str, str]
     outputs: tuple[Path, ...]
 
+    def __repr__(self) -> str:
+        levels = [f.level for f in self.findings]
+        return (
+            f"<RunResult: {len(self.outputs)} files in {self.out}; "
+            f"{plural(levels.count('warning'), 'warning')}, {plural(levels.count('note'), 'note')}; "
+            f"{sum(self.timings.values()):.1f} s>"
+        )
+
 
 def default_out(config: Config) -> Path:
     """``outputs/<config name>-<YYYY-MM-DD>``, numbered when that folder exists already."""
@@ -409,10 +417,24 @@ def _step_findings(state: RunState) -> str:
 
 def _step_brief(state: RunState) -> str:
     from mapdrift.brief.assemble import build_brief, build_slides
+    from mapdrift.brief.inputs import BriefInputs
     from mapdrift.brief.report import write_report
 
     formats = state.section(BriefSpec, "brief").formats
-    brief = build_brief(state)
+    inputs = BriefInputs(
+        panel=state.panel,
+        classes=state.classes,
+        changes=state.results.get("changes"),
+        clusters=state.results.get("clusters"),
+        whatsnew=state.results.get("whatsnew"),
+        findings=tuple(state.findings),
+        notice=state.notice,
+        folder=state.staging,
+        spec=state.section(BriefSpec, "brief"),
+        previous=state.run.previous,
+        rebreak=state.run.rebreak,
+    )
+    brief = build_brief(inputs)
     done = []
     if "html" in formats:
         write_report(brief, state.path("report.html"), state.path("report.md"), root=state.staging)
@@ -420,7 +442,7 @@ def _step_brief(state: RunState) -> str:
     if "png" in formats or "pptx" in formats:
         from mapdrift.brief.slides import write_slide_pngs
 
-        slides = build_slides(state, brief)
+        slides = build_slides(inputs, brief)
         footer = brief.source
         if "png" in formats:
             write_slide_pngs(slides, state.path("slides"), footer=footer)

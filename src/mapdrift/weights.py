@@ -120,6 +120,15 @@ class SpatialWeights:
     def n(self) -> int:
         return int(self.W.shape[0])
 
+    def __repr__(self) -> str:
+        card = self.cardinalities
+        mean = float(card.mean()) if len(card) else 0.0
+        return (
+            f"<SpatialWeights: {self.kind}, {self.n:,} units, {mean:.1f} neighbours on average, "
+            f"{plural(len(self.islands), 'island')} ({self.island_rule}), "
+            f"{plural(self.components, 'component')}>"
+        )
+
     @property
     def cardinalities(self) -> np.ndarray:
         """Number of neighbours per unit."""

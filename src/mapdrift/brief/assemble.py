@@ -1,5 +1,8 @@
-"""From a run's results to the briefing: the :class:`~mapdrift.brief.content.Brief` (report)
-and the list of :class:`~mapdrift.brief.slides.Slide` (PNG slides and the deck).
+"""From results to the briefing: the :class:`~mapdrift.brief.content.Brief` (report) and the
+list of :class:`~mapdrift.brief.slides.Slide` (PNG slides and the deck).
+
+Both read a :class:`~mapdrift.brief.inputs.BriefInputs` (``state`` below): the results of a run,
+or ones made in a notebook, never the pipeline's working state.
 
 The job's answer comes first: how many units rose or fell, jumped, joined clusters, trend.
 """
@@ -21,23 +24,23 @@ from mapdrift.findings import examples, plural, units_of
 if TYPE_CHECKING:
     import pandas as pd
 
-    from mapdrift.pipeline import RunState
+    from mapdrift.brief.inputs import BriefInputs
 
 
 __all__ = ["build_brief", "build_slides", "headline", "method", "top_movers"]
 
 
-def _period_span(state: RunState) -> str:
+def _period_span(state: BriefInputs) -> str:
     per = state.panel.period_labels
     return f"{per[0]} to {per[-1]}"
 
 
-def headline(state: RunState) -> list[tuple[str, str]]:
+def headline(state: BriefInputs) -> list[tuple[str, str]]:
     """The answer in numbers: (label, value) pairs."""
     p = state.panel
     per = p.period_labels
     out: list[tuple[str, str]] = []
-    ch = state.results.get("changes")
+    ch = state.changes
     if ch is not None:
         net = ch.net_change
         out.append(
@@ -54,7 +57,7 @@ def headline(state: RunState) -> list[tuple[str, str]]:
                 f"{int(ch.units['jump'].sum())}",
             )
         )
-    cl = state.results.get("clusters")
+    cl = state.clusters
     if cl is not None:
         joined = np.array([bool(v) for v in cl.changes["joined_high_cluster"]])
         still = joined & (cl.codes[:, -1] == 0)
@@ -86,7 +89,7 @@ def headline(state: RunState) -> list[tuple[str, str]]:
     return out
 
 
-def method(state: RunState) -> list[tuple[str, str]]:
+def method(state: BriefInputs) -> list[tuple[str, str]]:
     """Method lines for the report and the speaker notes."""
     c = state.classes
     b = c.breaks[0]
@@ -104,7 +107,7 @@ def method(state: RunState) -> list[tuple[str, str]]:
     ]
     if c.per_period:
         rows.append(("Warning", c.warning or ""))
-    ch = state.results.get("changes")
+    ch = state.changes
     if ch is not None:
         o = ch.options
         rows.append(
@@ -113,7 +116,7 @@ def method(state: RunState) -> list[tuple[str, str]]:
                 f"transitions between consecutive periods on the map's classes; jump = {o.jump}+ classes in one step; spike = back within {o.spike_window} periods; Markov summaries after Kemeny & Snell; homogeneity test after Anderson & Goodman (1957)",
             )
         )
-    cl = state.results.get("clusters")
+    cl = state.clusters
     if cl is not None:
         o = cl.options
         rows.append(
@@ -131,20 +134,20 @@ def method(state: RunState) -> list[tuple[str, str]]:
                 f"Mann-Kendall test with Theil-Sen slope, {cl.significance.replace('per period', 'across units')}",
             )
         )
-    if state.run.previous is not None:
+    if state.previous is not None:
         rows.append(
             (
                 "Previous run",
-                previous_name(state.run.previous)
-                + (" (breaks refitted)" if state.run.rebreak else " (breaks reused)"),
+                previous_name(state.previous)
+                + (" (breaks refitted)" if state.rebreak else " (breaks reused)"),
             )
         )
     return rows
 
 
-def top_movers(state: RunState, n: int = 10) -> pd.DataFrame | None:
+def top_movers(state: BriefInputs, n: int = 10) -> pd.DataFrame | None:
     """The largest one-step jumps (size, then the later period), one row each."""
-    ch = state.results.get("changes")
+    ch = state.changes
     if ch is None or len(ch.jumps) == 0:
         return None
     j = ch.jumps.copy()
@@ -170,11 +173,11 @@ def top_movers(state: RunState, n: int = 10) -> pd.DataFrame | None:
     )[["unit", "name", "step", "classes", "values", "check"]]
 
 
-def _fig(state: RunState, name: str, caption: str) -> Figure:
-    return Figure(state.staging / name, caption)
+def _fig(state: BriefInputs, name: str, caption: str) -> Figure:
+    return Figure(state.folder / name, caption)
 
 
-def _findings_table(state: RunState) -> pd.DataFrame:
+def _findings_table(state: BriefInputs) -> pd.DataFrame:
     import pandas as pd
 
     rows = [(f.level, f.code, f.message) for f in state.findings if f.level != "note"]
@@ -182,13 +185,13 @@ def _findings_table(state: RunState) -> pd.DataFrame:
     return pd.DataFrame(rows, columns=["level", "code", "finding"])
 
 
-def build_brief(state: RunState) -> Brief:
+def build_brief(state: BriefInputs) -> Brief:
     """Everything the report says, in order: answer, news, maps, changes, clusters, data."""
-    spec: BriefSpec = state.section(BriefSpec, "brief")
+    spec: BriefSpec = state.spec
     p = state.panel
     per = p.period_labels
     sections: list[Section] = []
-    wn = state.results.get("whatsnew")
+    wn = state.whatsnew
     if wn is not None:
         sections.append(
             Section(
@@ -218,7 +221,7 @@ def build_brief(state: RunState) -> Brief:
             ),
         )
     )
-    ch = state.results.get("changes")
+    ch = state.changes
     if ch is not None:
         sections.append(
             Section(
@@ -277,7 +280,7 @@ def build_brief(state: RunState) -> Brief:
                     tables=(Table(movers, "Largest one-step jumps", csv_name="jumps.csv"),),
                 )
             )
-    cl = state.results.get("clusters")
+    cl = state.clusters
     if cl is not None:
         g = cl.global_moran
         sig_periods = [
@@ -405,12 +408,12 @@ def _short(message: str, limit: int = 160) -> str:
     return head.rstrip(",;:( ") + " …"
 
 
-def build_slides(state: RunState, brief: Brief) -> list[Slide]:
+def build_slides(state: BriefInputs, brief: Brief) -> list[Slide]:
     """The deck: title, answer, what's new, animation, small multiples, then one picture per
     slide (change, flagged units, transitions, flow, movers, clusters, change clusters, trends)
     and the data notes. Pictures carry their own titles and sources, so the slide adds a
     takeaway title and the page number only."""
-    d = state.staging
+    d = state.folder
     per = state.panel.period_labels
     notice = brief.warning
     first, last = per[0], per[-1]
@@ -514,7 +517,7 @@ def build_slides(state: RunState, brief: Brief) -> list[Slide]:
                 notes=_notes(brief, "Largest one-step jumps."),
             )
         )
-    cl = state.results.get("clusters")
+    cl = state.clusters
     later = [
         (
             "clusters",

@@ -40,6 +40,7 @@ from mapdrift.errors import ConfigError
 from mapdrift.findings import Finding, examples
 
 if TYPE_CHECKING:
+    import geopandas as gpd
     import pandas as pd
 
     from mapdrift.breaks import Classes
@@ -130,6 +131,29 @@ class ChangeResult:
     class_shares: np.ndarray
     warning: str | None = None
     findings: tuple[Finding, ...] = field(default=())
+
+    def __repr__(self) -> str:
+        """A few lines: steps and stayers, moves first to last, jumps, the homogeneity test."""
+        tr, per = self.transitions, self.period_labels
+        stay = float(np.trace(tr.counts) / max(tr.counts.sum(), 1))
+        up, down = int((self.net_change > 0).sum()), int((self.net_change < 0).sum())
+        hom = self.homogeneity
+        test = f"p = {hom.p_LR:.3g}" if hom.p_LR is not None else "not testable"
+        return (
+            f"<ChangeResult: {len(self.net_change):,} units, {per[0]} to {per[-1]}, "
+            f"{len(self.labels)} classes\n"
+            f"  {tr.n_pairs:,} unit steps, {stay:.0%} stay in their class; first to last "
+            f"{up} up, {down} down\n"
+            f"  {int(self.units['jump'].sum())} units jumped {self.options.jump}+ classes "
+            f"({len(self.jumps)} jumps); same probabilities every step: {test}>"
+        )
+
+    def to_geodataframe(self, panel: Panel) -> gpd.GeoDataFrame:
+        """The per-unit table (``units``: trajectory, net change, jumps, flags) with the
+        polygons of ``panel``."""
+        from mapdrift.panel import with_geometry
+
+        return with_geometry(self.units, panel)
 
     def markov_json(self) -> dict[str, Any]:
         """The content of ``markov.json``."""

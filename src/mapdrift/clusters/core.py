@@ -19,6 +19,7 @@ from mapdrift.findings import Finding, examples
 from mapdrift.weights import ISLAND_RULES, SpatialWeights, build_weights, parse_kind
 
 if TYPE_CHECKING:
+    import geopandas as gpd
     import pandas as pd
 
     from mapdrift.panel import Panel
@@ -129,6 +130,35 @@ class ClusterResult:
     @property
     def significance(self) -> str:
         return self.options.significance
+
+    def __repr__(self) -> str:
+        """A few lines: statistic and weights, labels in the last period, global I, trends."""
+        o, per = self.options, self.period_labels
+        last = self.codes[:, -1]
+        counts = ", ".join(
+            f"{int((last == i).sum())} {name}"
+            for i, name in enumerate(lab.LABELS[:4])
+            if (last == i).any()
+        )
+        g = self.global_moran
+        sig = int((g["p_permutation"] <= o.alpha).sum())
+        tr = self.trends
+        rising = int((tr["significant"].astype(bool) & (tr["direction"] == "rising")).sum())
+        falling = int((tr["significant"].astype(bool) & (tr["direction"] == "falling")).sum())
+        return (
+            f"<ClusterResult: {o.statistic}, {self.weights.kind} weights, {o.permutations} "
+            f"permutations, seed {o.seed}; {self.significance}\n"
+            f"  {per[-1]}: {counts or 'no significant clusters'}\n"
+            f"  global Moran's I significant in {sig} of {len(g)} periods; trends: {rising} "
+            f"rising, {falling} falling>"
+        )
+
+    def to_geodataframe(self, panel: Panel) -> gpd.GeoDataFrame:
+        """The per-unit columns (cluster label per period, trend) with the polygons of
+        ``panel``."""
+        from mapdrift.panel import with_geometry
+
+        return with_geometry(self.unit_columns, panel)
 
     @property
     def clusters(self) -> pd.DataFrame:
