@@ -119,3 +119,9 @@ def test_brief_from_notebook_results_without_a_run(tmp_path):
     assert slides[0].key == "title" and slides[-1].key == "data-notes"
     html, _ = mapdrift.write_report(brief, tmp_path / "r.html", tmp_path / "r.md", root=tmp_path)
     assert "Which units changed" in html.read_text(encoding="utf-8")
+
+
+def test_all_lists_exactly_the_lazy_names():
+    import mapdrift
+
+    assert sorted(mapdrift.__all__) == sorted(["__version__", *mapdrift._LAZY])

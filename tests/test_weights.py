@@ -158,3 +158,74 @@ def test_bad_kind_is_a_clear_error(bad):
 def test_bad_island_rule():
     with pytest.raises(ConfigError, match="--islands"):
         build_weights(_lattice(), "queen", islands="drop")
+
+
+# --- weights files and libpysal objects (--weights county.gal) ------------------------------
+def _libpysal_dense(w, order):
+    """A libpysal W as a dense row-standardised matrix in ``order`` (IDs as text)."""
+    ids = [str(i) for i in w.id_order]
+    pos = [ids.index(u) for u in order]
+    w.transform = "r"
+    return w.sparse.toarray()[np.ix_(pos, pos)]
+
+
+def test_gal_file_matches_libpysal(columbus):
+    # Reference: libpysal.io reading the same bundled columbus.gal (IDs are POLYID).
+    import libpysal
+    from libpysal import examples
+
+    path = examples.get_path("columbus.gal")
+    units = [str(v) for v in columbus["POLYID"]]
+    w = build_weights(columbus.geometry, path, units=units)
+    ref = _libpysal_dense(libpysal.io.open(path).read(), units)
+    np.testing.assert_allclose(w.W.toarray(), ref, atol=1e-12)
+    assert w.kind == "file columbus.gal" and w.islands == () and w.findings == ()
+
+
+def test_gwt_file_by_id_in_any_order_and_zero_padded():
+    # Reference: libpysal.io reading baltim_k4.gwt (4 nearest neighbours; IDs = STATION).
+    import geopandas as gpd
+    import libpysal
+    from libpysal import examples
+
+    layer = gpd.read_file(examples.get_path("baltim.shp")).iloc[::-1]  # another order
+    units = [f"{int(v):04d}" for v in layer["STATION"]]  # and zero-padded IDs
+    path = examples.get_path("baltim_k4.gwt")
+    w = build_weights(layer.geometry, path, units=units)
+    ref = _libpysal_dense(libpysal.io.open(path).read(), [u.lstrip("0") for u in units])
+    np.testing.assert_allclose(w.W.toarray(), ref, atol=1e-12)
+    assert set(w.cardinalities.tolist()) == {4}
+
+
+def test_libpysal_graph_and_w_objects(columbus):
+    # A libpysal Graph / W given from Python equals the same contiguity built by us.
+    from libpysal import graph
+    from libpysal import weights as lw
+
+    units = [str(v) for v in columbus["POLYID"]]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        g = graph.Graph.build_contiguity(columbus.set_index("POLYID"), rook=False)
+        qw = lw.Queen.from_dataframe(columbus, ids=units, use_index=False)
+    ours = build_weights(columbus.geometry, "queen").W.toarray()
+    for obj in (g, qw):
+        w = build_weights(columbus.geometry, obj, units=units)
+        np.testing.assert_allclose(w.W.toarray(), ours, atol=1e-12)
+
+
+def test_weights_file_id_problems_are_findings_or_clear_errors(tmp_path):
+    g = _lattice(2)  # units a..d, rook: a-b, a-c, b-d, c-d
+    units = ["a", "b", "c", "d"]
+    gal = tmp_path / "w.gal"
+    gal.write_text("4\na 2\nb c\nb 1\na\nc 1\na\nzz 1\na\n")  # d missing, zz unknown
+    w = build_weights(g, str(gal), units=units)
+    codes = {f.code for f in w.findings}
+    assert codes == {"weights-ids-unknown", "weights-islands"}
+    assert w.isolated == (3,) and np.isnan(w.lag(np.arange(4.0))[3])
+    assert w.neighbours(0).tolist() == [1, 2]
+    bad = tmp_path / "none.gal"
+    bad.write_text("2\nx 1\ny\ny 1\nx\n")
+    with pytest.raises(ConfigError, match="none of its 2 IDs match the units"):
+        build_weights(g, str(bad), units=units)
+    with pytest.raises(ConfigError, match="weights file not found"):
+        parse_kind(str(tmp_path / "absent.gwt"))

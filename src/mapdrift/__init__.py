@@ -63,7 +63,38 @@ _LAZY = {
     "ConfigError": "mapdrift.errors",
 }
 
-__all__ = ["__version__", *sorted(_LAZY)]
+__all__ = [
+    "Breaks",
+    "BriefInputs",
+    "ChangeOptions",
+    "ChangeResult",
+    "Classes",
+    "ClusterOptions",
+    "ClusterResult",
+    "Config",
+    "ConfigError",
+    "Finding",
+    "InputError",
+    "InputSpec",
+    "MapdriftError",
+    "Panel",
+    "RunResult",
+    "Scheme",
+    "SpatialWeights",
+    "__version__",
+    "analyse_changes",
+    "analyse_clusters",
+    "build_brief",
+    "build_weights",
+    "classify",
+    "colours_for",
+    "fit_breaks",
+    "load_config",
+    "load_panel",
+    "run",
+    "smooth_panel",
+    "write_report",
+]
 
 if TYPE_CHECKING:
     from mapdrift.breaks import Breaks, Classes, Scheme, classify, fit_breaks

@@ -11,6 +11,11 @@ scipy CSR matrix ``W`` (units in the geometry's order). Kinds:
 - ``fuzzy`` / ``fuzzy:M``: polygons within M metres of each other (default: 0.5% of the median
   unit's bounding-box diagonal), for layers with slivers or gaps between neighbours.
 
+- a ``.gal`` or ``.gwt`` file (the weights files analysts already have, read with
+  ``libpysal.io``), or, from Python, a libpysal ``Graph`` or ``W``: matched to the units by ID
+  and row-standardised (see :func:`from_libpysal`). Our own builders stay for the kinds above:
+  they are measured faster than libpysal's on large layers (``benchmarks/bench_clusters.py``).
+
 Islands (units with no neighbour) never crash anything: ``islands="nearest"`` (default) links each
 to its nearest unit by polygon distance, both ways, with a warning; ``islands="exclude"`` leaves
 them without neighbours, so their lag is NaN and the cluster step labels them ``isolated``.
@@ -42,10 +47,13 @@ if TYPE_CHECKING:
 
 __all__ = [
     "ISLAND_RULES",
+    "WEIGHT_FILES",
     "WEIGHT_KINDS",
     "SpatialWeights",
     "build_weights",
+    "from_libpysal",
     "parse_kind",
+    "read_weights_file",
     "row_standardise",
 ]
 
@@ -53,6 +61,8 @@ log = logging.getLogger(__name__)
 
 #: Kinds accepted by ``--weights`` (``knn``, ``distance`` and ``fuzzy`` take ``:number``).
 WEIGHT_KINDS: tuple[str, ...] = ("queen", "rook", "knn:K", "distance:M", "fuzzy", "fuzzy:M")
+#: Spatial-weights files read with libpysal (``--weights county.gal``).
+WEIGHT_FILES: tuple[str, ...] = (".gal", ".gwt")
 #: What to do with units that have no neighbour.
 ISLAND_RULES: tuple[str, ...] = ("nearest", "exclude")
 #: Version of the cache file layout (bump on change so old caches are ignored).
@@ -64,8 +74,12 @@ FUZZY_SHARE = 0.005
 def parse_kind(kind: str) -> tuple[str, float | None]:
     """``"knn:6"`` -> ``("knn", 6.0)``, ``"queen"`` -> ``("queen", None)``; else ConfigError."""
     text = str(kind).strip().lower()
+    if text.endswith(WEIGHT_FILES):
+        if not Path(str(kind).strip()).is_file():
+            raise ConfigError(f"--weights {kind!r}: weights file not found; check the path")
+        return "file", None
     name, _, arg = text.partition(":")
-    valid = ", ".join(WEIGHT_KINDS)
+    valid = ", ".join(WEIGHT_KINDS) + ", or a .gal/.gwt file"
     if name not in ("queen", "rook", "knn", "distance", "fuzzy"):
         raise ConfigError(f"--weights {kind!r} is not a valid option, must be one of {valid}")
     if name in ("queen", "rook"):
@@ -347,7 +361,7 @@ def _unit_ids(units: Any, idx: Any) -> tuple[str, ...]:
 
 def build_weights(
     geometry: gpd.GeoSeries,
-    kind: str = "queen",
+    kind: Any = "queen",
     *,
     islands: str = "nearest",
     cache_dir: Path | str | None = None,
@@ -355,10 +369,23 @@ def build_weights(
 ) -> SpatialWeights:
     """Spatial weights for ``geometry`` (see the module docstring for kinds and island rules).
 
+    ``kind`` may also be a ``.gal``/``.gwt`` path or a libpysal ``Graph``/``W``; those are
+    matched to ``units`` by ID (and not cached: reading them is cheap).
+
     ``units`` (optional, same order as ``geometry``) gives the IDs named in findings; without
     it findings name row positions. Findings: ``weights-islands`` (warning), ``weights-empty-
     geometry`` (warning), ``weights-components`` (note, more than one connected group).
     """
+    if not isinstance(kind, str) or str(kind).strip().lower().endswith(WEIGHT_FILES):
+        if islands not in ISLAND_RULES:
+            raise ConfigError(
+                f"--islands {islands!r} is not a valid option, must be one of {', '.join(ISLAND_RULES)}"
+            )
+        ids = list(units) if units is not None else [str(i) for i in range(len(geometry))]
+        if isinstance(kind, str):
+            parse_kind(kind)
+            return read_weights_file(kind, ids)
+        return from_libpysal(kind, ids)
     name, number = parse_kind(kind)
     if islands not in ISLAND_RULES:
         raise ConfigError(
@@ -466,3 +493,111 @@ def build_weights(
         _save_cache(cache_path, w)
         log.info("weights %s cached at %s", kind_text, cache_path)
     return w
+
+
+# ---------------------------------------------------------------------------------------------
+# weights analysts already have: .gal/.gwt files, libpysal objects
+# ---------------------------------------------------------------------------------------------
+def read_weights_file(path: Path | str, units: Any) -> SpatialWeights:
+    """Read a ``.gal``/``.gwt`` file with ``libpysal.io`` and match it to ``units`` by ID."""
+    import libpysal
+
+    import warnings
+
+    path = Path(path)
+    try:
+        with warnings.catch_warnings():  # e.g. "DBF relating to GWT was not found": IDs as text
+            warnings.simplefilter("ignore")
+            w = libpysal.io.open(str(path)).read()
+    except Exception as exc:  # libpysal raises many types for a malformed file
+        raise ConfigError(
+            f"{path}: not a readable {path.suffix} weights file ({type(exc).__name__}: {exc})"
+        ) from None
+    return from_libpysal(w, units, kind=f"file {path.name}", source=str(path))
+
+
+def from_libpysal(w: Any, units: Any, *, kind: str = "", source: str = "") -> SpatialWeights:
+    """Our row-standardised weights from a libpysal ``Graph`` or ``W``, matched by unit ID.
+
+    IDs are compared as text (``7001`` matches ``07001`` when the only difference is leading
+    zeros). Units the weights do not know get no neighbours (reported, labelled isolated);
+    weights IDs that are not units are ignored (reported). Given weight values (e.g. a
+    ``.gwt``'s inverse distances) are kept and rows standardised.
+    """
+    from mapdrift.ids import normalise_ids
+
+    if hasattr(w, "unique_ids") and hasattr(w, "sparse"):  # libpysal.graph.Graph
+        their_ids, matrix = list(w.unique_ids), w.sparse
+        kind = kind or "libpysal Graph"
+    elif hasattr(w, "id_order") and hasattr(w, "sparse"):  # libpysal.weights.W
+        their_ids, matrix = list(w.id_order), w.sparse
+        kind = kind or "libpysal W"
+    else:
+        raise ConfigError(
+            f"weights of type {type(w).__name__} are not understood; give a libpysal Graph or "
+            "W, a .gal/.gwt file, or a kind such as 'queen'"
+        )
+    source = source or kind
+    ours = normalise_ids(units)
+    theirs = normalise_ids(their_ids)
+    index = {u: i for i, u in enumerate(ours)}
+    stripped = {u.lstrip("0"): i for i, u in enumerate(ours) if u.isdigit()}
+    pos = np.array(
+        [index.get(t, stripped.get(t.lstrip("0"), -1) if t.isdigit() else -1) for t in theirs]
+    )
+    n = len(ours)
+    findings: list[Finding] = []
+    unknown = [their_ids[i] for i in np.flatnonzero(pos < 0)]
+    if len(unknown) == len(theirs) and theirs:
+        raise ConfigError(
+            f"{source}: none of its {len(theirs)} IDs match the units (e.g. weights "
+            f"{examples([str(x) for x in their_ids], 3)}; units {examples(ours, 3)}); the "
+            "weights must use the layer's unit IDs"
+        )
+    if unknown:
+        findings.append(
+            Finding(
+                "warning",
+                "weights-ids-unknown",
+                f"{source}: {plural(len(unknown), 'ID')} match no unit and are ignored "
+                f"(e.g. {examples([str(x) for x in unknown], 5)})",
+            )
+        )
+    coo = sp.coo_matrix(matrix)
+    keep = (pos[coo.row] >= 0) & (pos[coo.col] >= 0) & (coo.row != coo.col)
+    m = sp.csr_matrix(
+        (coo.data[keep], (pos[coo.row[keep]], pos[coo.col[keep]])), shape=(n, n), dtype=float
+    )
+    covered = np.zeros(n, dtype=bool)
+    covered[pos[pos >= 0]] = True
+    has_nb = np.diff(m.indptr) > 0
+    lone = np.flatnonzero(~has_nb)
+    if len(lone):
+        missing = np.flatnonzero(~covered)
+        findings.append(
+            Finding(
+                "warning",
+                "weights-islands",
+                f"{plural(len(lone), 'unit')} have no neighbour in {source} "
+                f"(e.g. {', '.join(_unit_ids(ours, lone[:5]))}; {len(missing)} of them are not "
+                "in the weights at all); they are labelled isolated",
+                _unit_ids(ours, lone),
+            )
+        )
+    from scipy.sparse.csgraph import connected_components
+
+    labels = connected_components(m, directed=False)[1] if n else np.array([], dtype=int)
+    groups = len(np.unique(labels[has_nb])) if has_nb.any() else 0
+    for f in findings:
+        log.warning("%s", f.message)
+    W = row_standardise(m)
+    W.sort_indices()
+    return SpatialWeights(
+        W=W,
+        kind=kind,
+        islands=tuple(int(i) for i in lone),
+        island_rule="exclude",
+        components=int(groups + len(lone)),
+        findings=tuple(findings),
+        isolated=tuple(int(i) for i in lone),
+    )

@@ -68,7 +68,7 @@ def changes(
         None,
         "--weights",
         help="Neighbours for the spatially conditioned transitions: queen, rook, knn:6, "
-        "distance:2500 (metres), fuzzy (default: queen).",
+        "distance:2500 (metres), fuzzy, or a .gal/.gwt file (default: queen).",
     ),
     spatial: Optional[bool] = typer.Option(
         None,

@@ -47,7 +47,7 @@ def clusters(
     weights: Optional[str] = _opt(
         None,
         "--weights",
-        help="queen, rook, knn:6, distance:2500 (metres), fuzzy or fuzzy:M [default: queen].",
+        help="queen, rook, knn:6, distance:2500 (metres), fuzzy or fuzzy:M, or a .gal/.gwt file (matched by unit ID) [default: queen].",
     ),
     islands: Optional[Islands] = _opt(
         None,
