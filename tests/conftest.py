@@ -24,6 +24,16 @@ def runner():
     return CliRunner()
 
 
+@pytest.fixture(scope="session")
+def demo_run(tmp_path_factory):
+    """One whole run of the demo config (every step and format), shared by every test that
+    reads a run's outputs: a run costs about 15 s, so the suite makes this one only once."""
+    from mapdrift.config import load_config
+    from mapdrift.pipeline import run
+
+    return run(load_config(DEMO / "demo.toml"), out=tmp_path_factory.mktemp("runs") / "2024")
+
+
 @pytest.fixture(autouse=True)
 def _close_figures():
     yield
