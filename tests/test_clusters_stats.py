@@ -162,6 +162,9 @@ def test_same_seed_same_p_values(columbus):
     a = local_moran_panel(y, w, permutations=499, seed=11)
     b = local_moran_panel(y, w, permutations=499, seed=11)
     np.testing.assert_array_equal(a.p, b.p)
+    # the seed is used: another seed draws other permutations (a fixed internal seed fails here)
+    c = local_moran_panel(y, w, permutations=499, seed=12)
+    assert not np.array_equal(a.p, c.p)
     # one draw table shared by the periods: each column equals a one-period run
     one = local_moran_panel(y[:, 1:2], w, permutations=499, seed=11)
     np.testing.assert_array_equal(one.p[:, 0], a.p[:, 1])

@@ -117,3 +117,17 @@ def test_annual_rerun_reuses_breaks_and_reports_new_jumper(demo_run, tmp_path):
     html = (new.out / "report.html").read_text()
     assert 'id="whats-new"' in html and jumper in html
     assert "2025" in json.loads((new.out / "manifest.json").read_text())["parameters"]["periods"]
+
+
+def test_rebreak_refits_and_says_so(demo_run, tmp_path):
+    # with a previous run the breaks are reused; --rebreak refits them on the new data and
+    # every output carries the notice (checked here on breaks.json and findings)
+    cfg = load_config(DEMO / "rerun_2025.toml").with_values("run", {"previous": str(demo_run.out)})
+    reused = run(cfg, out=tmp_path / "reused", steps=STEPS[:3])
+    refit = run(cfg.with_values("run", {"rebreak": True}), out=tmp_path / "refit", steps=STEPS[:3])
+    old = json.loads((demo_run.out / "breaks.json").read_text())
+    assert json.loads((reused.out / "breaks.json").read_text())["edges"] == old["edges"]
+    new = json.loads((refit.out / "breaks.json").read_text())
+    assert new["edges"] != old["edges"] and new["fitted_on"] == "2012-2025"
+    assert "breaks-refitted" in {f.code for f in refit.findings}
+    assert "breaks-reused" not in {f.code for f in refit.findings}
