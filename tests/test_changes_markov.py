@@ -16,6 +16,7 @@ from mapdrift.changes import (
 # Land of Oz weather chain (rain, nice, snow): Kemeny, Snell & Thompson; Grinstead & Snell,
 # Introduction to Probability, Example 11.1 (P); its fixed vector and mean first passage /
 # recurrence times are worked in sections 11.3 and 11.5 (section numbers from memory).
+# (giddy's Markov summaries are not a second check here: giddy needs esda < 2.9 and numba.)
 OZ = np.array([[1 / 2, 1 / 4, 1 / 4], [1 / 2, 0, 1 / 2], [1 / 4, 1 / 4, 1 / 2]])
 
 

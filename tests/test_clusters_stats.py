@@ -91,6 +91,7 @@ def test_moran_columbus(columbus, columbus_ref):
     assert pytest.approx(0.500189, abs=1e-6) == m.I
     assert m.expected == pytest.approx(-1 / 48)
     ref = esda.Moran(y, columbus_ref, permutations=0)
+    assert m.I == pytest.approx(ref.I, rel=1e-12)  # second check of the recalled I
     assert m.var_normal == pytest.approx(ref.VI_norm)
     assert m.var_random == pytest.approx(ref.VI_rand)
     assert m.z_random == pytest.approx(ref.z_rand)
@@ -181,6 +182,11 @@ def test_mann_kendall_gilbert_example():
     assert var[0] == pytest.approx(1226.33, abs=0.005)
     assert Z[0] == pytest.approx(3.14, abs=0.005)
     assert p[0] == pytest.approx(2 * stats.norm.sf(Z[0]))
+    # second check of the recalled numbers: pymannkendall (reference library) on the same data
+    import pymannkendall
+
+    ref = pymannkendall.original_test(x)
+    assert (S[0], var[0], Z[0], p[0]) == pytest.approx((ref.s, ref.var_s, ref.z, ref.p), rel=1e-12)
 
 
 def test_theil_sen_sen_1968():
