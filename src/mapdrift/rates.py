@@ -11,7 +11,9 @@ of moments):
 
 Where the estimated between-area variance ``a`` is negative, Marshall's rule sets it to zero,
 so every rate in that neighbourhood (or the whole period, for ``eb``) equals the prior mean.
-esda's smoothers leave ``a`` negative; we apply the rule and report where it happened.
+esda's global ``Empirical_Bayes`` leaves ``a`` negative (its weights then fall outside 0-1);
+its ``Spatial_Empirical_Bayes`` sets a negative ``a`` to zero as we do. We apply the rule in
+both and report where it happened.
 
 Rates are smoothed period by period. Cells with a missing count, a missing base or a base of
 zero stay NaN and are left out of the moments. Results are in rate units (multiply by ``per``
