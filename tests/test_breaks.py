@@ -123,6 +123,22 @@ def test_std_dev_centred_on_mean_and_diverging():
     assert min(abs(e - x.mean()) for e in b.edges) < 1e-9  # even k: an edge at the mean
 
 
+def test_head_tail_on_data_without_a_heavy_tail_warns(tmp_path):
+    # Uniform values: the head above the mean holds half of them (> 40 %), so head/tail breaks
+    # (Jiang 2013) stop at once with one class; that gets a warning, not a silent one-colour map.
+    from conftest import grid_layer
+
+    from mapdrift.panel import Panel
+
+    gdf = grid_layer(4)
+    values = np.linspace(1.0, 32.0, 32).reshape(16, 2)
+    panel = Panel.from_arrays(values, gdf.geometry, units=gdf["unit_id"], periods=(2020, 2021))
+    c = classify(panel, "head-tail", 5)
+    assert c.k == 1
+    assert "breaks-head-tail-single" in {f.code for f in c.findings if f.level == "warning"}
+    assert "breaks-head-tail-single" not in {f.code for f in classify(panel, "quantile").findings}
+
+
 def test_head_tail_on_heavy_tail():
     # Jiang (2013) head/tail breaks: each edge is the mean of the previous head.
     x = np.array([1.0] * 50 + [2.0] * 20 + [5.0] * 8 + [20.0] * 3 + [100.0])
@@ -231,3 +247,23 @@ def test_isolated_zero_class_label():
     x = np.array([0.0] * 10 + list(np.linspace(1, 20, 40)))
     b = fit_breaks(x, "quantile", 3, isolate_zeros=True)
     assert b.labels[0] == "exactly 0" and b.labels[1].startswith("0.0 - ")
+
+
+def test_why_quantile_and_equal_interval_are_not_mapclassify_s():
+    # The reason breaks.py gives for its own quantile and equal-interval edges, on two small
+    # inputs: mapclassify's edge lands an ulp above a data value that is exactly the quantile
+    # (type 7, Hyndman & Fan 1996) or exactly min + 2 * width, so that value changes class.
+    import warnings
+
+    import mapclassify
+
+    x = np.array([0.1, 0.2, 0.3, 0.4])
+    ours = Breaks(tuple(quantile_edges(x, 9)), "quantile").classify(x)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        theirs = mapclassify.Quantiles(x, k=9).yb
+    assert ours.tolist() == [0, 2, 5, 8] and theirs.tolist() == [0, 3, 5, 8]
+    x = np.array([0.1, 0.2, 0.3])  # equal intervals of width 0.05: 0.2 is the 2nd upper bound
+    ours = fit_breaks(x, "equal-interval", 4)
+    assert ours.edges[1] == 0.2 and ours.classify(x).tolist() == [0, 1, 3]
+    assert mapclassify.EqualInterval(x, k=4).yb.tolist() == [0, 2, 3]

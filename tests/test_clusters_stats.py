@@ -189,6 +189,14 @@ def test_mann_kendall_gilbert_example():
     assert (S[0], var[0], Z[0], p[0]) == pytest.approx((ref.s, ref.var_s, ref.z, ref.p), rel=1e-12)
 
 
+def test_mann_kendall_all_equal_is_nan_and_never_significant():
+    # Var S = 0 when every value is tied (Gilbert 1987's variance formula): no test is possible.
+    S, var, Z, p = mann_kendall(np.array([[3.0, 3, 3, 3, 3], [1, 2, 3, 4, 5]]))
+    assert S[0] == 0 and var[0] == 0 and np.isnan(Z[0]) and np.isnan(p[0])
+    tr = trends(np.array([[3.0, 3, 3, 3, 3], [1, 2, 3, 4, 5]]), np.arange(5.0))
+    assert not tr.significant[0] and tr.direction[0] == "no significant trend"
+
+
 def test_theil_sen_sen_1968():
     # Sen (1968) example: t = 1,2,3,4,10,12,18; y = 9,15,19,20,45,55,78 -> slope 4.
     t = np.array([1, 2, 3, 4, 10, 12, 18.0])

@@ -47,7 +47,8 @@ def period_times(periods: Sequence[Any]) -> np.ndarray:
 def mann_kendall(values: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """``(S, Var S, Z, p)`` per row of ``values`` [units, periods] in period order; NaN skipped.
 
-    Rows with fewer than 3 values get NaN.
+    Rows with fewer than 3 values get NaN. A row whose values are all equal has ``Var S = 0``:
+    its ``Z`` and ``p`` are NaN (there is no trend to test), so it is never significant.
     """
     x = np.atleast_2d(np.asarray(values, dtype=np.float64))
     valid = ~np.isnan(x)
