@@ -127,7 +127,6 @@ def test_head_tail_on_data_without_a_heavy_tail_warns(tmp_path):
     # Uniform values: the head above the mean holds half of them (> 40 %), so head/tail breaks
     # (Jiang 2013) stop at once with one class; that gets a warning, not a silent one-colour map.
     from conftest import grid_layer
-
     from mapdrift.panel import Panel
 
     gdf = grid_layer(4)

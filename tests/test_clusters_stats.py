@@ -91,7 +91,7 @@ def test_moran_columbus(columbus, columbus_ref):
     assert pytest.approx(0.500189, abs=1e-6) == m.I
     assert m.expected == pytest.approx(-1 / 48)
     ref = esda.Moran(y, columbus_ref, permutations=0)
-    assert m.I == pytest.approx(ref.I, rel=1e-12)  # second check of the recalled I
+    assert pytest.approx(ref.I, rel=1e-12) == m.I  # second check of the recalled I
     assert m.var_normal == pytest.approx(ref.VI_norm)
     assert m.var_random == pytest.approx(ref.VI_rand)
     assert m.z_random == pytest.approx(ref.z_rand)

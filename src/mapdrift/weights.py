@@ -500,9 +500,9 @@ def build_weights(
 # ---------------------------------------------------------------------------------------------
 def read_weights_file(path: Path | str, units: Any) -> SpatialWeights:
     """Read a ``.gal``/``.gwt`` file with ``libpysal.io`` and match it to ``units`` by ID."""
-    import libpysal
-
     import warnings
+
+    import libpysal
 
     path = Path(path)
     try:
