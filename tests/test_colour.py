@@ -71,8 +71,15 @@ def test_ciede2000_matches_colour_science():
 
     data = np.array(SHARMA_2005)
     ref = colour.delta_E(data[:, 0:3], data[:, 3:6], method="CIE 2000")
-    np.testing.assert_allclose(ref, data[:, 6], atol=1e-4)  # the recollection holds
-    np.testing.assert_allclose(ciede2000(data[:, 0:3], data[:, 3:6]), ref, rtol=1e-9)
+    # Pairs whose hues are exactly 180 degrees apart (a2 = -a1, b2 = -b1) sit on the branch
+    # point of the formula: colour-science takes either branch depending on the platform's
+    # trigonometry (on numpy 1.25 the other one), so it is no reference there; ours is pinned
+    # to the paper's branch and checked against the table above.
+    flip = (data[:, 1] == -data[:, 4]) & (data[:, 2] == -data[:, 5]) & (data[:, 1] != 0)
+    assert flip.sum() == 2
+    np.testing.assert_allclose(ref[~flip], data[~flip, 6], atol=1e-4)  # the recollection holds
+    ours = ciede2000(data[:, 0:3], data[:, 3:6])
+    np.testing.assert_allclose(ours[~flip], ref[~flip], rtol=1e-9)
     rng = np.random.default_rng(4)
     a = np.column_stack([rng.uniform(0, 100, 500), rng.uniform(-80, 80, (500, 2))])
     b = np.column_stack([rng.uniform(0, 100, 500), rng.uniform(-80, 80, (500, 2))])
