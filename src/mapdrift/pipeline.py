@@ -231,10 +231,12 @@ def _step_animate(state: RunState) -> str:
     if ch is not None and len(ch.jumps):  # outline the units that jumped into each period
         index = {u: i for i, u in enumerate(p.units)}
         landed = {label: [] for label in p.period_labels}
-        for unit, to in zip(ch.jumps["unit"], ch.jumps["to_period"].astype(str)):
+        counted = ch.jumps["credible"] != "false"  # moves within count noise are not outlined
+        for unit, to in zip(ch.jumps["unit"][counted], ch.jumps["to_period"][counted].astype(str)):
             landed[to].append(index[unit])
         text["outlines"] = [landed[label] for label in p.period_labels]
-        text["outline_label"] = f"jumped {ch.options.jump}+ classes since the previous period"
+        what = "credibly jumped" if ch.tested else "jumped"
+        text["outline_label"] = f"{what} {ch.options.jump}+ classes since the previous period"
     done = []
     for fmt in ("gif", "mp4"):
         if fmt in formats:
@@ -294,8 +296,16 @@ def _step_changes(state: RunState) -> str:
     from mapdrift.breaks import classify_spec
     from mapdrift.brief.pictures import change_pictures
     from mapdrift.changes import ChangeOptions, analyse_changes, relative_panel, write_changes
+    from mapdrift.clusters import ClusterOptions
 
     opt = state.section(ChangeOptions, "changes")
+    given = state.config.section("changes")
+    cl_opt = state.section(ClusterOptions, "clusters")  # the run's multiple-testing choice
+    opt = replace(
+        opt,
+        alpha=given.get("alpha", cl_opt.alpha),
+        correction=given.get("correction", cl_opt.correction),
+    )
     panel, classes = state.panel, state.classes
     if opt.relative:
         cs: ClassSpec = state.section(ClassSpec, "classes")
@@ -309,9 +319,7 @@ def _step_changes(state: RunState) -> str:
                 f"changes use values relative to each period's {opt.relative}",
             )
         )
-    from mapdrift.clusters import ClusterOptions
-
-    same_weights = opt.weights == state.section(ClusterOptions, "clusters").weights
+    same_weights = opt.weights == cl_opt.weights
     result = analyse_changes(
         panel, classes, opt, weights=_weights(state) if opt.spatial and same_weights else None
     )
@@ -322,7 +330,16 @@ def _step_changes(state: RunState) -> str:
     n_jump = int(result.units["jump"].sum())
     up = int((result.net_change > 0).sum())
     down = int((result.net_change < 0).sum())
-    return f"{up} units up, {down} down first to last; {n_jump} units jumped {opt.jump}+ classes"
+    if not result.tested:
+        return (
+            f"{up} units up, {down} down first to last; {n_jump} units jumped {opt.jump}+ "
+            "classes (not tested against noise: no counts)"
+        )
+    noise = int((result.units["n_noise_moves"] > 0).sum())
+    return (
+        f"{up} units up, {down} down first to last; {n_jump} units credibly jumped {opt.jump}+ "
+        f"classes ({noise} more moved within count noise)"
+    )
 
 
 def _step_clusters(state: RunState) -> str:

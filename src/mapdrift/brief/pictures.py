@@ -120,8 +120,9 @@ def change_pictures(result: Any, panel: Any, out: Path, *, force: bool = False) 
                 f"last {opts.persist} periods"
             ),
             caption=(
-                "Each unit shows the first of its flags in the legend's order; all flags are in "
-                "units.csv and every jump in jumps.csv." + (f" {source}" if source else "")
+                f"{result.noise_text} Each unit shows the first of its flags in the legend's "
+                "order; all flags are in units.csv and every move in jumps.csv."
+                + (f" {source}" if source else "")
             ),
             legend_title="flag",
             nodata_label="no data",
