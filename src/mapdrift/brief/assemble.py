@@ -140,13 +140,13 @@ def method(state: RunState) -> list[tuple[str, str]]:
         rows.append(
             (
                 "Clusters",
-                f"{'local Moran (Anselin 1995)' if o.statistic == 'local-moran' else 'Getis-Ord Gi*'}, {o.permutations} conditional permutations, two-sided p-values, seed {o.seed}; {cl.significance}",
+                f"{'local Moran (Anselin 1995)' if o.statistic == 'local-moran' else 'Getis-Ord Gi*'} on {cl.inputs}, two-sided p-values by {o.p_text}; {cl.significance}",
             )
         )
         rows.append(
             (
                 "Trends",
-                f"Mann-Kendall test with Theil-Sen slope, {cl.significance.replace('per period', 'across units')}",
+                f"Mann-Kendall test with Theil-Sen slope on {cl.trend_input}, {cl.significance.replace('per period', 'across units')}",
             )
         )
     if state.run.previous is not None:
@@ -326,7 +326,7 @@ def build_brief(state: RunState) -> Brief:
                 "Where high and low values cluster",
                 paragraphs=(
                     f"Global Moran's I (each period tested on its own, permutation p <= {cl.options.alpha:g}, no correction across periods) shows significant clustering in {where_sig}.",
-                    f"Local clusters: {sig_text}. High-high: a high unit among high neighbours; low-low likewise; high-low and low-high are spatial outliers.",
+                    f"Local clusters on {cl.inputs}, {cl.options.p_text}: {sig_text}. High-high: a high unit among high neighbours; low-low likewise; high-low and low-high are spatial outliers.",
                 ),
                 figures=(
                     _fig(state, "global_moran.png", "Global Moran's I per period"),

@@ -148,8 +148,8 @@ def cluster_pictures(result: Any, panel: Any, out: Path, *, force: bool = False)
     sig = result.significance
     stat_name = "Local Moran's I" if opt.statistic == "local-moran" else "Getis-Ord Gi*"
     caption = (
-        f"{stat_name} with {result.weights.kind} weights, {opt.permutations} permutations "
-        f"(seed {opt.seed}); {sig}. {panel.meta.source}".strip()
+        f"{stat_name} with {result.weights.kind} weights on {result.inputs}; {opt.p_text}; "
+        f"{sig}. {panel.meta.source}".strip()
     )
     written: list[Path] = []
     g = result.global_moran
@@ -200,7 +200,8 @@ def cluster_pictures(result: Any, panel: Any, out: Path, *, force: bool = False)
                  out / "trend_map.png", title=f"Trend in {var.lower()}",
                  subtitle=f"Theil-Sen slope where the Mann-Kendall trend is "
                  f"{result.trend.correction and sig.replace('per period', 'across units')}",
-                 caption=f"Slopes are change per period in {panel.meta.unit_label or 'the value'}; grey: no "
+                 caption=f"Mann-Kendall and Theil-Sen on {result.trend_input}. Slopes are change per "
+                 f"period in {panel.meta.unit_label or 'the value'}; grey: no "
                  f"significant trend. {panel.meta.source}".strip(),
                  legend_title="trend (Theil-Sen slope)", force=force)
     )  # fmt: skip
