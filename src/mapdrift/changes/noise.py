@@ -22,8 +22,8 @@ from scipy import stats
 
 __all__ = ["MOE_Z", "moe_change_p", "poisson_change_p"]
 
-#: z of a two-sided 90 % interval: ACS margins of error are 1.645 standard errors.
-MOE_Z = 1.6448536269514722
+#: ACS margins of error are published at 90 % as 1.645 standard errors (the rounded z).
+MOE_Z = 1.645
 
 
 def poisson_change_p(
@@ -71,6 +71,5 @@ def moe_change_p(
     s = np.sqrt(se1 * se1 + se2 * se2)
     with np.errstate(invalid="ignore", divide="ignore"):
         z = np.where(s > 0, np.abs(d) / s, np.where(d == 0, 0.0, np.inf))
-    p = 2.0 * stats.norm.sf(z)
-    p[np.isnan(d) | np.isnan(s)] = np.nan
-    return p
+    p = np.asarray(2.0 * stats.norm.sf(z), dtype=np.float64)
+    return np.where(np.isnan(d) | np.isnan(s), np.nan, p)
