@@ -22,8 +22,6 @@ from scipy import stats
 
 sys.path.insert(0, str(Path(__file__).parent))
 
-from synthetic_counts import make_panel  # noqa: E402
-
 from mapdrift.breaks import classify  # noqa: E402
 from mapdrift.changes import ChangeOptions, analyse_changes  # noqa: E402
 from mapdrift.changes.noise import moe_change_p, poisson_change_p  # noqa: E402
@@ -32,6 +30,7 @@ from mapdrift.clusters.local import conditional_moments, local_moran_panel  # no
 from mapdrift.clusters.moran import moran_global  # noqa: E402
 from mapdrift.rates import eb_standardise  # noqa: E402
 from mapdrift.weights import SpatialWeights, build_weights, row_standardise  # noqa: E402
+from synthetic_counts import make_panel  # noqa: E402
 
 
 # -- the conditional test for two Poisson rates ------------------------------------------------
@@ -98,7 +97,7 @@ def test_eb_standardise_and_rate_moran_match_esda(sids):
     w = build_weights(sids.geometry, "queen")
     np.testing.assert_allclose(w.W.toarray(), ref_w.sparse.toarray(), atol=1e-12)
     z = eb_standardise(e, b)
-    assert moran_global(z, w.W).I == pytest.approx(glob.I, rel=1e-10)
+    assert pytest.approx(glob.I, rel=1e-10) == moran_global(z, w.W).I
     n = len(e)
     res = local_moran_panel(z[:, None], w, permutations=0)
     # our scaling is n/(n-1) times esda's Is (see mapdrift.clusters.local)
@@ -124,8 +123,12 @@ def test_exact_moments_match_esda_simulated_moments(sids):
     mu, sd = conditional_moments(w.W, Z)
     n = len(z)
     scale = (n - 1) / n  # esda's Is = (n-1)/n * ours
-    np.testing.assert_allclose(ref.EI_sim, scale * Z[:, 0] * mu[:, 0], atol=4 * ref.seI_sim.max() / 100)
-    np.testing.assert_allclose(ref.seI_sim, scale * np.abs(Z[:, 0]) * sd[:, 0], rtol=0.05, atol=1e-3)
+    np.testing.assert_allclose(
+        ref.EI_sim, scale * Z[:, 0] * mu[:, 0], atol=4 * ref.seI_sim.max() / 100
+    )
+    np.testing.assert_allclose(
+        ref.seI_sim, scale * np.abs(Z[:, 0]) * sd[:, 0], rtol=0.05, atol=1e-3
+    )
     # and so the normal p-values match 2 x esda's one-sided p_z_sim
     ok = ref.seI_sim > 1e-6
     assert np.all(np.abs(res.p[ok, 0] - 2 * ref.p_z_sim[ok]) < 0.02 + 0.1 * 2 * ref.p_z_sim[ok])
@@ -256,7 +259,9 @@ def test_old_behaviour_reachable_and_explained(synthetic):
     assert len(empty) == sum(
         1
         for t, g in enumerate(old.global_stats)
-        if g.p_permutation <= 0.05 and g.I > 0 and not ((old.codes[:, t] == 0) | (old.codes[:, t] == 1)).any()
+        if g.p_permutation <= 0.05
+        and g.I > 0
+        and not ((old.codes[:, t] == 0) | (old.codes[:, t] == 1)).any()
     )
     assert all("permutations" in f.message for f in empty)
     assert n_hh.sum() <= ((s.panel.values > 0).sum())  # it ran; the count is whatever it is

@@ -120,9 +120,8 @@ def change_pictures(result: Any, panel: Any, out: Path, *, force: bool = False) 
                 f"last {opts.persist} periods"
             ),
             caption=(
-                f"{result.noise_text} Each unit shows the first of its flags in the legend's "
-                "order; all flags are in units.csv and every move in jumps.csv."
-                + (f" {source}" if source else "")
+                f"{result.noise_short} First flag in the legend's order; all in units.csv "
+                "and jumps.csv." + (f" {source}" if source else "")
             ),
             legend_title="flag",
             nodata_label="no data",
@@ -147,9 +146,9 @@ def cluster_pictures(result: Any, panel: Any, out: Path, *, force: bool = False)
     var = panel.meta.variable or "value"
     sig = result.significance
     stat_name = "Local Moran's I" if opt.statistic == "local-moran" else "Getis-Ord Gi*"
-    caption = (
-        f"{stat_name} with {result.weights.kind} weights on {result.inputs}; {opt.p_text}; "
-        f"{sig}. {panel.meta.source}".strip()
+    caption = (  # the subtitle carries the significance sentence
+        f"{stat_name}, {result.weights.kind} weights, on {result.inputs}; {opt.p_text}. "
+        f"{panel.meta.source}".strip()
     )
     written: list[Path] = []
     g = result.global_moran

@@ -152,6 +152,16 @@ class ChangeResult:
         return bool(self.noise_test)
 
     @property
+    def noise_short(self) -> str:
+        """A short form of :attr:`noise_text` for captions."""
+        if not self.noise_test:
+            return "Jumps not tested against noise (no counts)."
+        how = "conditional Poisson test" if self.noise_test == "poisson" else "margins of error"
+        return (
+            f"Jumps tested against count noise ({how}, {self.options.correction} over all steps)."
+        )
+
+    @property
     def noise_text(self) -> str:
         """The sentence every output about jumps carries: how (or whether) they were tested."""
         return noise_sentence(self.noise_test, self.options)
@@ -201,7 +211,9 @@ def _tester(panel: Panel, moe: np.ndarray | None) -> tuple[Any, str]:
     if moe is not None:
         se = np.asarray(moe, dtype=np.float64) / MOE_Z
         if se.shape != panel.values.shape:
-            raise ValueError(f"moe shape {se.shape} does not match the panel's {panel.values.shape}")
+            raise ValueError(
+                f"moe shape {se.shape} does not match the panel's {panel.values.shape}"
+            )
         v = panel.values
 
         def normal(rows: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -362,9 +374,7 @@ def _findings(
                 ids,
             )
         )
-    out.append(
-        Finding("note" if tested else "warning", "changes-noise-test", noise_text)
-    )
+    out.append(Finding("note" if tested else "warning", "changes-noise-test", noise_text))
     return out
 
 

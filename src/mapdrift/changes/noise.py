@@ -26,9 +26,7 @@ __all__ = ["MOE_Z", "moe_change_p", "poisson_change_p"]
 MOE_Z = 1.645
 
 
-def poisson_change_p(
-    n1: np.ndarray, b1: np.ndarray, n2: np.ndarray, b2: np.ndarray
-) -> np.ndarray:
+def poisson_change_p(n1: np.ndarray, b1: np.ndarray, n2: np.ndarray, b2: np.ndarray) -> np.ndarray:
     """Two-sided p-value of the conditional test of equal Poisson rates ``n1/b1`` and ``n2/b2``.
 
     Arrays broadcast; NaN in any input, a non-positive base or a negative count gives NaN.
@@ -36,7 +34,9 @@ def poisson_change_p(
     >>> float(poisson_change_p(2, 1000, 8, 1000))  # 2 * P(Bin(10, 1/2) >= 8) = 2 * 56/1024
     0.109375
     """
-    n1, b1, n2, b2 = np.broadcast_arrays(*(np.asarray(a, dtype=np.float64) for a in (n1, b1, n2, b2)))
+    n1, b1, n2, b2 = np.broadcast_arrays(
+        *(np.asarray(a, dtype=np.float64) for a in (n1, b1, n2, b2))
+    )
     with np.errstate(invalid="ignore"):
         ok = (
             np.isfinite(n1) & np.isfinite(n2) & np.isfinite(b1) & np.isfinite(b2)
@@ -54,9 +54,7 @@ def poisson_change_p(
     return out
 
 
-def moe_change_p(
-    v1: np.ndarray, se1: np.ndarray, v2: np.ndarray, se2: np.ndarray
-) -> np.ndarray:
+def moe_change_p(v1: np.ndarray, se1: np.ndarray, v2: np.ndarray, se2: np.ndarray) -> np.ndarray:
     """Two-sided normal p-value of ``v2 - v1`` with independent standard errors ``se1``, ``se2``.
 
     A zero combined standard error gives p = 0 for a change and 1 for none; NaN gives NaN.

@@ -119,7 +119,7 @@ class ClusterOptions:
         if self.statistic == "gi-star":
             return "analytical normal p-values"
         if self.p_value == "normal":
-            return "normal approximation from the exact conditional-permutation mean and variance"
+            return "normal p from the exact permutation mean and variance"
         return f"{self.permutations} conditional permutations (seed {self.seed})"
 
 
@@ -290,7 +290,7 @@ def _empty_periods(
                 reasons.append(
                     f"with {opt.permutations} permutations no p-value can go below {floor:.3g}, "
                     f"too coarse for {m} tests under {opt.correction}; "
-                    "use p_value = \"normal\" or more permutations"
+                    'use p_value = "normal" or more permutations'
                 )
         if not reasons:
             reasons.append(
@@ -363,7 +363,7 @@ def analyse_clusters(
                 "clusters-eb-standardised",
                 f"local and global statistics use {inputs}, so a small base cannot dominate a "
                 f"period; the change and the trends use {trend_input}; "
-                "set [clusters] standardise = \"none\" for the rates as mapped",
+                'set [clusters] standardise = "none" for the rates as mapped',
             )
         )
 

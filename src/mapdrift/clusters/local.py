@@ -382,7 +382,10 @@ def _permutation_p(
         ok_cols = ~np.isnan(Z).all(axis=0)
         draws = draw_neighbour_sets(len(gidx), int(gcard.max()), permutations, [seed, gi])
         ge, le = _conditional_counts(
-            W, np.nan_to_num(Z[:, ok_cols]), np.nan_to_num(lagall[np.ix_(gidx, gcols)][:, ok_cols]), draws
+            W,
+            np.nan_to_num(Z[:, ok_cols]),
+            np.nan_to_num(lagall[np.ix_(gidx, gcols)][:, ok_cols]),
+            draws,
         )
         p = _two_sided(ge, le, permutations)
         p[gcard == 0] = np.nan
