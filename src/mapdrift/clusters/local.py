@@ -193,17 +193,18 @@ def _shared_counts(
     kt: np.ndarray,
     lag: np.ndarray,
     draws: np.ndarray,
-    extra: int,
+    rng: np.random.Generator,
 ) -> tuple[np.ndarray, np.ndarray]:
     """ge/le counts when periods miss different cells, with one table of draws for all.
 
     ``B`` binary neighbours over the ``n`` units with a value in some period; ``present``
     ``[n, T]``; ``kt`` ``[n, T]`` neighbours with a value; ``Z`` standardised per period over
-    the present units (0 elsewhere). Unit ``i`` in period ``t`` takes the first ``kt`` draws
-    that have a value in ``t`` (``extra`` spare draws per row: at least as many as any period
-    misses, so there are always enough). Rows whose first ``k`` draws all have values in every
-    period (nearly all of them) are summed as in :func:`_conditional_counts`; the few others
-    are summed again, cell by cell, vectorised.
+    the present units (0 elsewhere). Unit ``i`` in period ``t`` takes the first ``kt`` draws of
+    its row that have a value in ``t`` (``draws`` has a few spare columns). Cells whose first
+    ``kt`` draws all have a value (nearly all of them) are summed as in
+    :func:`_conditional_counts`, a running sum serving every ``kt``; the few others are summed
+    again cell by cell, vectorised, and the very rare cell without enough valid spare draws
+    gets a fresh draw from ``rng``.
     """
     n, T = Z.shape
     perms = draws.shape[0]
@@ -217,33 +218,46 @@ def _shared_counts(
         if k == 0:
             continue
         units = np.flatnonzero(card == k)
-        slots = min(k + extra, draws.shape[1])
+        slots = min(k + draws.shape[1] - int(card.max()), draws.shape[1])
         dk = draws[:, :slots]
         b = max(1, _BLOCK // (perms * max(T, slots)))
         for s in range(0, len(units), b):
             u = units[s : s + b]
+            ku = kt[u]  # [b, T]
             idx = dk[None, :, :] + (dk[None, :, :] >= u[:, None, None])  # [b, P, slots]
+            sb, st = np.nonzero((ku < k) & (ku > 0))  # a neighbour without a value
+            partial = np.zeros((len(sb), perms))
             acc = Zf[idx[:, :, 0]]
             for j in range(1, k):
+                take = ku[sb, st] == j
+                if take.any():
+                    partial[take] = acc[sb[take], :, st[take]]
                 acc += Zf[idx[:, :, j]]
-            # cells to redo: a draw among the first k lacks a value somewhere, or the unit
-            # itself has fewer neighbours with values in that period
-            bad_row = missing_any[idx[:, :, :k]].any(axis=2)  # [b, P]
-            short = kt[u] < k  # [b, T]
-            redo = bad_row[:, :, None] | short[:, None, :]
-            bi, ri, ti = np.nonzero(redo)
+            if len(sb):
+                acc[sb, :, st] = partial
+            # cells to redo: one of the first k draws has no value in that period
+            br, rr = np.nonzero(missing_any[idx[:, :, :k]].any(axis=2))
+            hit = np.zeros((len(br), T), dtype=bool)
+            for j in range(k):
+                hit |= ~present[idx[br, rr, j]]
+            hc, ti = np.nonzero(hit)
+            bi, ri = br[hc], rr[hc]
             if len(bi):
                 total = np.zeros(len(bi))
                 seen = np.zeros(len(bi), dtype=np.int64)
-                need = kt[u[bi], ti]
+                need = ku[bi, ti]
                 for j in range(slots):
                     d = idx[bi, ri, j]
                     ok = present[d, ti] & (seen < need)
                     total += np.where(ok, Zf[d, ti], 0.0)
                     seen += ok
+                for c in np.flatnonzero(seen < need):  # rare: too few spare draws
+                    pool = np.flatnonzero(present[:, ti[c]])
+                    pool = pool[pool != u[bi[c]]]
+                    total[c] = Zf[rng.choice(pool, size=need[c], replace=False), ti[c]].sum()
                 acc[bi, ri, ti] = total
             with np.errstate(invalid="ignore", divide="ignore"):
-                acc /= kt[u][:, None, :]
+                acc /= ku[:, None, :]
             acc *= Zf[u][:, None, :]
             o = obs[u][:, None, :]
             ge[u] = (acc >= o - _TIE).sum(axis=1)
@@ -345,7 +359,7 @@ def _permutation_p(
     n = len(idx)
     present = present_all[np.ix_(idx, cols)]
     missing = (~present).sum(axis=0)
-    extra = int(missing.max())
+    extra = min(int(missing.max()), 4)  # spare draws per row for draws without a value
     Wu = weights.W[idx][:, idx].tocsr()
     B = Wu.copy()
     B.data[:] = 1.0
@@ -364,7 +378,8 @@ def _permutation_p(
         kt = (B @ present.astype(np.int64)).astype(np.int64)
         kt = np.asarray(kt)
         draws = draw_neighbour_sets(n, k_max + extra, permutations, seed)
-        ge, le = _shared_counts(B, Z, present, kt, lag, draws, extra)
+        rng = np.random.default_rng([seed, 1])
+        ge, le = _shared_counts(B, Z, present, kt, lag, draws, rng)
         p = _two_sided(ge, le, permutations)
         bad = ~present | (kt == 0) | np.isnan(Zall[np.ix_(idx, cols)])
         p[bad] = np.nan
