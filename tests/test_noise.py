@@ -274,15 +274,20 @@ def test_trends_use_smoothed_rates_and_say_so(synthetic):
     assert "EB standardised" in cl.method_text
 
 
-def test_without_counts_jumps_are_said_untested(synthetic):
+def test_without_counts_jumps_are_said_untested(synthetic, tmp_path):
     s, classes, _, _ = synthetic
     from dataclasses import replace
+
+    from mapdrift.changes import write_changes
 
     rates_only = replace(s.panel, numerator=None, denominator=None)
     ch = analyse_changes(rates_only, classes, ChangeOptions(spatial=False))
     assert not ch.tested and "not tested against noise" in ch.noise_text
     assert (ch.jumps["credible"] == "").all()
     assert any(f.code == "changes-noise-test" and f.level == "warning" for f in ch.findings)
+    write_changes(ch, tmp_path, units_table=False)
+    first = (tmp_path / "jumps.csv").read_text(encoding="utf-8").splitlines()[0]
+    assert first.startswith("# ") and "not tested against noise" in first
     # with ACS-style margins of error (90 %: se = moe / 1.645, US Census Bureau ACS handbook,
     # from memory) the jumps are tested after all
     moe = np.full(rates_only.values.shape, 1.645)

@@ -335,7 +335,7 @@ def _step_changes(state: RunState) -> str:
             f"{up} units up, {down} down first to last; {n_jump} units jumped {opt.jump}+ "
             "classes (not tested against noise: no counts)"
         )
-    noise = int((result.units["n_noise_moves"] > 0).sum())
+    noise = int(((result.units["n_noise_moves"] > 0) & ~result.units["jump"]).sum())
     return (
         f"{up} units up, {down} down first to last; {n_jump} units credibly jumped {opt.jump}+ "
         f"classes ({noise} more moved within count noise)"
