@@ -264,6 +264,9 @@ def test_old_behaviour_reachable_and_explained(synthetic):
         and not ((old.codes[:, t] == 0) | (old.codes[:, t] == 1)).any()
     )
     assert all("permutations" in f.message for f in empty)
+    # the case: one filing on ten parcels (rate 100 against a median near 5) is named
+    spike = [f for f in empty if f.message.startswith(f"{s.years[s.spike_year]}:")]
+    assert spike and str(s.tiny) in spike[0].units and "base 10" in spike[0].message
     assert n_hh.sum() <= ((s.panel.values > 0).sum())  # it ran; the count is whatever it is
 
 

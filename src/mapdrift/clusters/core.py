@@ -275,8 +275,9 @@ def _empty_periods(
                 if counts and panel.denominator is not None:
                     base = f", base {panel.denominator[i, t]:,.0f}"
                 who.append(f"{panel.units[i]} ({share[i]:.0%} of the period's variance{base})")
+            verb = "dominates" if len(big) == 1 else "dominate"
             reasons.append(
-                f"{plural(len(big), 'unit')} far from the rest dominate the period's variance: "
+                f"{plural(len(big), 'unit')} far from the rest {verb} the period's variance: "
                 f"{', '.join(who)}"
                 + (
                     "; with counts, the default EB standardisation guards against this"
