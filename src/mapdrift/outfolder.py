@@ -11,9 +11,10 @@ when every step succeeded. The rules that keep users' files safe:
   by the kernel if the run dies) makes a second run into the same folder stop at once.
 - The check is repeated at swap time, after ``out`` was renamed aside to ``.<out>.old-<pid>``,
   so a file added to ``out`` during the run stops the swap and ``out`` is put back.
-- The old folder's ``manifest.json`` is deleted first when it is thrown away, so an intact
-  ``.old-*`` folder (with its manifest) always means an interrupted swap: the next run
-  (:func:`recover`) renames it back when ``out`` is missing and reports it otherwise. Staging
+- The new run's manifest names the folder the earlier run is set aside as (``"replaces"``),
+  and the set-aside folder's ``manifest.json`` is deleted first when it is thrown away. So the
+  next run (:func:`recover`) can tell an interrupted swap (set-aside run intact, ``out``
+  missing: renamed back) from a finished one (removed); anything else is reported, not touched. Staging
   folders of killed runs are removed, after stopping any encoder still writing into them.
 """
 
@@ -38,6 +39,7 @@ __all__ = [
     "check_replaceable",
     "lock_out",
     "recover",
+    "set_aside_for",
     "staging_for",
     "swap_in",
 ]
@@ -54,7 +56,8 @@ def staging_for(out: Path) -> Path:
     return out.with_name(f".{out.name}.partial-{os.getpid()}")
 
 
-def _old_for(out: Path) -> Path:
+def set_aside_for(out: Path) -> Path:
+    """Where this process sets an earlier run aside while swapping in a new one."""
     return out.with_name(f".{out.name}.old-{os.getpid()}")
 
 
@@ -66,15 +69,21 @@ def _inside(path: Path, folder: Path) -> bool:
     return True
 
 
-def _manifest_outputs(folder: Path) -> dict[str, tuple[str, int]] | None:
-    """``{relative path: (sha256, bytes)}`` from ``folder``'s manifest, or None if not ours."""
+def _manifest_doc(folder: Path) -> dict:
+    """``folder``'s manifest as a dict; empty when missing, unreadable or not ours."""
     from mapdrift.brief.manifest import MANIFEST_FORMAT
 
     try:
         doc = json.loads((folder / MANIFEST).read_text(encoding="utf-8"))
     except (OSError, ValueError):
-        return None
-    if not isinstance(doc, dict) or doc.get("format") != MANIFEST_FORMAT:
+        return {}
+    return doc if isinstance(doc, dict) and doc.get("format") == MANIFEST_FORMAT else {}
+
+
+def _manifest_outputs(folder: Path) -> dict[str, tuple[str, int]] | None:
+    """``{relative path: (sha256, bytes)}`` from ``folder``'s manifest, or None if not ours."""
+    doc = _manifest_doc(folder)
+    if not doc:
         return None
     out: dict[str, tuple[str, int]] = {}
     for entry in doc.get("outputs", []):
@@ -241,8 +250,9 @@ def recover(out: Path) -> list[str]:
     Stale ``.<out>.partial-*`` staging folders are removed (encoders still writing into them
     are stopped first). An intact ``.<out>.old-*`` folder (one with its manifest) is an earlier
     run set aside by a swap that was cut short: it is renamed back to ``out`` when ``out`` is
-    missing, and reported (left alone) otherwise. An ``.old-*`` folder without a manifest was
-    already being deleted after a finished swap and is removed.
+    missing, and reported (left alone) otherwise. An ``.old-*`` folder that ``out``'s manifest
+    names as the run it replaced (``"replaces"``), or one whose manifest was already deleted,
+    belongs to a swap that finished: it is removed.
     """
     out = Path(out)
     done: list[str] = []
@@ -260,7 +270,8 @@ def recover(out: Path) -> list[str]:
     for old in sorted(parent.glob(f".{out.name}.old-*")):
         if not old.is_dir():
             continue
-        if (old / MANIFEST).exists():
+        replaced_by_out = _manifest_doc(out).get("replaces") == old.name
+        if (old / MANIFEST).exists() and not replaced_by_out:
             if not out.exists():
                 os.replace(old, out)
                 done.append(f"restored {out} from {old.name}: a run was killed while replacing it")
@@ -272,7 +283,7 @@ def recover(out: Path) -> list[str]:
                 log.warning(done[-1])
         else:
             shutil.rmtree(old, ignore_errors=True)
-            done.append(f"removed {old.name}, an earlier run half deleted by a killed run")
+            done.append(f"removed {old.name}, an earlier run a killed run had replaced")
     return done
 
 
@@ -305,7 +316,7 @@ def swap_in(staging: Path, out: Path, inputs: Iterable[Path], *, force: bool) ->
                 ) from None
             return
         check_replaceable(out, inputs, force=force, when=" (at the end of the run)")
-        old = _old_for(out)
+        old = set_aside_for(out)
         os.rename(out, old)
         reasons = blockers(old)
         if reasons:  # something arrived between the check and the rename: put it back

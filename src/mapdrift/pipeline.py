@@ -105,6 +105,11 @@ def prepare_out(out: Path, *, force: bool, inputs: list[Path] | None = None) -> 
     ``force``)."""
     from mapdrift.outfolder import check_replaceable
 
+    _check_target(out)
+    check_replaceable(out, inputs or [], force=force)
+
+
+def _check_target(out: Path) -> None:
     here = Path.cwd().resolve()
     target = out.resolve()
     if target == here or target in here.parents:
@@ -120,7 +125,6 @@ def prepare_out(out: Path, *, force: bool, inputs: list[Path] | None = None) -> 
             f"--out {out}: cannot write in {existing} (permission denied); choose a folder you "
             "can write to"
         )
-    check_replaceable(out, inputs or [], force=force)
 
 
 # ------------------------------------------------------------------------------------------
@@ -475,7 +479,7 @@ STEPS: list[tuple[str, Callable[[RunState], str]]] = [
 ]
 
 
-def _manifest(state: RunState) -> None:
+def _manifest(state: RunState, replaces: str | None = None) -> None:
     from mapdrift.brief.manifest import write_manifest
 
     c = state.classes
@@ -513,6 +517,7 @@ def _manifest(state: RunState) -> None:
         findings=state.findings,
         timings=state.timings,
         summaries=state.summaries,
+        replaces=replaces,
     )
 
 
@@ -554,27 +559,27 @@ def run(
     it starts (the CLI shows a spinner with it). ``out`` is checked before any work and again
     at the swap (see :mod:`mapdrift.outfolder`); leftovers of killed runs are cleaned first.
     """
-    from mapdrift.outfolder import lock_out, recover, staging_for, swap_in
+    from mapdrift.outfolder import lock_out, recover, set_aside_for, staging_for, swap_in
 
     run_spec: RunSpec = merge(RunSpec, config.section("run"), {})
     out = Path(out or run_spec.out or default_out(config))
     inputs = run_inputs(config)
-    prepare_out(out, force=force, inputs=inputs)  # fail fast, before any work
+    _check_target(out)
     out.parent.mkdir(parents=True, exist_ok=True)
     with lock_out(out), _terminate_as_exit():
-        recovered = recover(out)
+        recovered = recover(out)  # leftovers of killed runs first: it may restore `out`
         for line in recovered:
             log.warning(line)
             if progress is not None:
                 progress(f"{'recover':<10} {line}")
-        prepare_out(out, force=force, inputs=inputs)  # again: recovery may restore a run
+        prepare_out(out, force=force, inputs=inputs)  # before any work
         staging = staging_for(out)
         staging.mkdir(parents=True)
         try:
             state = RunState(config=config, staging=staging, run=run_spec)
             state.findings += [Finding("warning", "out-recovered", m) for m in recovered]
             _run_steps(state, out, steps, progress, on_start)
-            _manifest(state)
+            _manifest(state, replaces=set_aside_for(out).name if out.exists() else None)
             swap_in(staging, out, inputs, force=force)
         finally:
             shutil.rmtree(staging, ignore_errors=True)
