@@ -9,6 +9,7 @@ from typing import Any, Optional
 import typer
 
 from mapdrift.cli._app import command
+from mapdrift.cli._data import load_data, summarise
 from mapdrift.cli._options import input_options
 from mapdrift.cli._print import echo, print_findings
 
@@ -95,7 +96,6 @@ def clusters(
     from mapdrift.clusters import ClusterOptions, analyse_clusters, write_clusters
     from mapdrift.config import merge
     from mapdrift.outputs import check_free
-    from mapdrift.panel import load_panel
 
     flags = {
         "weights": weights,
@@ -118,9 +118,27 @@ def clusters(
     from mapdrift.brief.pictures import CLUSTER_PICTURES, cluster_pictures
 
     check_free([out / n for n in (*_table_names(), *(CLUSTER_PICTURES if maps else ()))], force)
-    panel = load_panel(inputs)
-    result = analyse_clusters(panel, None, options)
-    written = write_clusters(result, out, force=force)
+    w: Any = None
+    smooth = None
+    if options.smooth and inputs.view:
+        # smoothing works on counts: smooth first, then rescale (analyse_clusters would smooth
+        # the counts again and lose the view)
+        from dataclasses import replace
+
+        from mapdrift.rates import smooth_panel
+        from mapdrift.weights import build_weights
+
+        def smooth(raw: Any) -> Any:
+            nonlocal w
+            w = build_weights(raw.geometry, options.weights, islands=options.islands,
+                              cache_dir=options.cache_dir, units=raw.units)  # fmt: skip
+            return smooth_panel(raw, options.smooth, weights=w)
+
+    panel = summarise(load_data(inputs, smooth=smooth), view=inputs.view)
+    if smooth is not None:
+        options = replace(options, smooth=None)
+    result = analyse_clusters(panel, None, options, weights=w)
+    written = write_clusters(result, out, force=force, warning=panel.meta.view or None)
     if maps:
         written += cluster_pictures(result, panel, out, force=True)  # checked above
     g = result.global_moran
