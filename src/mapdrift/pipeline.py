@@ -350,6 +350,8 @@ def _step_changes(state: RunState) -> str:
 
     opt = state.section(ChangeOptions, "changes")
     panel, classes = state.panel, state.classes
+    if opt.persist > panel.n_periods:  # "the last 3 periods" with 2: all there are
+        opt = replace(opt, persist=panel.n_periods)
     if opt.relative:
         cs: ClassSpec = state.section(ClassSpec, "classes")
         panel = relative_panel(panel, opt.relative)
@@ -386,6 +388,8 @@ def _step_clusters(state: RunState) -> str:
 
     opt = state.section(ClusterOptions, "clusters")
     opt = replace(opt, smooth=None)  # smoothing, when asked, was applied to the panel already
+    if opt.persist > state.panel.n_periods:  # "steady for 3 periods" with 2: all there are
+        opt = replace(opt, persist=state.panel.n_periods)
     result = analyse_clusters(state.panel, state.classes, opt, weights=_weights(state))
     state.results["clusters"] = result
     state.findings += [f for f in result.findings if f not in state.findings]

@@ -112,6 +112,8 @@ def changes(
         panel = relative_panel(panel, options.relative)
     cls = classify_spec(panel, classes)
     panel = summarise(panel, cls, view="relative" if options.relative else inputs.view)
+    if options.persist > panel.n_periods:  # "the last 3 periods" with 2: all there are
+        options = replace(options, persist=panel.n_periods)
     result = analyse_changes(panel, cls, options)
     if panel.meta.view:  # every table says which view its values are in
         result = replace(

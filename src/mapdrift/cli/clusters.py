@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
 from enum import Enum
 from pathlib import Path
 from typing import Any, Optional
@@ -123,8 +124,6 @@ def clusters(
     if options.smooth and inputs.view:
         # smoothing works on counts: smooth first, then rescale (analyse_clusters would smooth
         # the counts again and lose the view)
-        from dataclasses import replace
-
         from mapdrift.rates import smooth_panel
         from mapdrift.weights import build_weights
 
@@ -137,10 +136,20 @@ def clusters(
     panel = summarise(load_data(inputs, smooth=smooth), view=inputs.view)
     if smooth is not None:
         options = replace(options, smooth=None)
+    if options.persist > panel.n_periods:  # "steady for 3 periods" with 2: all there are
+        options = replace(options, persist=panel.n_periods)
     result = analyse_clusters(panel, None, options, weights=w)
     written = write_clusters(result, out, force=force, warning=panel.meta.view or None)
     if maps:
-        written += cluster_pictures(result, panel, out, force=True)  # checked above
+        written += cluster_pictures(
+            result, panel, out, force=True, trends=panel.n_periods >= max(options.min_periods, 3)
+        )  # checked above
+    need = max(options.min_periods, 3)
+    if panel.n_periods < need:  # said once; the trend map is left out, trends.csv says why
+        echo(
+            f"trends: {panel.n_periods} periods are too few for a trend per unit (need {need}); "
+            "no trend map"
+        )
     g = result.global_moran
     echo(
         f"{options.statistic}, {result.weights.kind} weights, {options.permutations} permutations, seed {options.seed}"
