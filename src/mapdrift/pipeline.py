@@ -52,6 +52,25 @@ class RunState:
     timings: dict[str, float] = field(default_factory=dict)
     summaries: dict[str, str] = field(default_factory=dict)
     notices: list[str] = field(default_factory=list)
+    inputs: Any = None
+
+    @property
+    def view(self) -> str:
+        """The line naming the values' view ('' for values as read)."""
+        return self.panel.meta.view if self.panel is not None else ""
+
+    @property
+    def csv_note(self) -> str | None:
+        """The ``# `` first line of every table: the notice, then the view."""
+        return " ".join(x for x in (self.notice, self.view) if x) or None
+
+    @property
+    def trends_skipped(self) -> bool:
+        """Too few periods for per-unit trends: no trend map, slide or sentences."""
+        from mapdrift.clusters import ClusterOptions
+
+        need = max(self.section(ClusterOptions, "clusters").min_periods, 3)
+        return self.panel is not None and self.panel.n_periods < need
 
     def path(self, name: str) -> Path:
         p = self.staging / name
@@ -138,7 +157,12 @@ def _step_load(state: RunState) -> str:
         inputs["crosswalk"] = state.run.crosswalk
     if "geometry" not in inputs:
         raise ConfigError(f'{state.config.path}: [inputs] needs geometry = "<polygon layer>"')
-    state.panel = load_panel(merge(InputSpec, inputs, {}))
+    if inputs.get("view") and state.config.path is not None:
+        from mapdrift.views import resolve_view  # a deflator file is relative to the config
+
+        inputs["view"] = resolve_view(inputs["view"], state.config.path.parent)
+    state.inputs = merge(InputSpec, inputs, {})
+    state.panel = load_panel(state.inputs)
     state.findings += state.panel.findings
     p = state.panel
     return (
@@ -176,6 +200,17 @@ def _step_smooth(state: RunState) -> str:
     state.findings.append(state.panel.findings[-1])
     state.notices.append(f"Rates smoothed ({opt.smooth}) before mapping and statistics.")
     return f"{opt.smooth} smoothing applied to maps and statistics"
+
+
+def _step_view(state: RunState) -> str:
+    from mapdrift.views import apply_view, parse_view
+
+    view = parse_view(state.inputs.view)
+    if view.is_raw:
+        return "values as read (no view)"
+    state.panel = apply_view(state.panel, view, spec=state.inputs)
+    state.findings.append(state.panel.findings[-1])
+    return state.panel.meta.view
 
 
 def _previous_breaks(state: RunState) -> Path | None:
@@ -216,6 +251,24 @@ def _step_classify(state: RunState) -> str:
     classes = classify_spec(state.panel, cs, breaks_file=breaks_file, reused_from=reused_from)
     state.classes = classes
     state.findings += classes.findings
+    if not classes.per_period:
+        from mapdrift.views import common_trend
+
+        trend = common_trend(state.panel, classes.codes, k=classes.k, view=state.inputs.view)
+        if trend is not None:
+            state.findings.append(trend)
+    if state.trends_skipped:
+        from mapdrift.clusters import ClusterOptions
+
+        need = max(state.section(ClusterOptions, "clusters").min_periods, 3)
+        state.findings.append(
+            Finding(
+                "note",
+                "trends-skipped",
+                f"{plural(state.panel.n_periods, 'period')}: per-unit trends need at least "
+                f"{need}, so the trend map, trend slide and trend sentences are left out",
+            )
+        )
     if classes.per_period:
         state.notices.insert(0, classes.warning)
         write_text(
@@ -328,6 +381,8 @@ def _step_changes(state: RunState) -> str:
 
     opt = state.section(ChangeOptions, "changes")
     panel, classes = state.panel, state.classes
+    if opt.persist > panel.n_periods:  # "the last 3 periods" with 2: all there are
+        opt = replace(opt, persist=panel.n_periods)
     if opt.relative:
         cs: ClassSpec = state.section(ClassSpec, "classes")
         panel = relative_panel(panel, opt.relative)
@@ -346,6 +401,8 @@ def _step_changes(state: RunState) -> str:
     result = analyse_changes(
         panel, classes, opt, weights=_weights(state) if opt.spatial and same_weights else None
     )
+    if state.view:  # every table says which view its values are in
+        result = replace(result, warning=" ".join(x for x in (result.warning, state.view) if x))
     state.results["changes"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_changes(result, state.staging, units_table=False)
@@ -362,13 +419,17 @@ def _step_clusters(state: RunState) -> str:
 
     opt = state.section(ClusterOptions, "clusters")
     opt = replace(opt, smooth=None)  # smoothing, when asked, was applied to the panel already
+    if opt.persist > state.panel.n_periods:  # "steady for 3 periods" with 2: all there are
+        opt = replace(opt, persist=state.panel.n_periods)
     result = analyse_clusters(state.panel, state.classes, opt, weights=_weights(state))
     state.results["clusters"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
-    write_clusters(result, state.staging)
-    cluster_pictures(result, state.panel, state.staging)
+    write_clusters(result, state.staging, warning=state.view or None)
+    cluster_pictures(result, state.panel, state.staging, trends=not state.trends_skipped)
     last = result.period_labels[-1]
     hh = int((result.codes[:, -1] == 0).sum())
+    if state.trends_skipped:
+        return f"{hh} units high-high in {last}; trends skipped (too few periods)"
     sig = int(result.trend.significant.sum())
     trend_sig = result.significance.replace("per period", "across units")
     return f"{hh} units high-high in {last}; {sig} significant trends ({trend_sig})"
@@ -391,7 +452,7 @@ def _step_units(state: RunState) -> str:
     extra["small_base"] = [u in small for u in state.panel.units]
     df = units_table(state.panel, state.classes, extra)
     state.results["units"] = df
-    write_csv(df, state.path("units.csv"), warning=state.notice)
+    write_csv(df, state.path("units.csv"), warning=state.csv_note)
     formats = state.section(BriefSpec, "brief").formats
     if "gpkg" in formats:
         write_units_gpkg(df, state.panel.geometry, state.path("units.gpkg"))
@@ -404,7 +465,7 @@ def _step_whatsnew(state: RunState) -> str:
     if state.run.previous is None:
         return "no previous run given"
     from mapdrift.atomic import write_text
-    from mapdrift.brief.whatsnew import compare_runs, previous_name
+    from mapdrift.brief.whatsnew import compare_runs
 
     ch = state.results.get("changes")
     cl = state.results.get("clusters")
@@ -419,7 +480,7 @@ def _step_whatsnew(state: RunState) -> str:
     state.results["whatsnew"] = wn
     write_text(
         state.path("whats_new.json"),
-        json.dumps({"previous": previous_name(wn.previous), "news": wn.bullets()}, indent=2) + "\n",
+        json.dumps(wn.to_json(), indent=2, ensure_ascii=False) + "\n",
     )
     return (
         f"{plural(len(wn.new_jumps), 'new jump')}, {plural(len(wn.cluster_events), 'new cluster event')}, "
@@ -468,6 +529,7 @@ def _step_brief(state: RunState) -> str:
 STEPS: list[tuple[str, Callable[[RunState], str]]] = [
     ("load", _step_load),
     ("smooth", _step_smooth),
+    ("view", _step_view),
     ("classify", _step_classify),
     ("changes", _step_changes),
     ("clusters", _step_clusters),
@@ -489,6 +551,7 @@ def _manifest(state: RunState, replaces: str | None = None) -> None:
         "units": state.panel.n_units if state.panel is not None else 0,
         "breaks": [b.to_dict() for b in c.breaks] if c is not None else [],
         "notice": state.notice,
+        "view": state.view or "values as read",
     }
     cl = state.results.get("clusters")
     if cl is not None:
