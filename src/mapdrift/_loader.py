@@ -80,6 +80,8 @@ class Table:
 class Long:
     """One row per (unit, period): ``id``, ``period_text`` and value columns ``roles``.
 
+    After the ids stage the frame holds ``uid`` (each row's position in ``ids``, the distinct
+    normalised IDs) instead of ``id``: string work is done once per distinct ID, not per row.
     After the periods stage, ``period`` holds each row's column in ``periods``.
     """
 
@@ -88,6 +90,12 @@ class Long:
     columns: dict[str, str]  # period text -> the wide column it came from (for messages)
     periods: tuple[Any, ...] = ()
     labels: tuple[str, ...] = ()
+    ids: np.ndarray | None = None
+
+    def row_ids(self) -> np.ndarray:
+        """Each row's ID (object array)."""
+        assert self.ids is not None
+        return self.ids[self.frame["uid"].to_numpy()]
 
 
 def _column(df: pd.DataFrame, col: str, where: Any, flag: str) -> str:
@@ -312,14 +320,10 @@ def long_stage(table: Table, spec: InputSpec) -> Long:
         p_col = _column(df, spec.period, where, "--period")
         cols = {"value": spec.value} if spec.value else roles
         cols = {r: _column(df, c, where, "--value" if r == "value" else _FLAGS[r]) for r, c in cols.items()}
-        long = pd.DataFrame(
-            {
-                "id": df[table.id_col].to_numpy(),
-                "period_text": df[p_col].to_numpy(),
-                **{r: df[c].to_numpy() for r, c in cols.items()},
-            }
+        long = df[[table.id_col, p_col, *cols.values()]].set_axis(
+            ["id", "period_text", *cols.keys()], axis=1
         )
-        return Long(long, tuple(cols), {})
+        return Long(long.reset_index(drop=True), tuple(cols), {})
     patterns = {"value": spec.columns} if spec.columns else (dict(roles) or {"value": ""})
     parts = []
     col_of: dict[str, str] = {}
@@ -333,9 +337,9 @@ def long_stage(table: Table, spec: InputSpec) -> Long:
         n = len(df)
         block = pd.DataFrame(
             {
-                "id": np.tile(df[table.id_col].to_numpy(), len(cols)),
+                "id": pd.concat([df[table.id_col]] * len(cols), ignore_index=True),
                 "period_text": np.repeat(np.array(list(cols.values()), dtype=object), n),
-                role: np.concatenate([df[c].to_numpy(dtype=object) for c in cols]) if cols else [],
+                role: pd.concat([df[c] for c in cols], ignore_index=True),
             }
         )
         parts.append(block.set_index(["id", "period_text"]) if len(patterns) > 1 else block)
@@ -350,20 +354,30 @@ def long_stage(table: Table, spec: InputSpec) -> Long:
 
 # -- stage 3: ids -------------------------------------------------------------------------------
 def ids_stage(long: Long, layer: Layer, spec: InputSpec, where: str, pad: bool, findings: list[Finding]) -> Long:
-    """Normalise the table's IDs, count rows without one, zero-pad to the layer's width."""
+    """Normalise the table's IDs, count rows without one, zero-pad to the layer's width.
+
+    The work is done once per distinct ID; rows keep an integer code (``uid``).
+    """
+    import pandas as pd
+
     f = long.frame
-    ids = normalise(f["id"])
-    blank = ids == ""
+    codes, uniq = pd.factorize(f["id"], use_na_sentinel=True)
+    ids = normalise(pd.Series(np.asarray(uniq, dtype=object)))
+    if pad:
+        ids, pad_findings = pad_ids(ids, layer.ids, width=spec.id_width, where=where)
+        findings += pad_findings
+    # IDs equal after normalising ("6019", "6019.0") share one code
+    codes2, distinct = pd.factorize(pd.Series(np.append(ids, ""), dtype=object))
+    uid = np.where(codes >= 0, codes2[np.maximum(codes, 0)], codes2[-1])
+    distinct = np.asarray(distinct, dtype=object)
+    blank = distinct[uid] == ""
     if blank.any():  # rows that cannot be placed are counted, never dropped silently
         findings.append(
             Finding("warning", "ids-blank-rows", f"{where}: {plural(int(blank.sum()), 'row')} with no unit ID left out")
         )
-        ids, f = ids[~blank], f[~blank]
-    if pad:
-        ids, pad_findings = pad_ids(ids, layer.ids, width=spec.id_width, where=where)
-        findings += pad_findings
-    f = f.assign(id=ids)
-    return replace(long, frame=f)
+        f, uid = f[~blank], uid[~blank]
+    f = f.drop(columns="id").assign(uid=uid)
+    return replace(long, frame=f, ids=distinct)
 
 
 # -- stage 4: periods ---------------------------------------------------------------------------
@@ -437,7 +451,7 @@ def numbers_stage(long: Long, spec: InputSpec, table: Table, findings: list[Find
                 "read as 5,4 = 5.4 (pass --decimal . if that is wrong)",
             )
         )
-    ids = f["id"].to_numpy(dtype=object)
+    ids = long.row_ids()
     new = {}
     for r in long.roles:
         nums, fs = to_numbers(
@@ -455,15 +469,14 @@ def duplicates_stage(long: Long, spec: InputSpec, table: Table, findings: list[F
     import pandas as pd
 
     f = long.frame
-    id_codes, _ = pd.factorize(f["id"])
-    key = id_codes.astype(np.int64) * max(len(long.periods), 1) + f["period"].to_numpy()
+    key = f["uid"].to_numpy().astype(np.int64) * max(len(long.periods), 1) + f["period"].to_numpy()
     if not pd.Series(key).duplicated().any():
         return long
     keyed = pd.DataFrame({"key": key, **{r: f[r].to_numpy() for r in long.roles}})
     exact = keyed.duplicated(keep="first").to_numpy()
     if exact.any():
         ex = examples(
-            [f"{a}/{long.labels[b]}" for a, b in zip(f["id"].to_numpy()[exact][:5], f["period"].to_numpy()[exact][:5])],
+            [f"{a}/{long.labels[b]}" for a, b in zip(long.row_ids()[exact][:5], f["period"].to_numpy()[exact][:5])],
             total=False,
         )
         findings.append(
@@ -478,7 +491,8 @@ def duplicates_stage(long: Long, spec: InputSpec, table: Table, findings: list[F
     dup = pd.Series(key).duplicated(keep=False).to_numpy()
     if not dup.any():
         return replace(long, frame=f)
-    pairs = f.loc[dup, ["id", "period"]].drop_duplicates()
+    pairs = f.loc[dup, ["uid", "period"]].drop_duplicates()
+    pairs = pairs.assign(id=long.ids[pairs["uid"].to_numpy()])[["id", "period"]]
     shown = [f"{a}/{long.labels[b]}" for a, b in pairs.head(5).itertuples(index=False)]
     ex = examples(shown, total=False) + (f", ... ({len(pairs)} in all)" if len(pairs) > 5 else "")
     if spec.duplicates == "error":
@@ -489,7 +503,7 @@ def duplicates_stage(long: Long, spec: InputSpec, table: Table, findings: list[F
     if spec.duplicates not in ("first", "mean", "sum"):
         raise ConfigError(f"--duplicates {spec.duplicates!r} must be one of error, first, mean, sum")
     agg = {r: spec.duplicates for r in long.roles}
-    g = f.groupby(["id", "period"], as_index=False, sort=False).agg(agg | {"period_text": "first"})
+    g = f.groupby(["uid", "period"], as_index=False, sort=False).agg(agg | {"period_text": "first"})
     findings.append(
         Finding(
             "warning",
@@ -509,16 +523,21 @@ def crosswalk_stage(long: Long, layer: Layer, spec: InputSpec, counts: bool, fin
         return long
     from mapdrift.crosswalk import apply_crosswalk, read_crosswalk
 
+    import pandas as pd
+
     xw = read_crosswalk(spec.crosswalk)
+    assert long.ids is not None
     xw["from"], f_from = pad_ids(
-        xw["from"].to_numpy(object), long.frame["id"].to_numpy(object), width=None, where=spec.crosswalk.name
+        xw["from"].to_numpy(object), long.ids, width=None, where=spec.crosswalk.name
     )
     xw["to"], f_to = pad_ids(
         xw["to"].to_numpy(object), layer.ids, width=spec.id_width, where=spec.crosswalk.name
     )
-    f, xf = apply_crosswalk(long.frame, xw, list(long.roles), counts=counts, where=spec.crosswalk.name)
+    frame = long.frame.assign(id=long.row_ids()).drop(columns="uid")
+    f, xf = apply_crosswalk(frame, xw, list(long.roles), counts=counts, where=spec.crosswalk.name)
     findings += f_from + f_to + xf
-    return replace(long, frame=f)
+    uid, ids = pd.factorize(f["id"].to_numpy(object))
+    return replace(long, frame=f.drop(columns="id").assign(uid=uid), ids=np.asarray(ids, dtype=object))
 
 
 # -- stage 8: match to the layer ----------------------------------------------------------------
@@ -529,15 +548,19 @@ def match_stage(
     import pandas as pd
 
     f = long.frame
-    ids = f["id"].to_numpy(dtype=object)
-    rows = locate(ids, layer.ids)
+    assert long.ids is not None
+    uid = f["uid"].to_numpy()
+    present = np.zeros(len(long.ids), dtype=bool)
+    present[uid] = True  # distinct IDs that still have rows
+    where_in_layer = locate(long.ids, layer.ids)
+    rows = where_in_layer[uid]
     n = len(layer.ids)
     matched = np.zeros(n, dtype=bool)
-    matched[rows[rows >= 0]] = True
+    matched[where_in_layer[present & (where_in_layer >= 0)]] = True
     n_matched = int(matched.sum())
-    table_ids = pd.unique(ids)
+    table_ids = long.ids[present]
     only_mask = rows < 0
-    table_only = pd.unique(ids[only_mask]).tolist() if only_mask.any() else []
+    table_only = long.ids[present & (where_in_layer < 0)].tolist()
     if not table.from_layer and n_matched < 0.5 * n:
         hints = closest(table_only, layer.ids.tolist())
         hint = (

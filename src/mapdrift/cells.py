@@ -98,9 +98,22 @@ def _read_csv(path: Path, sep: str) -> pd.DataFrame:
 
     kw: dict[str, Any] = dict(dtype=str, keep_default_na=False, sep=sep, encoding="utf-8-sig")
     try:
-        import pyarrow  # noqa: F401
+        import pyarrow as pa
+        import pyarrow.csv as pacsv
 
-        return pd.read_csv(path, engine="pyarrow", **kw)
+        with path.open(encoding="utf-8-sig", newline="") as fh:
+            header = next(csv.reader(fh, delimiter=sep), [])
+        if header and len(set(header)) == len(header):
+            table = pacsv.read_csv(
+                path,
+                parse_options=pacsv.ParseOptions(delimiter=sep),
+                convert_options=pacsv.ConvertOptions(
+                    column_types={c: pa.string() for c in header}, strings_can_be_null=False
+                ),
+            )
+            df = table.to_pandas()
+            df.columns = header
+            return df.astype(str) if any(df.dtypes != df.dtypes.iloc[0]) else df
     except ImportError:
         pass
     except Exception:  # pyarrow is stricter on odd files; the C engine reads them or says why
