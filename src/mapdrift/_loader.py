@@ -31,7 +31,7 @@ from mapdrift.cells import decide_decimal, decimal_evidence, read_table, to_numb
 from mapdrift.errors import ConfigError, InputError
 from mapdrift.findings import Finding, examples, plural, raise_errors
 from mapdrift.geo import prepare_geometry, read_layer
-from mapdrift.ids import closest, locate, normalise, pad_ids
+from mapdrift.ids import closest, locate, normalise, pad_ids, zfill
 from mapdrift.panel import InputSpec, Panel, PanelMeta
 from mapdrift.periods import find_year, read_periods, spacing
 
@@ -158,7 +158,7 @@ def layer_stage(
     ids = normalise(gdf[id_col])
     if spec.id_width:
         digit = pd.Series(ids, dtype=object).str.fullmatch(r"\d+").fillna(False).to_numpy(bool)
-        ids[digit] = pd.Series(ids[digit], dtype=object).str.zfill(spec.id_width).to_numpy(object)
+        ids[digit] = zfill(ids[digit], spec.id_width)
     blank = np.flatnonzero(ids == "")
     if blank.size:
         raise InputError(
@@ -578,7 +578,7 @@ def match_stage(
         )
     if table_only:
         unmatched_layer = layer.ids[~matched]
-        hints = closest(table_only, (unmatched_layer if len(unmatched_layer) else layer.ids).tolist())
+        hints = closest(table_only, (unmatched_layer if len(unmatched_layer) else layer.ids).tolist(), n=5)
         hint = (
             " (closest layer IDs: " + ", ".join(f"{a} -> {b}?" for a, b in hints.items()) + ")"
             if hints
@@ -658,8 +658,11 @@ def _value_checks(
         )
 
 
-def _words(col: str | None) -> str:  # column names read as words in titles
-    return str(col).replace("_", " ").replace("*", "").strip()
+def _words(col: str | None) -> str:
+    """Column names (or patterns) read as words in titles: ``rate_*`` -> ``rate``,
+    ``HR(\\d+)`` -> ``HR``."""
+    text = re.sub(r"\(.*?\)", "", str(col)) if "(" in str(col) else str(col)
+    return text.replace("_", " ").replace("*", "").strip() or str(col)
 
 
 def _chain(

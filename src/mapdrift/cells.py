@@ -400,14 +400,18 @@ def to_numbers(
             commas = sum(c for m, c in markers.items() if "," in m and m.replace(",", "").isdigit())
             if commas:
                 by_marker += f"; {commas} look like decimal commas (pass --decimal , if the file writes 5,3)"
-        marker_units = tuple(pd.unique(np.asarray(ids, dtype=object)[marked & _not_blank(cells, numeric, codes, text)])) if ids is not None else ()
+        marker_units = (
+            pd.unique(np.asarray(ids, dtype=object)[marked & _not_blank(cells, numeric, codes, text)])
+            if ids is not None
+            else np.zeros(0, dtype=object)
+        )
         findings.append(
             Finding(
                 "warning" if any(m != "(blank)" for m in markers) else "note",
                 "values-not-numeric",
                 f"{where}: {n_marked} cells of {column!r} are not numbers and are treated as missing "
                 f"({by_marker}); suppressed or blank cells are shown as no data",
-                tuple(str(u) for u in marker_units),
+                tuple(np.asarray(marker_units).astype(str).tolist()),
             )
         )
     inf = np.isinf(out)
@@ -423,7 +427,11 @@ def to_numbers(
             vals, counts = np.unique(out[hit], return_counts=True)
             order = np.argsort(-counts, kind="stable")
             desc = ", ".join(f"{vals[i]:g} x{counts[i]}" for i in order)
-            units = tuple(str(u) for u in pd.unique(np.asarray(ids, dtype=object)[hit])) if ids is not None else ()
+            units = (
+                tuple(pd.unique(np.asarray(ids, dtype=object)[hit]).astype(str).tolist())
+                if ids is not None
+                else ()
+            )
             findings.append(
                 Finding(
                     "note",

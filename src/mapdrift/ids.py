@@ -20,7 +20,7 @@ from mapdrift.findings import Finding, examples, plural
 if TYPE_CHECKING:
     import pandas as pd
 
-__all__ = ["closest", "locate", "normalise", "normalise_ids", "pad_ids"]
+__all__ = ["closest", "locate", "normalise", "normalise_ids", "pad_ids", "zfill"]
 
 
 def normalise(values: Any) -> np.ndarray:
@@ -62,6 +62,18 @@ def normalise_ids(values: Iterable[object]) -> list[str]:
     return normalise(values).tolist()
 
 
+def zfill(ids: np.ndarray, width: int) -> np.ndarray:
+    """Zero-pad strings to ``width`` in C (numpy string ufuncs), as an object array.
+
+    >>> zfill(np.array(["6019", "12"], dtype=object), 5).tolist()
+    ['06019', '00012']
+    """
+    arr = np.asarray(ids, dtype=str)
+    strings = getattr(np, "strings", None)
+    padded = strings.zfill(arr, width) if strings is not None else np.char.zfill(arr, width)
+    return padded.astype(object)
+
+
 def _digits(ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(all-digit mask, lengths) of an object array of strings, vectorised."""
     import pandas as pd
@@ -98,7 +110,7 @@ def pad_ids(
         short = uniq[u_digit & (u_len < width)]
         if not len(short):
             return table, findings
-        padded = pd.Series(short, dtype=object).str.zfill(width)
+        padded = zfill(short, width)
         layer_index = pd.Index(layer)
         helps = layer_index.get_indexer(padded) >= 0
         helps &= layer_index.get_indexer(short) < 0
@@ -109,7 +121,7 @@ def pad_ids(
     if not len(changed):
         return table, findings
     fixed = uniq.copy()
-    fixed[short_mask] = pd.Series(uniq[short_mask], dtype=object).str.zfill(width).to_numpy(object)
+    fixed[short_mask] = zfill(uniq[short_mask], width)
     codes = pd.Index(uniq).get_indexer(table)
     out = fixed[codes]
     findings.append(
@@ -119,7 +131,7 @@ def pad_ids(
             f"{where}: {plural(len(changed), 'ID')} {'was' if len(changed) == 1 else 'were'} shorter than the layer's {width}-digit IDs and "
             f"were zero-padded (e.g. {examples([f'{c} -> {c.zfill(width)}' for c in changed[:4]], 3, total=False)}); "
             "they probably lost their leading zeros in a spreadsheet",
-            tuple(pd.Series(changed, dtype=object).str.zfill(width).tolist()),
+            tuple(zfill(changed, width).tolist()),
         )
     )
     return out, findings
