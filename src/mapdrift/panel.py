@@ -236,7 +236,7 @@ class Panel:
         >>> panel.periods, panel.values.tolist()
         ((2019, 2020), [[5.5, 6.0], [nan, 7.25]])
         >>> sorted(f.code for f in panel.findings)
-        ['ids-zero-padded', 'values-not-numeric']
+        ['ids-zero-padded', 'values-missing', 'values-not-numeric']
         """
         from mapdrift._loader import load_frames
 
