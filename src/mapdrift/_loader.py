@@ -27,7 +27,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from mapdrift.cells import decide_decimal, decimal_evidence, read_table, to_numbers
+from mapdrift.cells import decide_decimal, decimal_evidence, distinct, read_table, to_numbers
 from mapdrift.errors import ConfigError, InputError
 from mapdrift.findings import Finding, examples, plural, raise_errors
 from mapdrift.geo import prepare_geometry, read_layer
@@ -439,7 +439,8 @@ def numbers_stage(long: Long, spec: InputSpec, table: Table, findings: list[Find
         "num": spec.numerator,
         "den": spec.denominator,
     }
-    evidence = decimal_evidence({str(label[r]): f[r] for r in long.roles})
+    factorised = {r: distinct(f[r]) for r in long.roles}  # each column factorised once
+    evidence = decimal_evidence({str(label[r]): factorised[r] for r in long.roles})
     decimal = decide_decimal(evidence, where=table.where, sep=table.sep, given=spec.decimal)
     if decimal == "," and spec.decimal is None:
         findings.append(
@@ -455,7 +456,13 @@ def numbers_stage(long: Long, spec: InputSpec, table: Table, findings: list[Find
     new = {}
     for r in long.roles:
         nums, fs = to_numbers(
-            f[r], where=table.where, column=str(label[r]), missing_codes=spec.missing, ids=ids, decimal=decimal
+            factorised[r],
+            where=table.where,
+            column=str(label[r]),
+            missing_codes=spec.missing,
+            ids=ids,
+            decimal=decimal,
+            raw=f[r],
         )
         new[r] = nums
         findings += fs
@@ -790,11 +797,11 @@ def detect_zero_block(
         others = np.where(zeros | ~np.isfinite(values), np.nan, values)
         with np.errstate(all="ignore"), warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
-            unit_med = (
-                np.nanmedian(others, axis=1)
-                if np.isfinite(others).any()
-                else np.full(len(values), np.nan)
-            )
+            # the median is needed only for units with a zero (a partition of those rows only)
+            unit_med = np.full(len(values), np.nan)
+            rows = zeros.any(axis=1) & np.isfinite(others).any(axis=1)
+            if rows.any():
+                unit_med[rows] = np.nanmedian(others[rows], axis=1)
             unit_min = np.nanmin(np.where(np.isfinite(others), others, np.inf), axis=1)
         n_other = np.isfinite(others).sum(axis=1)
         if denominator is not None:

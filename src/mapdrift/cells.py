@@ -34,8 +34,10 @@ if TYPE_CHECKING:
 __all__ = [
     "TABLE_SUFFIXES",
     "DecimalEvidence",
+    "Distinct",
     "decide_decimal",
     "decimal_evidence",
+    "distinct",
     "need_pyarrow",
     "read_table",
     "sniff_separator",
@@ -204,9 +206,23 @@ def _has(s: pd.Series, ch: str) -> np.ndarray:
     return s.str.contains(ch, regex=False).fillna(False).to_numpy(dtype=bool)
 
 
+class Distinct(tuple):
+    """A column factorised once: ``(codes, distinct stripped texts, numeric)`` (see
+    :func:`distinct`); pass it to :func:`decimal_evidence` and :func:`to_numbers` in place of the
+    cells so that a column is factorised only once."""
+
+
+def distinct(cells: Any) -> Distinct:
+    """Factorise a column once for :func:`decimal_evidence` and :func:`to_numbers`."""
+    return Distinct(_distinct_text(cells))
+
+
 def _distinct_text(cells: Any) -> tuple[np.ndarray, np.ndarray, bool]:
     """``(codes, distinct stripped texts, numeric)``; numeric columns are not texts at all."""
     import pandas as pd
+
+    if isinstance(cells, Distinct):
+        return cells  # type: ignore[return-value]
 
     s = cells if isinstance(cells, pd.Series) else pd.Series(np.asarray(cells, dtype=object))
     if pd.api.types.is_bool_dtype(s.dtype):
@@ -342,11 +358,13 @@ def to_numbers(
     missing_codes: tuple[float, ...] = (),
     ids: np.ndarray | None = None,
     decimal: str = ".",
+    raw: Any = None,
 ) -> tuple[np.ndarray, list[Finding]]:
     """Parse cells to float64; non-numbers and missing codes become NaN, each kind counted.
 
     Each distinct text is parsed once (vectorised), so a column of a million cells with a few
-    thousand distinct values costs a few thousand parses.
+    thousand distinct values costs a few thousand parses. ``cells`` may be a :class:`Distinct`
+    (then ``raw`` holds the cells themselves, needed when they are numeric).
 
     >>> v, f = to_numbers(["1", "(D)", "2,5"], where="t.csv", column="rate", decimal=",")
     >>> v.tolist(), f[0].code
@@ -356,6 +374,8 @@ def to_numbers(
 
     findings: list[Finding] = []
     codes, text, numeric = _distinct_text(cells)
+    if isinstance(cells, Distinct):
+        cells = raw if raw is not None else cells
     if numeric:
         out = np.asarray(cells, dtype=np.float64).copy()
         blank_n = int(np.isnan(out).sum())
