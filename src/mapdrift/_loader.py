@@ -91,6 +91,7 @@ class Long:
     periods: tuple[Any, ...] = ()
     labels: tuple[str, ...] = ()
     ids: np.ndarray | None = None
+    period_column: str | None = None  # long tables: the period column (for messages)
 
     def row_ids(self) -> np.ndarray:
         """Each row's ID (object array)."""
@@ -323,7 +324,7 @@ def long_stage(table: Table, spec: InputSpec) -> Long:
         long = df[[table.id_col, p_col, *cols.values()]].set_axis(
             ["id", "period_text", *cols.keys()], axis=1
         )
-        return Long(long.reset_index(drop=True), tuple(cols), {})
+        return Long(long.reset_index(drop=True), tuple(cols), {}, period_column=str(p_col))
     patterns = {"value": spec.columns} if spec.columns else (dict(roles) or {"value": ""})
     parts = []
     col_of: dict[str, str] = {}
@@ -399,8 +400,9 @@ def periods_stage(long: Long, spec: InputSpec, where: str, findings: list[Findin
     if spec.columns and "(" not in spec.columns and "*" in spec.columns:
         head, _, tail = spec.columns.partition("*")
         hint = head + r"(\d+)" + tail
+    label = f"{where} column {long.period_column!r}" if long.period_column else f"{where} periods"
     parsed = read_periods(
-        [t for t in text if t != ""], where=f"{where} periods", columns=long.columns or None, hint=hint
+        [t for t in text if t != ""], where=label, columns=long.columns or None, hint=hint
     )
     findings += parsed.findings
     periods = tuple(sorted(set(parsed.mapping.values())))

@@ -94,8 +94,9 @@ def _fail(
             + (f"e.g. --columns '{hint}'" if hint else r"e.g. --columns 'rate_(\d{4})'")
         )
     return InputError(
-        f"{where}: periods must be years (2019), months (2020-03), quarters (2020Q1) or ISO "
-        f"dates (2020-03-31), or ranges (2015-2019); found {examples(bad)}; recode that column"
+        f"{where}: periods must be years (2019), months (2020-03), quarters (2020Q1), ISO "
+        f"dates (2020-03-31) or ranges (2015-2019); found {examples(bad)}; recode those labels "
+        "as one of these (e.g. a lookup column of years) and point --period at it"
     )
 
 
