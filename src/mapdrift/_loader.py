@@ -74,6 +74,7 @@ class Table:
     id_col: str
     sep: str = ","
     from_layer: bool = False
+    wide_append: bool = False  # wide tables side by side: drop the blank fill rows (drop_fill)
 
 
 @dataclass(frozen=True)
@@ -198,11 +199,14 @@ def table_stage(spec: InputSpec, layer: Layer, path: Path | None) -> Table:
         return Table(df, Path(layer.where).name, None, layer.id_col, from_layer=True)
     df = read_table(path)
     sep = df.attrs.get("sep", ",")
+    wide_id = None
     if spec.append:
-        df = _append_tables(df, path, spec.append)
+        if not spec.period:  # wide: a new release may hold only the new periods' columns
+            wide_id = _table_id(df, spec, layer, path)
+        df = _append_tables(df, path, spec.append, wide_id=wide_id)
     where = " + ".join(p.name for p in (path, *spec.append))
     t_id = _table_id(df, spec, layer, path)
-    return Table(df, where, path, t_id, sep)
+    return Table(df, where, path, t_id, sep, wide_append=wide_id is not None)
 
 
 def _table_id(df: pd.DataFrame, spec: InputSpec, layer: Layer, where: Any) -> str:
@@ -222,13 +226,27 @@ def _table_id(df: pd.DataFrame, spec: InputSpec, layer: Layer, where: Any) -> st
         ) from exc
 
 
-def _append_tables(df: pd.DataFrame, first: Path, more: tuple[Path, ...]) -> pd.DataFrame:
-    """Stack further tables (e.g. next year's release) below the first; columns must agree."""
+def _append_tables(
+    df: pd.DataFrame, first: Path, more: tuple[Path, ...], *, wide_id: str | None = None
+) -> pd.DataFrame:
+    """Stack further tables (e.g. next year's release) below the first.
+
+    Long tables need the same columns. Wide tables (``wide_id``, the ID column, given) may hold
+    only the ID and the new periods' columns, as a new release usually does: they are stacked
+    with the union of columns, and the blank cells that only fill the other tables' columns are
+    dropped once the rows are long (:func:`drop_fill`).
+    """
     import pandas as pd
 
     parts = [df]
     for path in more:
         extra = read_table(path)
+        if wide_id is not None:
+            col = _column(extra, wide_id, path, "--id")
+            if len(extra.columns) < 2:
+                raise InputError(f"{path}: appended table holds only the ID column {col!r}")
+            parts.append(extra.rename(columns={col: wide_id}))
+            continue
         missing = [c for c in df.columns if c not in extra.columns]
         if missing:
             raise InputError(
@@ -237,8 +255,20 @@ def _append_tables(df: pd.DataFrame, first: Path, more: tuple[Path, ...]) -> pd.
             )
         parts.append(extra[list(df.columns)])
     out = pd.concat(parts, ignore_index=True)
+    if wide_id is not None:
+        out = out.fillna("")
     out.attrs["sep"] = df.attrs.get("sep", ",")
     return out
+
+
+def drop_fill(long: Long) -> Long:
+    """Rows of side-by-side wide tables whose cells are all blank only because another table
+    holds that (unit, period): dropped, keeping a blank row where no table has a value."""
+    f = long.frame
+    blank = (f[list(long.roles)] == "").all(axis=1)
+    key = f[["uid", "period_text"]].assign(_blank=blank).sort_values("_blank", kind="stable")
+    filler = key["_blank"] & key.duplicated(["uid", "period_text"], keep="first")
+    return replace(long, frame=f.drop(index=key.index[filler.to_numpy()]))
 
 
 # -- stage 2: long frame ------------------------------------------------------------------------
@@ -680,6 +710,8 @@ def _chain(
     """Everything after reading: long frame -> ids -> periods -> numbers -> ... -> Panel."""
     long = long_stage(table, spec)
     long = ids_stage(long, layer, spec, table.where, not table.from_layer, findings)
+    if table.wide_append:
+        long = drop_fill(long)
     long = periods_stage(long, spec, table.where, findings)
     long = numbers_stage(long, spec, table, findings)
     long = duplicates_stage(long, spec, table, findings)

@@ -34,11 +34,16 @@ def period_label(period: Any) -> str:
 
 @dataclass(frozen=True)
 class PanelMeta:
-    """What the values are: variable name, unit label and source line for titles and captions."""
+    """What the values are: variable name, unit label and source line for titles and captions.
+
+    ``view`` is one line naming how the values were rescaled after loading ('' = as read; see
+    :mod:`mapdrift.views`); every output carries it.
+    """
 
     variable: str = "value"
     unit_label: str = ""
     source: str = ""
+    view: str = ""
 
 
 @dataclass(frozen=True, eq=False)
@@ -263,7 +268,10 @@ class InputSpec:
     columns whose names carry a year are used. ``numerator``/``denominator`` turn counts into
     rates ``per`` so many (patterns such as ``filings_*`` for wide tables). ``crosswalk`` (a
     from, to, weight table) moves the values onto the layer's boundary vintage first. ``append``
-    names more tables of the same columns to add below ``table`` (e.g. next year's release).
+    names more tables to add to ``table`` (e.g. next year's release): long tables need the same
+    columns; wide tables may hold only the new periods' columns besides the ID. ``view``
+    (``relative-median``, ``index:2015``, ``deflate:cpi.csv``...) rescales the values after
+    loading; the loader ignores it, :func:`mapdrift.views.apply_view` applies it.
     ``columns`` may also be a regular expression with one capture group around the period
     (``PO(\\d+)``, so that ``POLY_ID`` is not caught). ``decimal`` (``","`` or ``"."``) settles the
     decimal mark when a file's cells read either way (``1,234``).
@@ -292,6 +300,7 @@ class InputSpec:
     source: str | None = None
     crosswalk: Path | None = None
     append: tuple[Path, ...] = ()
+    view: str | None = None
     decimal: str | None = None
 
     def __post_init__(self) -> None:
