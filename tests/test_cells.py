@@ -77,7 +77,9 @@ def test_dot_groups_in_a_semicolon_file_ask_too(layer_file, table_file):
     with pytest.raises(InputError, match=r"read either way.*--decimal \."):
         load_panel(_spec(layer_file(n_side=2), _csv(table_file, rows)))
     # the same cells in a comma-separated file are ordinary decimals
-    p = load_panel(_spec(layer_file("b.gpkg", n_side=2), _csv(table_file, rows, sep=",", name="b.csv")))
+    p = load_panel(
+        _spec(layer_file("b.gpkg", n_side=2), _csv(table_file, rows, sep=",", name="b.csv"))
+    )
     np.testing.assert_allclose(p.values[:, 0], [1.234, 5.449, 12, 7.010])
 
 
@@ -105,7 +107,17 @@ def test_decimal_flag_and_config_key_through_the_cli(runner, layer_file, table_f
 
     rows = [(u, "2020", v) for u, v in zip(IDS, ["1,234", "5,449", "12", "7,010"])]
     layer, table = layer_file(n_side=2), _csv(table_file, rows)
-    args = ["check", str(layer), str(table), "--id", "unit_id", "--period", "year", "--value", "rate"]
+    args = [
+        "check",
+        str(layer),
+        str(table),
+        "--id",
+        "unit_id",
+        "--period",
+        "year",
+        "--value",
+        "rate",
+    ]
     res = runner.invoke(app, args)
     assert res.exit_code != 0 and "--decimal ," in res.output
     res = runner.invoke(app, [*args, "--decimal", ","])

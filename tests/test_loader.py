@@ -33,7 +33,9 @@ def _long(rows: dict, roles=("value",)) -> _loader.Long:
 
 def test_ids_stage_normalises_pads_and_codes_rows():
     layer = _loader.Layer(None, np.array(["06019", "06021"], dtype=object), ("a", "b"), "id", "l")
-    long = _long({"id": [" 6019 ", "6019.0", "06021", ""], "period_text": ["2019"] * 4, "value": ["1"] * 4})
+    long = _long(
+        {"id": [" 6019 ", "6019.0", "06021", ""], "period_text": ["2019"] * 4, "value": ["1"] * 4}
+    )
     findings: list = []
     out = _loader.ids_stage(long, layer, InputSpec(geometry="x.gpkg"), "t.csv", True, findings)
     # " 6019 " and "6019.0" are one ID after normalising; padded to the layer's 5 digits
@@ -50,7 +52,9 @@ def test_periods_stage_parses_each_label_once(monkeypatch):
         return real(texts, **kw)
 
     monkeypatch.setattr(_loader, "read_periods", spy)
-    long = _long({"uid": [0, 1, 0, 1], "period_text": ["2020", "2019", "2020", "2019.0"], "value": 1})
+    long = _long(
+        {"uid": [0, 1, 0, 1], "period_text": ["2020", "2019", "2020", "2019.0"], "value": 1}
+    )
     out = _loader.periods_stage(long, InputSpec(geometry="x.gpkg"), "t.csv", [])
     assert seen == [["2020", "2019", "2019.0"]]  # distinct labels, not rows
     assert out.periods == (2019, 2020) and out.frame["period"].tolist() == [1, 0, 1, 0]
@@ -59,7 +63,12 @@ def test_periods_stage_parses_each_label_once(monkeypatch):
 def test_duplicates_stage_counts_exact_repeats_apart_from_conflicts():
     long = _loader.Long(
         pd.DataFrame(
-            {"uid": [0, 0, 1, 1], "period": [0, 0, 0, 0], "period_text": "2020", "value": [1.0, 1.0, 2.0, 3.0]}
+            {
+                "uid": [0, 0, 1, 1],
+                "period": [0, 0, 0, 0],
+                "period_text": "2020",
+                "value": [1.0, 1.0, 2.0, 3.0],
+            }
         ),
         ("value",),
         {},
@@ -68,10 +77,14 @@ def test_duplicates_stage_counts_exact_repeats_apart_from_conflicts():
         ids=np.array(["a", "b"], dtype=object),
     )
     table = _loader.Table(pd.DataFrame(), "t.csv", None, "id")
-    with pytest.raises(InputError, match=r"1 \(unit, period\) pair with more than one row \(e\.g\. b/2020\)"):
+    with pytest.raises(
+        InputError, match=r"1 \(unit, period\) pair with more than one row \(e\.g\. b/2020\)"
+    ):
         _loader.duplicates_stage(long, InputSpec(geometry="x.gpkg"), table, [])
     findings: list = []
-    out = _loader.duplicates_stage(long, InputSpec(geometry="x.gpkg", duplicates="mean"), table, findings)
+    out = _loader.duplicates_stage(
+        long, InputSpec(geometry="x.gpkg", duplicates="mean"), table, findings
+    )
     assert sorted(out.frame["value"].tolist()) == [1.0, 2.5]
     assert [f.code for f in findings] == ["values-duplicate-rows", "values-duplicates-combined"]
     assert "1 row repeated exactly" in findings[0].message
@@ -82,7 +95,13 @@ def test_exact_duplicate_rows_do_not_stop_the_load(layer_file, table_file):
     ids_ = [f"{i + 1:05d}" for i in range(4)]
     rows = long_rows(ids_, [2019, 2020])
     p = load_panel(
-        InputSpec(geometry=layer, table=table_file(rows + rows[:3]), id="unit_id", period="year", value="rate")
+        InputSpec(
+            geometry=layer,
+            table=table_file(rows + rows[:3]),
+            id="unit_id",
+            period="year",
+            value="rate",
+        )
     )
     f = next(f for f in p.findings if f.code == "values-duplicate-rows")
     assert "3 rows repeated exactly" in f.message
@@ -99,7 +118,9 @@ def _files(tmp_path, n_units: int, n_periods: int = 5):
     r, c = np.divmod(np.arange(n_units), side)
     uid = np.array([f"{7031000000 + i:011d}" for i in range(n_units)], dtype=object)
     gdf = gpd.GeoDataFrame(
-        {"unit_id": uid}, geometry=shapely.box(c * 100.0, r * 100.0, c * 100.0 + 100, r * 100.0 + 100), crs="EPSG:26916"
+        {"unit_id": uid},
+        geometry=shapely.box(c * 100.0, r * 100.0, c * 100.0 + 100, r * 100.0 + 100),
+        crs="EPSG:26916",
     )
     layer = tmp_path / f"l{n_units}.gpkg"
     gdf.to_file(layer)
@@ -119,7 +140,12 @@ def _files(tmp_path, n_units: int, n_periods: int = 5):
         }
     ).to_csv(table, index=False)
     return InputSpec(
-        geometry=layer, table=table, id="unit_id", period="year", numerator="filings", denominator="parcels"
+        geometry=layer,
+        table=table,
+        id="unit_id",
+        period="year",
+        numerator="filings",
+        denominator="parcels",
     )
 
 
@@ -169,7 +195,13 @@ def test_from_frames_matches_the_file_loader(layer_file, table_file):
     rows[4]["rate"] = "(D)"
     df = pd.DataFrame(rows)
     from_files = load_panel(
-        InputSpec(geometry=layer_file(gdf=gdf), table=table_file(df), id="unit_id", period="year", value="rate")
+        InputSpec(
+            geometry=layer_file(gdf=gdf),
+            table=table_file(df),
+            id="unit_id",
+            period="year",
+            value="rate",
+        )
     )
     from_frames = Panel.from_frames(gdf, df, id="unit_id", period="year", value="rate")
     np.testing.assert_array_equal(from_files.values, from_frames.values)

@@ -41,16 +41,27 @@ def test_multi_year_periods_keep_their_label_and_sort_by_end():
     r = read_periods(["2015-2019", "2010-2014", "2020–2024"], where="t")
     assert r.mapping == {"2015-2019": 2019, "2010-2014": 2014, "2020–2024": 2024}
     assert r.labels[2019] == "2015-2019"
-    assert read_periods(["2015-19", "2016-20"], where="t").mapping == {"2015-19": 2019, "2016-20": 2020}
+    assert read_periods(["2015-19", "2016-20"], where="t").mapping == {
+        "2015-19": 2019,
+        "2016-20": 2020,
+    }
     # school/fiscal years written 2010-11 are ranges, not November
-    assert read_periods(["2010-11", "2011-12"], where="t").mapping == {"2010-11": 2011, "2011-12": 2012}
+    assert read_periods(["2010-11", "2011-12"], where="t").mapping == {
+        "2010-11": 2011,
+        "2011-12": 2012,
+    }
     # a month column stays months
     assert str(parse_periods(["2020-03", "2020-04"], where="t")["2020-03"]) == "2020-03"
 
 
 def test_unreadable_period_names_the_columns_and_the_fix():
     with pytest.raises(InputError) as err:
-        read_periods(["2019", "LY_ID"], where="t.csv", columns={"2019": "PO2019", "LY_ID": "POLY_ID"}, hint=r"PO(\d+)")
+        read_periods(
+            ["2019", "LY_ID"],
+            where="t.csv",
+            columns={"2019": "PO2019", "LY_ID": "POLY_ID"},
+            hint=r"PO(\d+)",
+        )
     msg = str(err.value)
     assert "POLY_ID" in msg and r"--columns 'PO(\d+)'" in msg
 
@@ -62,7 +73,9 @@ def test_spacing_rule():
     decades = spacing([1940, 1950, 1960, 1970])
     assert decades.gaps == () and decades.step_label == "one step (10 years)"
     uneven = spacing([1984, 1988, 1993])
-    assert uneven.step is None and uneven.adjacent == (True, True) and uneven.step_label == "one step"
+    assert (
+        uneven.step is None and uneven.adjacent == (True, True) and uneven.step_label == "one step"
+    )
     import pandas as pd
 
     quarters = spacing([pd.Period("2020Q1"), pd.Period("2020Q2"), pd.Period("2020Q4")])
@@ -78,8 +91,18 @@ def test_changes_use_the_same_rule():
 
 def test_long_table_with_range_periods(layer_file, table_file):
     ids = [f"{i + 1:05d}" for i in range(4)]
-    rows = [{"unit_id": u, "period": p, "rate": 1.0} for u in ids for p in ["2015-2019", "2010-2014"]]
-    p = load_panel(InputSpec(geometry=layer_file(n_side=2), table=table_file(rows), id="unit_id", period="period", value="rate"))
+    rows = [
+        {"unit_id": u, "period": p, "rate": 1.0} for u in ids for p in ["2015-2019", "2010-2014"]
+    ]
+    p = load_panel(
+        InputSpec(
+            geometry=layer_file(n_side=2),
+            table=table_file(rows),
+            id="unit_id",
+            period="period",
+            value="rate",
+        )
+    )
     assert p.periods == (2014, 2019) and p.period_labels == ("2010-2014", "2015-2019")
     assert p.period_index("2015-2019") == 1 and p.period_index(2019) == 1
     assert "periods-gap" not in _codes(p) and p.step_label == "one step (5 years)"
@@ -94,7 +117,12 @@ def test_nc_sids_two_digit_years_from_counts():
     (shp,) = _example("sids2", "sids2.shp")
     p = load_panel(
         InputSpec(
-            geometry=shp, id="FIPS", name="NAME", numerator=r"SID(\d+)", denominator=r"BIR(\d+)", per=1000
+            geometry=shp,
+            id="FIPS",
+            name="NAME",
+            numerator=r"SID(\d+)",
+            denominator=r"BIR(\d+)",
+            per=1000,
         )
     )
     assert p.periods == (1974, 1979) and p.n_units == 100
@@ -116,9 +144,15 @@ def test_st_louis_multi_year_tokens_and_regex_columns():
     assert p.period_labels == ("1979-1984", "1984-1988", "1988-1993")
     assert p.periods == (1984, 1988, 1993)
     codes = _codes(p)
-    assert "periods-gap" not in codes and "periods-irregular" in codes and "periods-multi-year" in codes
+    assert (
+        "periods-gap" not in codes
+        and "periods-irregular" in codes
+        and "periods-multi-year" in codes
+    )
     assert p.spacing.adjacent == (True, True) and p.step_label == "one step"
-    pop = load_panel(InputSpec(geometry=shp, id="FIPS", columns=r"PO(\d+)"))  # POLY_ID_OG not caught
+    pop = load_panel(
+        InputSpec(geometry=shp, id="FIPS", columns=r"PO(\d+)")
+    )  # POLY_ID_OG not caught
     assert pop.n_periods == 3
 
 
@@ -126,7 +160,9 @@ def test_mexico_decades_and_name_hints():
     # libpysal example 'mexico' (Mexican states' GDP per capita by decade, 1940-2000): the table
     # spells five states differently from the layer (e.g. "Quertaro" vs "Queretaro de Arteaga").
     shp, csv = _example("mexico", "mexicojoin.shp", "mexico.csv")
-    p = load_panel(InputSpec(geometry=shp, table=csv, id="NAME", table_id="State", columns="pcgdp*"))
+    p = load_panel(
+        InputSpec(geometry=shp, table=csv, id="NAME", table_id="State", columns="pcgdp*")
+    )
     assert p.periods == tuple(range(1940, 2001, 10))
     codes = _codes(p)
     assert "periods-gap" not in codes and p.step_label == "one step (10 years)"

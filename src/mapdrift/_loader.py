@@ -291,7 +291,9 @@ def _pattern(pattern: str, flag: str) -> re.Pattern[str]:
         try:
             rx = re.compile(pattern)
         except re.error as exc:
-            raise ConfigError(f"{flag} {pattern!r} is not a valid regular expression ({exc})") from None
+            raise ConfigError(
+                f"{flag} {pattern!r} is not a valid regular expression ({exc})"
+            ) from None
         if rx.groups != 1:
             raise ConfigError(
                 f"{flag} {pattern!r} needs exactly one capture group around the period, e.g. 'PO(\\d+)'"
@@ -350,7 +352,10 @@ def long_stage(table: Table, spec: InputSpec) -> Long:
             )
         p_col = _column(df, spec.period, where, "--period")
         cols = {"value": spec.value} if spec.value else roles
-        cols = {r: _column(df, c, where, "--value" if r == "value" else _FLAGS[r]) for r, c in cols.items()}
+        cols = {
+            r: _column(df, c, where, "--value" if r == "value" else _FLAGS[r])
+            for r, c in cols.items()
+        }
         long = df[[table.id_col, p_col, *cols.values()]].set_axis(
             ["id", "period_text", *cols.keys()], axis=1
         )
@@ -384,7 +389,9 @@ def long_stage(table: Table, spec: InputSpec) -> Long:
 
 
 # -- stage 3: ids -------------------------------------------------------------------------------
-def ids_stage(long: Long, layer: Layer, spec: InputSpec, where: str, pad: bool, findings: list[Finding]) -> Long:
+def ids_stage(
+    long: Long, layer: Layer, spec: InputSpec, where: str, pad: bool, findings: list[Finding]
+) -> Long:
     """Normalise the table's IDs, count rows without one, zero-pad to the layer's width.
 
     The work is done once per distinct ID; rows keep an integer code (``uid``).
@@ -404,7 +411,11 @@ def ids_stage(long: Long, layer: Layer, spec: InputSpec, where: str, pad: bool, 
     blank = distinct[uid] == ""
     if blank.any():  # rows that cannot be placed are counted, never dropped silently
         findings.append(
-            Finding("warning", "ids-blank-rows", f"{where}: {plural(int(blank.sum()), 'row')} with no unit ID left out")
+            Finding(
+                "warning",
+                "ids-blank-rows",
+                f"{where}: {plural(int(blank.sum()), 'row')} with no unit ID left out",
+            )
         )
         f, uid = f[~blank], uid[~blank]
     f = f.drop(columns="id").assign(uid=uid)
@@ -423,7 +434,11 @@ def periods_stage(long: Long, spec: InputSpec, where: str, findings: list[Findin
     blank = (codes < 0) | blank_u[np.maximum(codes, 0)]
     if blank.any():
         findings.append(
-            Finding("warning", "periods-blank-rows", f"{where}: {plural(int(blank.sum()), 'row')} with no period left out")
+            Finding(
+                "warning",
+                "periods-blank-rows",
+                f"{where}: {plural(int(blank.sum()), 'row')} with no period left out",
+            )
         )
         f, codes = f[~blank], codes[~blank]
     hint = None
@@ -437,7 +452,9 @@ def periods_stage(long: Long, spec: InputSpec, where: str, findings: list[Findin
     findings += parsed.findings
     periods = tuple(sorted(set(parsed.mapping.values())))
     pos = {p: j for j, p in enumerate(periods)}
-    col_of_uniq = np.array([pos[parsed.mapping[t]] if t != "" else -1 for t in text], dtype=np.int64)
+    col_of_uniq = np.array(
+        [pos[parsed.mapping[t]] if t != "" else -1 for t in text], dtype=np.int64
+    )
     f = f.assign(period=col_of_uniq[codes])
     labels = tuple(parsed.labels.get(p, str(p)) for p in periods)
     sp = spacing(periods)
@@ -515,7 +532,10 @@ def duplicates_stage(long: Long, spec: InputSpec, table: Table, findings: list[F
     exact = keyed.duplicated(keep="first").to_numpy()
     if exact.any():
         ex = examples(
-            [f"{a}/{long.labels[b]}" for a, b in zip(long.row_ids()[exact][:5], f["period"].to_numpy()[exact][:5])],
+            [
+                f"{a}/{long.labels[b]}"
+                for a, b in zip(long.row_ids()[exact][:5], f["period"].to_numpy()[exact][:5])
+            ],
             total=False,
         )
         findings.append(
@@ -540,7 +560,9 @@ def duplicates_stage(long: Long, spec: InputSpec, table: Table, findings: list[F
             "fix the table or pass --duplicates first|mean|sum"
         )
     if spec.duplicates not in ("first", "mean", "sum"):
-        raise ConfigError(f"--duplicates {spec.duplicates!r} must be one of error, first, mean, sum")
+        raise ConfigError(
+            f"--duplicates {spec.duplicates!r} must be one of error, first, mean, sum"
+        )
     agg = {r: spec.duplicates for r in long.roles}
     g = f.groupby(["uid", "period"], as_index=False, sort=False).agg(agg | {"period_text": "first"})
     findings.append(
@@ -556,13 +578,15 @@ def duplicates_stage(long: Long, spec: InputSpec, table: Table, findings: list[F
 
 
 # -- stage 7: crosswalk (optional) ----------------------------------------------------------------
-def crosswalk_stage(long: Long, layer: Layer, spec: InputSpec, counts: bool, findings: list[Finding]) -> Long:
+def crosswalk_stage(
+    long: Long, layer: Layer, spec: InputSpec, counts: bool, findings: list[Finding]
+) -> Long:
     """Move the rows onto the layer's boundary vintage (see :mod:`mapdrift.crosswalk`)."""
     if spec.crosswalk is None:
         return long
-    from mapdrift.crosswalk import apply_crosswalk, read_crosswalk
-
     import pandas as pd
+
+    from mapdrift.crosswalk import apply_crosswalk, read_crosswalk
 
     xw = read_crosswalk(spec.crosswalk)
     assert long.ids is not None
@@ -576,7 +600,9 @@ def crosswalk_stage(long: Long, layer: Layer, spec: InputSpec, counts: bool, fin
     f, xf = apply_crosswalk(frame, xw, list(long.roles), counts=counts, where=spec.crosswalk.name)
     findings += f_from + f_to + xf
     uid, ids = pd.factorize(f["id"].to_numpy(object))
-    return replace(long, frame=f.drop(columns="id").assign(uid=uid), ids=np.asarray(ids, dtype=object))
+    return replace(
+        long, frame=f.drop(columns="id").assign(uid=uid), ids=np.asarray(ids, dtype=object)
+    )
 
 
 # -- stage 8: match to the layer ----------------------------------------------------------------
@@ -584,7 +610,6 @@ def match_stage(
     long: Long, layer: Layer, table: Table, findings: list[Finding]
 ) -> tuple[np.ndarray, np.ndarray, Long]:
     """Row of each table row in the layer (one hash join); unmatched rows and units reported."""
-    import pandas as pd
 
     f = long.frame
     assert long.ids is not None
@@ -617,7 +642,9 @@ def match_stage(
         )
     if table_only:
         unmatched_layer = layer.ids[~matched]
-        hints = closest(table_only, (unmatched_layer if len(unmatched_layer) else layer.ids).tolist(), n=5)
+        hints = closest(
+            table_only, (unmatched_layer if len(unmatched_layer) else layer.ids).tolist(), n=5
+        )
         hint = (
             " (closest layer IDs: " + ", ".join(f"{a} -> {b}?" for a, b in hints.items()) + ")"
             if hints
@@ -674,7 +701,9 @@ def _value_checks(
                 units_neg,
             )
         )
-    zf = detect_zero_block(values, tuple(units.tolist()), labels, denominator=denominator, per=spec.per)
+    zf = detect_zero_block(
+        values, tuple(units.tolist()), labels, denominator=denominator, per=spec.per
+    )
     if zf is not None:
         findings.append(zf)
     present = np.isfinite(values)
@@ -693,7 +722,9 @@ def _value_checks(
     all_missing = [labels[j] for j in np.flatnonzero(~present.any(axis=0))]
     if all_missing:
         findings.append(
-            Finding("warning", "periods-empty", f"periods with no value at all: {examples(all_missing)}")
+            Finding(
+                "warning", "periods-empty", f"periods with no value at all: {examples(all_missing)}"
+            )
         )
 
 
@@ -739,7 +770,9 @@ def _chain(
     raise_errors(findings, InputError)
 
     variable = spec.variable or (
-        f"{_words(spec.numerator)} rate" if counts else _words(spec.value or spec.columns or "value")
+        f"{_words(spec.numerator)} rate"
+        if counts
+        else _words(spec.value or spec.columns or "value")
     )
     unit_label = spec.unit_label or (
         f"{_words(spec.numerator)} per {spec.per:,g} {_words(spec.denominator)}" if counts else ""

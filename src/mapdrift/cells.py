@@ -229,14 +229,9 @@ def _distinct_text(cells: Any) -> tuple[np.ndarray, np.ndarray, bool]:
         s = s.astype(object)
     if pd.api.types.is_numeric_dtype(s.dtype):
         return np.zeros(0, np.intp), np.zeros(0, object), True
-    if s.dtype == object and pd.api.types.infer_dtype(s, skipna=True) in (
-        "integer",
-        "floating",
-        "mixed-integer-float",
-        "empty",
-    ):
-        if s.notna().any() or len(s) == 0:
-            return np.zeros(0, np.intp), np.zeros(0, object), True
+    kind = pd.api.types.infer_dtype(s, skipna=True) if s.dtype == object else ""
+    if kind in ("integer", "floating", "mixed-integer-float") or (kind == "empty" and not len(s)):
+        return np.zeros(0, np.intp), np.zeros(0, object), True
     codes, uniq = pd.factorize(s, use_na_sentinel=True)
     text = pd.Series(np.asarray(uniq, dtype=object)).astype(str).str.strip().to_numpy(dtype=object)
     if (codes < 0).any():  # missing (None/NaN) cells read as blanks
@@ -334,17 +329,25 @@ def _parse_text(text: np.ndarray, decimal: str) -> tuple[np.ndarray, np.ndarray]
             idx = np.flatnonzero(has_comma)
             grouped = _match(_strings(text[idx]), r"[+-]?\d{1,3}(?:,\d{3})+(?:\.\d+)?")
             idx = idx[grouped]
-            out[idx] = _numbers(_strings(text[idx]).str.replace(",", "", regex=False).to_numpy(object))
+            out[idx] = _numbers(
+                _strings(text[idx]).str.replace(",", "", regex=False).to_numpy(object)
+            )
             thousands[idx] = True
     else:
         out = np.full(len(text), np.nan)
         simple = ~has_point & ~_has(s, "_")
-        out[simple] = _numbers(_strings(text[simple]).str.replace(",", ".", regex=False).to_numpy(dtype=object))
+        out[simple] = _numbers(
+            _strings(text[simple]).str.replace(",", ".", regex=False).to_numpy(dtype=object)
+        )
         if has_point.any():
             idx = np.flatnonzero(has_point)
             grouped = _match(_strings(text[idx]), r"[+-]?\d{1,3}(?:\.\d{3})+(?:,\d+)?")
             idx = idx[grouped]
-            g = _strings(text[idx]).str.replace(".", "", regex=False).str.replace(",", ".", regex=False)
+            g = (
+                _strings(text[idx])
+                .str.replace(".", "", regex=False)
+                .str.replace(",", ".", regex=False)
+            )
             out[idx] = _numbers(g.to_numpy(object))
             thousands[idx] = True
     return out, thousands
@@ -399,7 +402,9 @@ def to_numbers(
         order = np.argsort(-freq[bad], kind="stable")
         bad_text = text[bad][order]
         bad_freq = freq[bad][order]
-        markers = {("(blank)" if t == "" else str(t)): int(c) for t, c in zip(bad_text, bad_freq) if c}
+        markers = {
+            ("(blank)" if t == "" else str(t)): int(c) for t, c in zip(bad_text, bad_freq) if c
+        }
         out = values[codes]
         marked = bad[codes]
         thousands_n = int(freq[thousands].sum())
@@ -419,9 +424,13 @@ def to_numbers(
         if decimal == ".":
             commas = sum(c for m, c in markers.items() if "," in m and m.replace(",", "").isdigit())
             if commas:
-                by_marker += f"; {commas} look like decimal commas (pass --decimal , if the file writes 5,3)"
+                by_marker += (
+                    f"; {commas} look like decimal commas (pass --decimal , if the file writes 5,3)"
+                )
         marker_units = (
-            pd.unique(np.asarray(ids, dtype=object)[marked & _not_blank(cells, numeric, codes, text)])
+            pd.unique(
+                np.asarray(ids, dtype=object)[marked & _not_blank(cells, numeric, codes, text)]
+            )
             if ids is not None
             else np.zeros(0, dtype=object)
         )

@@ -18,7 +18,7 @@ import numpy as np
 from mapdrift.findings import Finding, examples, plural
 
 if TYPE_CHECKING:
-    import pandas as pd
+    pass
 
 __all__ = ["closest", "locate", "normalise", "normalise_ids", "pad_ids", "zfill"]
 

@@ -137,11 +137,15 @@ def read_periods(
         parts = {t: tuple(int(x) for x in _MONTH.match(t).groups()) for t in distinct}  # type: ignore[union-attr]
         school = all(m == (y + 1) % 100 for y, m in parts.values())
         if all(1 <= m <= 12 for _, m in parts.values()) and not school:
-            return PeriodParse({t: pd.Period(year=y, month=m, freq="M") for t, (y, m) in parts.items()})
+            return PeriodParse(
+                {t: pd.Period(year=y, month=m, freq="M") for t, (y, m) in parts.items()}
+            )
         if not school:
             bad = [t for t, (_, m) in parts.items() if not 1 <= m <= 12]
             if not all(_RANGE.match(t) for t in distinct):
-                raise InputError(f"{where}: period {bad[0]!r} has month {parts[bad[0]][1]}; months run 1 to 12")
+                raise InputError(
+                    f"{where}: period {bad[0]!r} has month {parts[bad[0]][1]}; months run 1 to 12"
+                )
     if every(_QUARTER):
         return PeriodParse(
             {
@@ -166,7 +170,11 @@ def read_periods(
             m = _RANGE.match(t)
             if m:
                 a, b = int(m.group(1)), m.group(2)
-                end = int(b) if len(b) == 4 else a - a % 100 + int(b) + (100 if int(b) < a % 100 else 0)
+                end = (
+                    int(b)
+                    if len(b) == 4
+                    else a - a % 100 + int(b) + (100 if int(b) < a % 100 else 0)
+                )
             else:
                 m = _PAIR.match(t)
                 a, end = _century(int(m.group(1))), _century(int(m.group(2)))  # type: ignore[union-attr]
@@ -175,7 +183,9 @@ def read_periods(
             spans[t] = (a, end)
         bad = [t for t, (a, b) in spans.items() if b < a]
         if bad:
-            raise InputError(f"{where}: period {bad[0]!r} ends before it starts; write start-end, e.g. 2015-2019")
+            raise InputError(
+                f"{where}: period {bad[0]!r} ends before it starts; write start-end, e.g. 2015-2019"
+            )
         ends = [b for _, b in spans.values()]
         if len(set(ends)) < len(ends):
             raise InputError(
@@ -192,7 +202,9 @@ def read_periods(
         )
         notes = [note]
         if every(_PAIR) and not every(_RANGE):
-            notes.append(_century_note(where, sorted({t[:2] for t in distinct} | {t[2:] for t in distinct})))
+            notes.append(
+                _century_note(where, sorted({t[:2] for t in distinct} | {t[2:] for t in distinct}))
+            )
         return PeriodParse(mapping, labels, tuple(notes))
     if every(_TWO):
         mapping = {t: _century(int(t)) for t in distinct}
@@ -277,7 +289,7 @@ def _positions(periods: Sequence[Any]) -> tuple[np.ndarray | None, str | None]:
             u = "year"
         elif hasattr(p, "ordinal") and hasattr(p, "freqstr"):
             out.append(int(p.ordinal))
-            u = _UNIT.get(str(p.freqstr)[:1], None)
+            u = _UNIT.get(str(p.freqstr)[:1])
         else:
             return None, None
         if unit is not None and u != unit:
