@@ -150,6 +150,7 @@ def test_st_louis_multi_year_tokens_and_regex_columns():
         and "periods-multi-year" in codes
     )
     assert p.spacing.adjacent == (True, True) and p.step_label == "one step"
+    assert p.period_span == "1979-1984 to 1988-1993"
     pop = load_panel(
         InputSpec(geometry=shp, id="FIPS", columns=r"PO(\d+)")
     )  # POLY_ID_OG not caught

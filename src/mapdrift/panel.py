@@ -110,6 +110,18 @@ class Panel:
         return self.labels or tuple(period_label(p) for p in self.periods)
 
     @property
+    def period_span(self) -> str:
+        """First to last period for texts: ``'2012-2024'``, or ``'1979-1984 to 1988-1993'``
+        when the labels are ranges themselves."""
+        labels = self.period_labels
+        if not labels:
+            return ""
+        a, b = labels[0], labels[-1]
+        if a == b:
+            return a
+        return f"{a} to {b}" if "-" in a + b else f"{a}-{b}"
+
+    @property
     def spacing(self) -> Spacing:
         """The series' step and gaps on the one rule of :func:`mapdrift.periods.spacing`
         (decadal data step by 10 years; unevenly spaced periods step by one period)."""
