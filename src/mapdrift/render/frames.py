@@ -32,12 +32,15 @@ from mapdrift.palettes import NODATA, NODATA_HATCH
 from mapdrift.render import furniture as fur
 from mapdrift.render import layout as lay
 from mapdrift.render.pixels import hatch_alpha, pack_rgb, unpack_rgb
-from mapdrift.render.raster import LabelRaster, metres_per_unit
+from mapdrift.render.raster import LabelRaster, ObjectCache, metres_per_unit
 from mapdrift.render.sprites import SpriteCache, composite
 
 __all__ = ["FrameRenderer", "pack_rgb", "render_frames", "unit_rings_px", "unpack_rgb"]
 
 log = logging.getLogger(__name__)
+
+_RINGS = ObjectCache(4)  # unit rings in frame pixels, per (geometry, map box)
+_STATIC = ObjectCache(6)  # base frame, overlay, hatch, dynamic figure and sprites, per map
 
 
 def unit_rings_px(geoms: Any, transform: Any) -> tuple[list[np.ndarray], np.ndarray]:
@@ -164,21 +167,43 @@ class FrameRenderer:
             )
         ]
         self.raster = LabelRaster.build(
-            geoms, tr, ss=supersample, min_unit_px=min_unit_px, unit_ids=ids, size_text=f"{w}x{h}"
+            geometry,
+            tr,
+            ss=supersample,
+            min_unit_px=min_unit_px,
+            unit_ids=ids,
+            size_text=f"{w}x{h}",
         )
         self.findings: tuple[Finding, ...] = self.raster.findings
         self._min_unit_px = float(min_unit_px)
-        self._rings, self._ring_unit = unit_rings_px(geoms, tr)
-        self._ring_start = np.searchsorted(self._ring_unit, np.arange(n_units + 1))
-        self._ring_sorted = bool(np.all(np.diff(self._ring_unit) >= 0))
         self._class_rgb = np.array(
             [hex_to_rgb8(c) for c in self.colours] + [hex_to_rgb8(NODATA)], dtype=np.uint8
         )
         self._paper = np.array(hex_to_rgb8(lay.PAPER), dtype=np.uint8)
-        self._prepare_static()
-        self._fig, ax = lay.new_figure(self.layout, transparent=True)
-        self._dyn = fur.DynamicArtists(ax, self.layout, self.chrome)
-        self._sprites = SpriteCache(self._fig)
+        # what depends only on (geometry, layout, texts) is prepared once and shared by every
+        # renderer of the same map: the animation's GIF and MP4 and the poster of one run
+        rings_key = (id(geometry), repr(tr))
+        rings = _RINGS.get(rings_key, geometry)
+        if rings is None:
+            rings = unit_rings_px(geoms, tr)
+            _RINGS.put(rings_key, geometry, rings)
+        self._rings, self._ring_unit = rings
+        self._ring_start = np.searchsorted(self._ring_unit, np.arange(n_units + 1))
+        self._ring_sorted = bool(np.all(np.diff(self._ring_unit) >= 0))
+        static_key = (id(geometry), repr(self.layout), repr(self.chrome), self._min_unit_px,
+                      int(supersample), n_units)  # fmt: skip
+        static = _STATIC.get(static_key, geometry)
+        if static is None:
+            static = self._prepare_static()
+            fig, ax = lay.new_figure(self.layout, transparent=True)
+            static["dynamic"] = (fig, fur.DynamicArtists(ax, self.layout, self.chrome))
+            static["sprites"] = SpriteCache(fig)
+            _STATIC.put(static_key, geometry, static)
+        for name, value in static.items():
+            if name not in ("dynamic", "sprites"):
+                setattr(self, name, value)
+        self._fig, self._dyn = static["dynamic"]
+        self._sprites = static["sprites"]
 
     # -- preparation -----------------------------------------------------------------------
     def _boundary_width(self) -> float | None:
@@ -198,7 +223,8 @@ class FrameRenderer:
         keep = np.flatnonzero(span.max(axis=1) >= 2.0)
         return [self._rings[i] for i in keep]
 
-    def _prepare_static(self) -> None:
+    def _prepare_static(self) -> dict[str, Any]:
+        """The base frame (paper, furniture) and the overlay and hatch pixels of the map box."""
         L, tr = self.layout, self.layout.transform
         fig, ax = lay.new_figure(L, transparent=True)
         bw = self._boundary_width()
@@ -227,20 +253,21 @@ class FrameRenderer:
         a = hatch[y : y + sh, x : x + sw, None]
         base[y : y + sh, x : x + sw] = nod * (1 - a) + hat * a
         base = base * (1 - alpha) + over[..., :3] * alpha
-        self._base = np.round(base * 255).astype(np.uint8)
-        self._base_packed = pack_rgb(self._base)
+        out: dict[str, Any] = {}
+        out["_base"] = np.round(base * 255).astype(np.uint8)
+        out["_base_packed"] = pack_rgb(out["_base"])
         # over the map box: only pixels the overlay touches are composited per frame
         sl = (slice(tr.top, tr.top + tr.height), slice(tr.left, tr.left + tr.width))
         a_map = alpha[sl][..., 0].ravel()
-        self._ov_idx = np.flatnonzero(a_map > 0)
-        a_sel = a_map[self._ov_idx, None]
-        c_sel = over[sl][..., :3].reshape(-1, 3)[self._ov_idx]
+        out['_ov_idx'] = np.flatnonzero(a_map > 0)
+        a_sel = a_map[out['_ov_idx'], None]
+        c_sel = over[sl][..., :3].reshape(-1, 3)[out['_ov_idx']]
         # integer compositing: out = (px * (256 - a) + c * a) >> 8, a and c * a in 1/256 steps
         # (a fourth, zero channel so the packed pixels are blended as whole words)
-        self._ov_a = np.round(a_sel * 256).astype(np.uint16)
-        ov_c = np.zeros((len(self._ov_idx), 4), dtype=np.uint16)
+        out['_ov_a'] = np.round(a_sel * 256).astype(np.uint16)
+        ov_c = np.zeros((len(out['_ov_idx']), 4), dtype=np.uint16)
         ov_c[:, :3] = np.round(c_sel * a_sel * 255 * 256).astype(np.uint16)
-        self._ov_c = ov_c
+        out['_ov_c'] = ov_c
         h_map = hatch[sl].ravel()
         hatch_idx = np.flatnonzero(h_map > 0)
         hatch_a = h_map[hatch_idx, None]
@@ -249,10 +276,11 @@ class FrameRenderer:
         # by slicing instead of testing every hatch pixel
         lab = self.raster.label.ravel()[hatch_idx]
         order = np.argsort(lab, kind="stable")
-        self._hatch_idx = hatch_idx[order]
-        self._hatch_packed = pack_rgb(hatch_rgb[order])
-        self._hatch_start = np.searchsorted(lab[order], np.arange(len(self.codes) + 1))
-        self._map_slice = sl
+        out['_hatch_idx'] = hatch_idx[order]
+        out['_hatch_packed'] = pack_rgb(hatch_rgb[order])
+        out['_hatch_start'] = np.searchsorted(lab[order], np.arange(len(self.codes) + 1))
+        out['_map_slice'] = sl
+        return out
 
     # -- frames ------------------------------------------------------------------------------
     @property
@@ -376,8 +404,9 @@ class FrameRenderer:
             yield self.frame(j)
 
     def close(self) -> None:
-        """Release the matplotlib figure."""
-        self._fig.clear()
+        """Drop this renderer's references (the shared figure is freed with its cache entry)."""
+        self._sprites = None  # type: ignore[assignment]
+        self._dyn = None
 
 
 def _labels_per_period(labels: Any, k: int, n_periods: int) -> tuple[tuple[str, ...], ...]:
