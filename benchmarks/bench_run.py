@@ -269,7 +269,7 @@ def bench_size(n: int, periods: int, a: argparse.Namespace, root: Path) -> None:
         secs, rss, _ = _timed(_mapdrift("run", str(files["config"]), "--out", str(out), "--force"))
         label = "mapdrift run (every step)"
     man = json.loads((out / "manifest.json").read_text())
-    timings = man.get("timings", {})
+    timings = man.get("timings_s", {})
     steps = ", ".join(f"{k} {v:.1f}" for k, v in timings.items())
     print(f"{label}: {secs:.1f} s wall ({secs / 60:.2f} min), peak {rss:.0f} MB", flush=True)
     print(f"  steps (s): {steps}")
