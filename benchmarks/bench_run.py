@@ -228,15 +228,25 @@ def bench_size(n: int, periods: int, a: argparse.Namespace, root: Path) -> None:
     folder.mkdir(parents=True, exist_ok=True)
     t0 = time.perf_counter()
     files = make_files(n, periods, folder)
-    print(f"\n== {n:,} tracts x {periods} years (files written in {time.perf_counter() - t0:.0f} s: "
-          f"gpkg {files['gpkg'].stat().st_size / 1e6:.0f} MB, csv {files['csv'].stat().st_size / 1e6:.0f} MB)",
-          flush=True)
+    print(
+        f"\n== {n:,} tracts x {periods} years (files written in {time.perf_counter() - t0:.0f} s: "
+        f"gpkg {files['gpkg'].stat().st_size / 1e6:.0f} MB, csv {files['csv'].stat().st_size / 1e6:.0f} MB)",
+        flush=True,
+    )
     plain, _ = _child("plain", str(files["gpkg"]), str(files["csv"]))
-    print(f"plain geopandas+pandas read: {plain['s']:.1f} s, peak {plain['rss_mb']:.0f} MB", flush=True)
+    print(
+        f"plain geopandas+pandas read: {plain['s']:.1f} s, peak {plain['rss_mb']:.0f} MB",
+        flush=True,
+    )
     size = a.size
     naive, _ = _child(
-        "naive", str(files["gpkg"]), str(files["csv"]), "--naive-frames", str(a.naive_frames),
-        "--size", size,
+        "naive",
+        str(files["gpkg"]),
+        str(files["csv"]),
+        "--naive-frames",
+        str(a.naive_frames),
+        "--size",
+        size,
     )
     print(
         f"naive plot loop: read+prep {naive['prep_s']:.1f} s, {naive['frames_timed']} frames in "
@@ -247,8 +257,16 @@ def bench_size(n: int, periods: int, a: argparse.Namespace, root: Path) -> None:
     # mapdrift animate from files to GIF, end to end through the CLI
     gif = folder / "animation.gif"
     secs, rss, _ = _timed(
-        _mapdrift("animate", "--config", str(files["config"]), "--out", str(gif), "--force",
-                  "--size", size)
+        _mapdrift(
+            "animate",
+            "--config",
+            str(files["config"]),
+            "--out",
+            str(gif),
+            "--force",
+            "--size",
+            size,
+        )
     )
     print(
         f"mapdrift animate -> GIF: {secs:.1f} s end to end (CLI, imports included), peak {rss:.0f} MB, "
@@ -260,10 +278,18 @@ def bench_size(n: int, periods: int, a: argparse.Namespace, root: Path) -> None:
     out = folder / "run"
     skip = n >= a.skip_clusters_from
     if skip:
-        secs, rss, _ = _timed([
-            sys.executable, __file__, "--child", "pipeline", str(files["config"]), str(out),
-            "--skip", "clusters,whats-new",
-        ])
+        secs, rss, _ = _timed(
+            [
+                sys.executable,
+                __file__,
+                "--child",
+                "pipeline",
+                str(files["config"]),
+                str(out),
+                "--skip",
+                "clusters,whats-new",
+            ]
+        )
         label = "check + classify + changes + animate + units + brief (clusters skipped)"
     else:
         secs, rss, _ = _timed(_mapdrift("run", str(files["config"]), "--out", str(out), "--force"))

@@ -39,6 +39,9 @@ __all__ = ["FrameRenderer", "pack_rgb", "render_frames", "unit_rings_px", "unpac
 
 log = logging.getLogger(__name__)
 
+#: Units drawn smaller than this many pixels are not outlined (see ``_dynamic_sprites``).
+OUTLINE_MIN_PX = 30.0
+
 _RINGS = ObjectCache(4)  # unit rings in frame pixels, per (geometry, map box)
 _STATIC = ObjectCache(6)  # base frame, overlay, hatch, dynamic figure and sprites, per map
 
@@ -259,15 +262,15 @@ class FrameRenderer:
         # over the map box: only pixels the overlay touches are composited per frame
         sl = (slice(tr.top, tr.top + tr.height), slice(tr.left, tr.left + tr.width))
         a_map = alpha[sl][..., 0].ravel()
-        out['_ov_idx'] = np.flatnonzero(a_map > 0)
-        a_sel = a_map[out['_ov_idx'], None]
-        c_sel = over[sl][..., :3].reshape(-1, 3)[out['_ov_idx']]
+        out["_ov_idx"] = np.flatnonzero(a_map > 0)
+        a_sel = a_map[out["_ov_idx"], None]
+        c_sel = over[sl][..., :3].reshape(-1, 3)[out["_ov_idx"]]
         # integer compositing: out = (px * (256 - a) + c * a) >> 8, a and c * a in 1/256 steps
         # (a fourth, zero channel so the packed pixels are blended as whole words)
-        out['_ov_a'] = np.round(a_sel * 256).astype(np.uint16)
-        ov_c = np.zeros((len(out['_ov_idx']), 4), dtype=np.uint16)
+        out["_ov_a"] = np.round(a_sel * 256).astype(np.uint16)
+        ov_c = np.zeros((len(out["_ov_idx"]), 4), dtype=np.uint16)
         ov_c[:, :3] = np.round(c_sel * a_sel * 255 * 256).astype(np.uint16)
-        out['_ov_c'] = ov_c
+        out["_ov_c"] = ov_c
         h_map = hatch[sl].ravel()
         hatch_idx = np.flatnonzero(h_map > 0)
         hatch_a = h_map[hatch_idx, None]
@@ -276,10 +279,10 @@ class FrameRenderer:
         # by slicing instead of testing every hatch pixel
         lab = self.raster.label.ravel()[hatch_idx]
         order = np.argsort(lab, kind="stable")
-        out['_hatch_idx'] = hatch_idx[order]
-        out['_hatch_packed'] = pack_rgb(hatch_rgb[order])
-        out['_hatch_start'] = np.searchsorted(lab[order], np.arange(len(self.codes) + 1))
-        out['_map_slice'] = sl
+        out["_hatch_idx"] = hatch_idx[order]
+        out["_hatch_packed"] = pack_rgb(hatch_rgb[order])
+        out["_hatch_start"] = np.searchsorted(lab[order], np.arange(len(self.codes) + 1))
+        out["_map_slice"] = sl
         return out
 
     # -- frames ------------------------------------------------------------------------------
@@ -371,6 +374,10 @@ class FrameRenderer:
         if self.outlines is not None:
             units = np.unique(np.asarray(list(self.outlines[j]), dtype=np.int64))
             n_out = units.size
+            # outlines of units a few pixels across would only smear their fill colour (and at
+            # national scale thousands of them cost a vector pass per frame): only units of at
+            # least OUTLINE_MIN_PX pixels are outlined; the legend still counts every one
+            units = units[self.raster.area_px[units] >= OUTLINE_MIN_PX]
             segs = self._segments(units)
             if self.names is not None:
                 call = [self.names[u] for u in units]
