@@ -331,7 +331,12 @@ def _step_clusters(state: RunState) -> str:
 
     opt = state.section(ClusterOptions, "clusters")
     opt = replace(opt, smooth=None)  # smoothing, when asked, was applied to the panel already
-    result = analyse_clusters(state.panel, state.classes, opt, weights=_weights(state))
+    from mapdrift.compute import ComputeSpec, executor_for
+
+    with executor_for(state.section(ComputeSpec, "compute")) as executor:
+        result = analyse_clusters(
+            state.panel, state.classes, opt, weights=_weights(state), executor=executor
+        )
     state.results["clusters"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_clusters(result, state.staging)
