@@ -42,6 +42,7 @@ from pathlib import Path
 
 os.environ.setdefault("MPLBACKEND", "Agg")
 
+LAST_CPU = 0.0
 STATES = [1, 4, 5, 6, 8, 9, 12, 13, 17, 26, 36, 39, 42, 48, 53]
 
 
@@ -146,6 +147,7 @@ def child_naive(gpkg: str, csv: str, frames: int, size: tuple[int, int]) -> dict
     import pandas as pd
 
     t0 = time.perf_counter()
+    c0 = time.process_time()
     g = gpd.read_file(gpkg, engine="pyogrio")
     t = pd.read_csv(csv, dtype={"unit_id": str})
     t["unit_id"] = t["unit_id"].str.zfill(11)
@@ -156,8 +158,10 @@ def child_naive(gpkg: str, csv: str, frames: int, size: tuple[int, int]) -> dict
     edges = np.nanquantile(wide.to_numpy(), [0.2, 0.4, 0.6, 0.8])
     cols = np.array(["#fef0d9", "#fdcc8a", "#fc8d59", "#e34a33", "#b30000", "#cfcfcf"])
     t_prep = time.perf_counter() - t0
+    c_prep = time.process_time() - c0
     n = min(frames, len(years)) if frames > 0 else len(years)
     t1 = time.perf_counter()
+    c1 = time.process_time()
     images = []
     with tempfile.TemporaryDirectory() as d:
         for j in range(n):
@@ -173,7 +177,9 @@ def child_naive(gpkg: str, csv: str, frames: int, size: tuple[int, int]) -> dict
             images.append(imageio.imread(p))
         imageio.mimsave(os.path.join(d, "a.gif"), images, duration=1000)
     t_frames = time.perf_counter() - t1
+    c_frames = time.process_time() - c1
     return {
+        "cpu_total_s": c_prep + c_frames * len(years) / n,
         "prep_s": t_prep,
         "frames_timed": n,
         "frames_s": t_frames,
@@ -196,7 +202,12 @@ def _rss() -> float:
 
 
 def _timed(cmd: list[str], cwd: Path | None = None) -> tuple[float, float, str]:
-    """Run ``cmd``; wall seconds, peak RSS (MB, the process tree's largest) and stdout."""
+    """Run ``cmd``; wall seconds, peak RSS (MB, the process tree's largest) and stdout.
+
+    The CPU seconds (user + system) of the last command are kept in ``LAST_CPU``: on a shared
+    machine they vary much less than wall time.
+    """
+    global LAST_CPU
     t0 = time.perf_counter()
     with tempfile.TemporaryFile("w+") as so, tempfile.TemporaryFile("w+") as se:
         p = subprocess.Popen(cmd, stdout=so, stderr=se, cwd=cwd)
@@ -206,6 +217,7 @@ def _timed(cmd: list[str], cwd: Path | None = None) -> tuple[float, float, str]:
         se.seek(0)
         out, err = so.read(), se.read()
     p.returncode = os.waitstatus_to_exitcode(status)
+    LAST_CPU = ru.ru_utime + ru.ru_stime
     if p.returncode != 0:
         raise SystemExit(f"{' '.join(cmd[:4])} ... failed ({p.returncode}):\n{err[-3000:]}")
     return secs, ru.ru_maxrss / 1024, out
@@ -269,8 +281,10 @@ def bench_size(n: int, periods: int, a: argparse.Namespace, root: Path) -> None:
         )
     )
     print(
-        f"mapdrift animate -> GIF: {secs:.1f} s end to end (CLI, imports included), peak {rss:.0f} MB, "
-        f"{gif.stat().st_size / 1e6:.1f} MB; naive/mapdrift = {naive['total_s'] / secs:.1f}x",
+        f"mapdrift animate -> GIF: {secs:.1f} s end to end (CLI, imports included; CPU "
+        f"{LAST_CPU:.1f} s), peak {rss:.0f} MB, "
+        f"{gif.stat().st_size / 1e6:.1f} MB; naive/mapdrift = {naive['total_s'] / secs:.1f}x wall, "
+        f"{naive['cpu_total_s'] / LAST_CPU:.1f}x CPU (naive after its imports, mapdrift with them)",
         flush=True,
     )
     if a.animate_only:
@@ -297,7 +311,10 @@ def bench_size(n: int, periods: int, a: argparse.Namespace, root: Path) -> None:
     man = json.loads((out / "manifest.json").read_text())
     timings = man.get("timings_s", {})
     steps = ", ".join(f"{k} {v:.1f}" for k, v in timings.items())
-    print(f"{label}: {secs:.1f} s wall ({secs / 60:.2f} min), peak {rss:.0f} MB", flush=True)
+    print(
+        f"{label}: {secs:.1f} s wall ({secs / 60:.2f} min; CPU {LAST_CPU:.1f} s), peak {rss:.0f} MB",
+        flush=True,
+    )
     print(f"  steps (s): {steps}")
     load = timings.get("load")
     if load:
