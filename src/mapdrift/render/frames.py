@@ -19,6 +19,7 @@ to be present, so every frame shares one legend.
 
 from __future__ import annotations
 
+import functools
 import logging
 from collections.abc import Iterator, Sequence
 from typing import Any
@@ -60,6 +61,14 @@ def unit_rings_px(geoms: Any, transform: Any) -> tuple[list[np.ndarray], np.ndar
     xy = np.column_stack([cx + transform.left, cy + transform.top])
     cuts = np.flatnonzero(np.diff(ring_of)) + 1
     return np.split(xy, cuts), part_of[ring_part]
+
+
+@functools.lru_cache(maxsize=4)
+def _hatch(h: int, w: int, spacing: float, width: float) -> np.ndarray:
+    """The no-data hatching alpha of a frame size (read-only, shared)."""
+    a = hatch_alpha(h, w, spacing=spacing, width=width)
+    a.setflags(write=False)
+    return a
 
 
 def _rgba(fig: Any) -> np.ndarray:
@@ -241,12 +250,9 @@ class FrameRenderer:
             dots=self.raster.dot_centres,
             dot_px=self._min_unit_px,
         )
-        over = _rgba(fig).astype(np.float32) / 255.0
+        over8 = np.array(_rgba(fig))  # uint8 [H, W, 4]; float work only where it is drawn
         fig.clear()
-        alpha = over[..., 3:4]
-        hatch = hatch_alpha(
-            L.height, L.width, spacing=max(6.0 * L.s, 4.0), width=max(1.3 * L.s, 1.0)
-        )
+        hatch = _hatch(L.height, L.width, max(6.0 * L.s, 4.0), max(1.3 * L.s, 1.0))
         # base frame: paper, the no-data swatch hatched exactly as on the map, furniture on top
         base = np.empty((L.height, L.width, 3), dtype=np.float32)
         base[:] = self._paper / 255.0
@@ -255,16 +261,27 @@ class FrameRenderer:
         hat = np.array(hex_to_rgb8(NODATA_HATCH), np.float32) / 255.0
         a = hatch[y : y + sh, x : x + sw, None]
         base[y : y + sh, x : x + sw] = nod * (1 - a) + hat * a
-        base = base * (1 - alpha) + over[..., :3] * alpha
+        flat8 = over8.reshape(-1, 4)
+        touched = np.flatnonzero(flat8[:, 3])
+        a_t = flat8[touched, 3:4].astype(np.float32) / 255.0
+        c_t = flat8[touched, :3].astype(np.float32) / 255.0
+        bflat = base.reshape(-1, 3)
+        bflat[touched] = bflat[touched] * (1 - a_t) + c_t * a_t
+        swatch = np.zeros((L.height, L.width), dtype=bool)
+        swatch[y : y + sh, x : x + sw] = True
+        work = np.union1d(touched, np.flatnonzero(swatch))
         out: dict[str, Any] = {}
-        out["_base"] = np.round(base * 255).astype(np.uint8)
-        out["_base_packed"] = pack_rgb(out["_base"])
+        base8 = np.empty((L.height, L.width, 3), dtype=np.uint8)
+        base8[:] = self._paper  # = round(paper / 255 * 255) where nothing is drawn
+        base8.reshape(-1, 3)[work] = np.round(bflat[work] * 255).astype(np.uint8)
+        out["_base"] = base8
+        out["_base_packed"] = pack_rgb(base8)
         # over the map box: only pixels the overlay touches are composited per frame
         sl = (slice(tr.top, tr.top + tr.height), slice(tr.left, tr.left + tr.width))
-        a_map = alpha[sl][..., 0].ravel()
-        out["_ov_idx"] = np.flatnonzero(a_map > 0)
-        a_sel = a_map[out["_ov_idx"], None]
-        c_sel = over[sl][..., :3].reshape(-1, 3)[out["_ov_idx"]]
+        box8 = over8[sl].reshape(-1, 4)
+        out["_ov_idx"] = np.flatnonzero(box8[:, 3])
+        a_sel = box8[out["_ov_idx"], 3:4].astype(np.float32) / 255.0
+        c_sel = box8[out["_ov_idx"], :3].astype(np.float32) / 255.0
         # integer compositing: out = (px * (256 - a) + c * a) >> 8, a and c * a in 1/256 steps
         # (a fourth, zero channel so the packed pixels are blended as whole words)
         out["_ov_a"] = np.round(a_sel * 256).astype(np.uint16)
