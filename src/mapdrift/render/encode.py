@@ -259,9 +259,10 @@ def pad_even(frame: np.ndarray, fill: Sequence[int] = (255, 255, 255)) -> np.nda
     return out
 
 
-#: x264 speed preset. ``veryfast`` against ``medium``, measured on our frames (flat class colours,
-#: antialiased edges, text) at the same CRF: same PSNR/SSIM to the source within noise, several
-#: times faster (see benchmarks/bench_render.py --mp4); the file is a little larger.
+#: x264 speed preset. Measured on our frames (10,000 units, 6 periods, 1280x720, CRF 18, decoded
+#: back and compared with the source frames): medium 5.4 s, 29.78 dB PSNR, 1.97 MB; veryfast
+#: 2.6 s, 29.65 dB, 2.00 MB; ultrafast 1.5 s, 29.77 dB but 2.39 MB. veryfast keeps the quality
+#: and the size at half the time (the PSNR is bounded by yuv420p chroma on fine class edges).
 X264_PRESET = "veryfast"
 
 
