@@ -124,16 +124,19 @@ class FixedPalette:
 def _nearest_to_cells(colours: np.ndarray) -> np.ndarray:
     """Index of the palette colour nearest (Euclidean RGB) each 5-bit cell centre, uint8.
 
-    Brute force in float64 (exact for these integer and half-integer values), in chunks.
+    Exact integer arithmetic: with ``x`` the cell centre (``8 i + 3.5``), ``|x - c|^2 - |x|^2 =
+    |c|^2 - (2 x) . c`` and ``2 x = 16 i + 7`` is an integer, so the argmin (first index on ties)
+    is the exact one, computed in small int32 blocks (about twice as fast as float64).
     """
-    centres = np.arange(32, dtype=np.float64) * 8 + 3.5
-    cell = np.stack(np.meshgrid(centres, centres, centres, indexing="ij"), -1).reshape(-1, 3)
-    c = colours.astype(np.float64)
+    c = colours.astype(np.int32)
     c2 = (c * c).sum(axis=1)
+    twice = np.arange(32, dtype=np.int32) * 16 + 7
+    cell = np.stack(np.meshgrid(twice, twice, twice, indexing="ij"), -1).reshape(-1, 3)
+    ct = np.ascontiguousarray(c.T)
     out = np.empty(len(cell), dtype=np.uint8)
-    step = 4096
+    step = 512
     for lo in range(0, len(cell), step):
-        d = c2[None, :] - 2.0 * (cell[lo : lo + step] @ c.T)
+        d = c2[None, :] - cell[lo : lo + step] @ ct
         out[lo : lo + step] = d.argmin(axis=1)
     return out
 
