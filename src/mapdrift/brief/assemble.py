@@ -52,7 +52,7 @@ def headline(state: RunState) -> list[tuple[str, str]]:
             noise = int(((ch.units["n_noise_moves"] > 0) & ~ch.units["jump"]).sum())
             out.append(
                 (
-                    f"units that credibly jumped {ch.options.jump}+ classes in one step{back}",
+                    f"units that credibly jumped {ch.options.jump}+ classes in {p.step_label}{back}",
                     f"{int(ch.units['jump'].sum())}",
                 )
             )
@@ -66,7 +66,7 @@ def headline(state: RunState) -> list[tuple[str, str]]:
         else:
             out.append(
                 (
-                    f"units that jumped {ch.options.jump}+ classes in one step{back} (not tested "
+                    f"units that jumped {ch.options.jump}+ classes in {p.step_label}{back} (not tested "
                     "against noise: no counts given)",
                     f"{int(ch.units['jump'].sum())}",
                 )
@@ -95,7 +95,7 @@ def headline(state: RunState) -> list[tuple[str, str]]:
             )
         )
         sig = cl.trends["significant"].astype(bool)
-        for word in ("rising", "falling"):
+        for word in ("rising", "falling") if not state.trends_skipped else ():
             n = int((sig & (cl.trends["direction"] == word)).sum())
             out.append((f"units with a significant {word} trend", f"{n}"))
     nd = int(np.isnan(p.values).all(axis=1).sum())
@@ -119,6 +119,8 @@ def method(state: RunState) -> list[tuple[str, str]]:
             describe(b) + ("" if c.per_period else ": " + " | ".join(b.labels)),
         ),
     ]
+    if state.view:
+        rows.append(("View", state.view.removeprefix("view: ")))
     if c.per_period:
         rows.append(("Warning", c.warning or ""))
     ch = state.results.get("changes")
@@ -146,7 +148,9 @@ def method(state: RunState) -> list[tuple[str, str]]:
         rows.append(
             (
                 "Trends",
-                f"Mann-Kendall test with Theil-Sen slope on {cl.trend_input}, {cl.significance.replace('per period', 'across units')}",
+                f"Mann-Kendall test with Theil-Sen slope on {cl.trend_input}, {cl.significance.replace('per period', 'across units')}"
+                if not state.trends_skipped
+                else f"not estimated: {plural(p.n_periods, 'period')} are too few for a trend",
             )
         )
     if state.run.previous is not None:
@@ -355,6 +359,7 @@ def build_brief(state: RunState) -> Brief:
                 ),
             )
         )
+    if cl is not None and not state.trends_skipped:
         tr = cl.trends
         sig = tr[tr["significant"].astype(bool)]
         sig = sig.iloc[np.argsort(-np.abs(sig["theil_sen_slope"].to_numpy()), kind="stable")]
