@@ -194,6 +194,22 @@ def _previous_breaks(state: RunState) -> Path | None:
     return path
 
 
+def _same_view(state: RunState, breaks: Path) -> None:
+    """Stop when last year's breaks were fitted on values seen through another view (their
+    numbers would mean something else), unless the breaks are refitted."""
+    manifest = breaks.parent / "manifest.json"
+    if state.run.rebreak or not manifest.exists():
+        return
+    before = json.loads(manifest.read_text(encoding="utf-8")).get("parameters", {}).get("view")
+    now = state.view or "values as read"
+    if before is not None and before != now:
+        raise ConfigError(
+            f"previous = {state.run.previous}: its breaks are for {before.removeprefix('view: ')}, "
+            f"but this run's values are {now.removeprefix('view: ')}; use the same view "
+            "([inputs] view / --view) or refit the breaks with --rebreak"
+        )
+
+
 def _step_classify(state: RunState) -> str:
     from mapdrift.atomic import write_text
     from mapdrift.breaks import classify_spec, describe
@@ -204,6 +220,7 @@ def _step_classify(state: RunState) -> str:
     reused_from = None
     prev = _previous_breaks(state)
     if prev is not None and breaks_file is None:
+        _same_view(state, prev)
         if state.run.rebreak:
             state.notices.append(REBREAK_NOTICE)
             state.findings.append(Finding("warning", "breaks-refitted", REBREAK_NOTICE))
