@@ -17,7 +17,8 @@ import logging
 import os
 import shutil
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
 from datetime import date
 from pathlib import Path
@@ -27,7 +28,7 @@ from mapdrift.config import BriefSpec, ClassSpec, Config, RunSpec, merge
 from mapdrift.errors import ConfigError, InputError, MapdriftError, StepError
 from mapdrift.findings import Finding, plural, units_of
 
-__all__ = ["STEPS", "RunResult", "RunState", "default_out", "prepare_out", "run"]
+__all__ = ["STEPS", "RunResult", "RunState", "default_out", "prepare_out", "run", "run_inputs"]
 
 log = logging.getLogger(__name__)
 Progress = Callable[[str], None]
@@ -105,13 +106,43 @@ def default_out(config: Config) -> Path:
     return out
 
 
-def prepare_out(out: Path, *, force: bool) -> None:
-    """Refuse to touch a non-empty ``out`` unless ``force``."""
-    from mapdrift.errors import OutputExistsError
+def run_inputs(config: Config) -> list[Path]:
+    """Every file or folder this run reads: the config and each path-valued key."""
+    found: list[Path] = [config.path] if config.path is not None else []
+    for values in config.sections.values():
+        for v in values.values():
+            for item in v if isinstance(v, list | tuple) else (v,):
+                if isinstance(item, Path):
+                    found.append(item)
+    return found
 
-    if out.exists() and (not out.is_dir() or any(out.iterdir())) and not force:
-        raise OutputExistsError(
-            f"{out} already holds an earlier run; pass --force to replace it or choose another --out"
+
+def prepare_out(out: Path, *, force: bool, inputs: list[Path] | None = None) -> None:
+    """Refuse an ``out`` we may not write: the working folder or one above it, a file, a folder
+    we cannot write in, or an existing folder :func:`mapdrift.outfolder.check_replaceable`
+    refuses (not an earlier run, holds inputs or unknown files; an earlier run without
+    ``force``)."""
+    from mapdrift.outfolder import check_replaceable
+
+    _check_target(out)
+    check_replaceable(out, inputs or [], force=force)
+
+
+def _check_target(out: Path) -> None:
+    here = Path.cwd().resolve()
+    target = out.resolve()
+    if target == here or target in here.parents:
+        raise ConfigError(
+            f"--out {out} is the working folder or one above it; mapdrift writes a new folder, "
+            "e.g. --out outputs/run"
+        )
+    if out.exists() and not out.is_dir():
+        raise ConfigError(f"--out {out} is a file; give a folder name, e.g. --out outputs/run")
+    existing = next(p for p in target.parents if p.exists())
+    if not os.access(existing, os.W_OK | os.X_OK):
+        raise ConfigError(
+            f"--out {out}: cannot write in {existing} (permission denied); choose a folder you "
+            "can write to"
         )
 
 
@@ -527,17 +558,7 @@ STEPS: list[tuple[str, Callable[[RunState], str]]] = [
 ]
 
 
-def _swap_in(staging: Path, out: Path) -> None:
-    old = None
-    if out.exists():
-        old = out.with_name(f".{out.name}.old-{os.getpid()}")
-        os.replace(out, old)
-    os.replace(staging, out)
-    if old is not None:
-        shutil.rmtree(old, ignore_errors=True)
-
-
-def _manifest(state: RunState) -> None:
+def _manifest(state: RunState, replaces: str | None = None) -> None:
     from mapdrift.brief.manifest import write_manifest
 
     c = state.classes
@@ -576,7 +597,31 @@ def _manifest(state: RunState) -> None:
         findings=state.findings,
         timings=state.timings,
         summaries=state.summaries,
+        replaces=replaces,
     )
+
+
+@contextmanager
+def _terminate_as_exit() -> Iterator[None]:
+    """Turn SIGTERM (and SIGHUP) into SystemExit while a run works, so its clean-up runs: the
+    staging folder is removed and encoders are stopped instead of being left behind."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    wanted = [s for s in ("SIGTERM", "SIGHUP") if hasattr(signal, s)]
+
+    def _exit(signum: int, frame: Any) -> None:
+        raise SystemExit(128 + signum)
+
+    previous = {name: signal.signal(getattr(signal, name), _exit) for name in wanted}
+    try:
+        yield
+    finally:
+        for name, handler in previous.items():
+            signal.signal(getattr(signal, name), handler)
 
 
 def run(
@@ -591,17 +636,48 @@ def run(
     """Run every step into ``out``; raise StepError naming the failed step (``out`` untouched).
 
     ``progress`` gets one summary line per finished step; ``on_start`` the name of each step as
-    it starts (the CLI shows a spinner with it).
+    it starts (the CLI shows a spinner with it). ``out`` is checked before any work and again
+    at the swap (see :mod:`mapdrift.outfolder`); leftovers of killed runs are cleaned first.
     """
+    from mapdrift.outfolder import lock_out, recover, set_aside_for, staging_for, swap_in
+
     run_spec: RunSpec = merge(RunSpec, config.section("run"), {})
     out = Path(out or run_spec.out or default_out(config))
-    prepare_out(out, force=force)
+    inputs = run_inputs(config)
+    _check_target(out)
     out.parent.mkdir(parents=True, exist_ok=True)
-    staging = out.with_name(f".{out.name}.partial-{os.getpid()}")
-    shutil.rmtree(staging, ignore_errors=True)
-    staging.mkdir(parents=True)
-    state = RunState(config=config, staging=staging, run=run_spec)
-    handler = logging.FileHandler(staging / "run.log", encoding="utf-8")
+    with lock_out(out), _terminate_as_exit():
+        recovered = recover(out)  # leftovers of killed runs first: it may restore `out`
+        for line in recovered:
+            log.warning(line)
+            if progress is not None:
+                progress(f"{'recover':<10} {line}")
+        prepare_out(out, force=force, inputs=inputs)  # before any work
+        staging = staging_for(out)
+        staging.mkdir(parents=True)
+        try:
+            state = RunState(config=config, staging=staging, run=run_spec)
+            state.findings += [Finding("warning", "out-recovered", m) for m in recovered]
+            _run_steps(state, out, steps, progress, on_start)
+            _manifest(state, replaces=set_aside_for(out).name if out.exists() else None)
+            swap_in(staging, out, inputs, force=force)
+        finally:
+            shutil.rmtree(staging, ignore_errors=True)
+    outputs = tuple(sorted(p for p in out.rglob("*") if p.is_file()))
+    return RunResult(
+        out, tuple(state.findings), dict(state.timings), dict(state.summaries), outputs
+    )
+
+
+def _run_steps(
+    state: RunState,
+    out: Path,
+    steps: list[tuple[str, Callable[[RunState], str]]] | None,
+    progress: Progress | None,
+    on_start: Progress | None,
+) -> None:
+    """Run every step into the staging folder, logging to its ``run.log``."""
+    handler = logging.FileHandler(state.staging / "run.log", encoding="utf-8")
     handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
     root = logging.getLogger("mapdrift")
     root.addHandler(handler)
@@ -621,23 +697,15 @@ def run(
             except Exception as exc:
                 log.info("step %s failed", name, exc_info=True)
                 raise StepError(
-                    f"step {name!r} failed: {type(exc).__name__}: {exc}; earlier outputs in {out} were left untouched"
+                    f"step {name!r} failed: {type(exc).__name__}: {exc}; earlier outputs in "
+                    f"{out} were left untouched"
                 ) from exc
             state.timings[name] = round(time.perf_counter() - t0, 3)
             state.summaries[name] = summary
             log.info("%s: %s", name, summary)
             if progress is not None:
                 progress(f"{name:<10} {summary}")
-        root.removeHandler(handler)  # close the log before hashing it into the manifest
-        handler.close()
-        _manifest(state)
-        _swap_in(staging, out)
-    finally:
+    finally:  # close the log before hashing it into the manifest
         root.removeHandler(handler)
         handler.close()
         root.setLevel(old_level)
-        shutil.rmtree(staging, ignore_errors=True)
-    outputs = tuple(sorted(p for p in out.rglob("*") if p.is_file()))
-    return RunResult(
-        out, tuple(state.findings), dict(state.timings), dict(state.summaries), outputs
-    )
