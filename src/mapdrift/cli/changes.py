@@ -147,8 +147,8 @@ def changes(
         f"{int(u['spike'].sum())} spikes, {int(u['stayed_top'].sum())} stayed in top class, "
         f"{int(u['stayed_bottom'].sum())} stayed in bottom class"
     )
-    if result.warning:
-        echo(typer.style(f"warning: {result.warning}", fg=typer.colors.YELLOW))
+    if cls.warning:  # (result.warning also names the view, said in the summary above)
+        echo(typer.style(f"warning: {cls.warning}", fg=typer.colors.YELLOW))
     shown = [
         f
         for f in result.findings
