@@ -418,8 +418,10 @@ def _step_changes(state: RunState) -> str:
     result = analyse_changes(
         panel, classes, opt, weights=_weights(state) if opt.spatial and same_weights else None
     )
-    if state.view:  # every table says which view its values are in
-        result = replace(result, warning=" ".join(x for x in (result.warning, state.view) if x))
+    if panel.meta.view:  # every table says which view its values are in
+        result = replace(
+            result, warning=" ".join(x for x in (result.warning, panel.meta.view) if x)
+        )
     state.results["changes"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_changes(result, state.staging, units_table=False)
