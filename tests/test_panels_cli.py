@@ -131,6 +131,7 @@ def test_us_income_through_every_command_with_flags_only(runner, tmp_path):
         app, ["changes", *base, "--view", "index:1929", "--out", str(tmp_path / "ch")]
     )
     assert res.exit_code == 0, res.output
+    assert res.output.startswith("data: 48 units x 81 periods")  # every data command
     first = (tmp_path / "ch/transitions.csv").read_text().splitlines()[0]
     assert first == "# view: values divided by each unit's 1929 value (1 = its 1929 level)"
     factor = tmp_path / "factor.csv"
@@ -142,6 +143,7 @@ def test_us_income_through_every_command_with_flags_only(runner, tmp_path):
          "--out", str(tmp_path / "cl")],
     )  # fmt: skip
     assert res.exit_code == 0, res.output
+    assert res.output.startswith("data: 48 units x 81 periods")
     assert "view: values deflated by cpi from factor.csv to 2009 terms" in res.output
     assert (tmp_path / "cl/trends.csv").read_text().startswith("# view: values deflated")
 

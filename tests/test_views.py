@@ -174,3 +174,12 @@ def test_common_trend_quiet_on_the_demo_county():
     panel = load_panel(InputSpec(**cfg.section("inputs")))
     cls = classify_spec(panel, ClassSpec(**cfg.section("classes")))
     assert common_trend(panel, cls.codes, k=cls.k) is None
+
+
+def test_a_bad_view_in_a_config_stops_when_the_config_is_read(tmp_path):
+    from mapdrift.config import load_config
+
+    path = tmp_path / "bad.toml"
+    path.write_text('[inputs]\ngeometry = "x.gpkg"\nview = "relativ"\n', encoding="utf-8")
+    with pytest.raises(ConfigError, match=r"bad.toml: \[inputs\] --view 'relativ' is not a valid"):
+        load_config(path)
