@@ -188,6 +188,14 @@ def _weights(state: RunState) -> Any:
 
 
 def _step_smooth(state: RunState) -> str:
+    """Rate smoothing, then the view (smoothing works on counts, so it comes first); one step,
+    so the steps up to the classes stay load, smooth, classify."""
+    done = _smooth(state)
+    view = _view(state)
+    return f"{done}; {view}" if view else done
+
+
+def _smooth(state: RunState) -> str:
     from mapdrift.clusters import ClusterOptions
 
     opt = state.section(ClusterOptions, "clusters")
@@ -202,12 +210,12 @@ def _step_smooth(state: RunState) -> str:
     return f"{opt.smooth} smoothing applied to maps and statistics"
 
 
-def _step_view(state: RunState) -> str:
+def _view(state: RunState) -> str:
     from mapdrift.views import apply_view, parse_view
 
     view = parse_view(state.inputs.view)
     if view.is_raw:
-        return "values as read (no view)"
+        return ""
     state.panel = apply_view(state.panel, view, spec=state.inputs)
     state.findings.append(state.panel.findings[-1])
     return state.panel.meta.view
@@ -548,7 +556,6 @@ def _step_brief(state: RunState) -> str:
 STEPS: list[tuple[str, Callable[[RunState], str]]] = [
     ("load", _step_load),
     ("smooth", _step_smooth),
-    ("view", _step_view),
     ("classify", _step_classify),
     ("changes", _step_changes),
     ("clusters", _step_clusters),

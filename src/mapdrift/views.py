@@ -430,7 +430,7 @@ def common_trend(
                 parts.append(f"one middle class in {_spans(labels, mid)}")
             j = int(crowded[np.argmax(top[crowded] / np.maximum(n_with[crowded], 1))])
             crowded_txt = (
-                f"; {len(crowded)} of {len(labels)} periods put {CROWDED_SHARE:.0%} or more of "
+                f", and {len(crowded)} of {len(labels)} periods put {CROWDED_SHARE:.0%} or more of "
                 f"their units in one class ({'; '.join(parts)}; e.g. {labels[j]}: {int(top[j])} "
                 f"of {int(n_with[j])})"
             )
@@ -439,9 +439,9 @@ def common_trend(
         return None
     word = "rose" if med[-1] > med[0] else "fell"
     spread_txt = (
-        f" (its range is {shift / spread:.0f} times the typical spread between units in a period)"
+        f" {shift / spread:.0f} times the typical spread between units in a period"
         if spread > 0
-        else ""
+        else " large while units in a period hardly differ"
     )
     current = view if isinstance(view, View) else parse_view(view)
     options = [
@@ -453,9 +453,9 @@ def common_trend(
     return Finding(
         "warning",
         "values-common-trend",
-        f"the values share a strong common trend: the period median {word} from "
-        f"{_fmt(med[0])} ({labels[cols[0]]}) to {_fmt(med[-1])} ({labels[cols[-1]]}){spread_txt}"
-        f"{crowded_txt}; pooled classes and class changes then mostly show that trend, not how "
-        f"units differ; to compare units, use {', '.join(advice[:-1])} or {advice[-1]}; in a "
-        'config: view = "relative-median" under [inputs]',
+        f"the values share a strong common trend (the period median {word} from "
+        f"{_fmt(med[0])} in {labels[cols[0]]} to {_fmt(med[-1])} in {labels[cols[-1]]}), so "
+        "pooled classes and class changes mostly show that trend, not how units differ; to "
+        f"compare units, use {', '.join(advice[:-1])} or {advice[-1]} (in a config: view = "
+        f'"relative-median" under [inputs]); the median\'s range is{spread_txt}{crowded_txt}',
     )
