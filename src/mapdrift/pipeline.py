@@ -448,7 +448,12 @@ def _step_clusters(state: RunState) -> str:
     opt = replace(opt, smooth=None)  # smoothing, when asked, was applied to the panel already
     if opt.persist > state.panel.n_periods:  # "steady for 3 periods" with 2: all there are
         opt = replace(opt, persist=state.panel.n_periods)
-    result = analyse_clusters(state.panel, state.classes, opt, weights=_weights(state))
+    from mapdrift.compute import ComputeSpec, executor_for
+
+    with executor_for(state.section(ComputeSpec, "compute")) as executor:
+        result = analyse_clusters(
+            state.panel, state.classes, opt, weights=_weights(state), executor=executor
+        )
     state.results["clusters"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_clusters(result, state.staging, warning=state.view or None)

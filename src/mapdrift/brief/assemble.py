@@ -50,7 +50,7 @@ def headline(state: RunState) -> list[tuple[str, str]]:
         back = f" ({spikes} came straight back: check the data)" if spikes else ""
         out.append(
             (
-                f"units that jumped {ch.options.jump}+ classes in one year{back}",
+                f"units that jumped {ch.options.jump}+ classes in {p.step_label}{back}",
                 f"{int(ch.units['jump'].sum())}",
             )
         )

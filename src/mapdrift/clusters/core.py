@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import logging
 from dataclasses import dataclass, field
+from functools import partial
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -14,6 +15,7 @@ from mapdrift.clusters.local import LocalResult, gi_star_panel, local_moran_pane
 from mapdrift.clusters.moran import MoranGlobal, moran_global_panel
 from mapdrift.clusters.multiple import CORRECTIONS, adjust, describe
 from mapdrift.clusters.trends import TrendResult, period_times, trends
+from mapdrift.compute import Executor, SerialExecutor
 from mapdrift.errors import ConfigError
 from mapdrift.findings import Finding, examples
 from mapdrift.weights import ISLAND_RULES, SpatialWeights, build_weights, parse_kind
@@ -202,12 +204,15 @@ def analyse_clusters(
     options: ClusterOptions | None = None,
     *,
     weights: SpatialWeights | None = None,
+    executor: Executor | None = None,
 ) -> ClusterResult:
     """Global and local spatial autocorrelation per period, cluster changes and unit trends.
 
     ``classes`` is accepted for the pipeline's uniform signature and not used (statistics use
     the values, not the classes). Missing values are left out per period; ``weights`` may be
-    passed to reuse weights built elsewhere.
+    passed to reuse weights built elsewhere. ``executor`` (:mod:`mapdrift.compute`) runs the four
+    independent statistics (local per period, global per period, local of the change, trends);
+    the default runs them here, a Dask executor on a cluster, with identical results.
     """
     from mapdrift.clusters.tables import build_frames
 
@@ -232,10 +237,6 @@ def analyse_clusters(
     labels_p = panel.period_labels
     n_t = len(labels_p)
 
-    local = _local(values, weights, opt)
-    p_adj, codes = _label(local, values, opt)
-    glob = tuple(moran_global_panel(values, weights, permutations=opt.permutations, seed=opt.seed))
-
     # local Moran of change between two periods
     a = panel.period_index(opt.change_from) if opt.change_from is not None else 0
     b = panel.period_index(opt.change_to) if opt.change_to is not None else n_t - 1
@@ -245,16 +246,20 @@ def analyse_clusters(
             f"{labels_p[a]} --to {labels_p[b]} (periods: {examples(labels_p, 6)})"
         )
     delta = (values[:, b] - values[:, a])[:, None]
-    ch_local = _local(delta, weights, opt)
+    # four independent computations, the same calls on every executor
+    local, glob_list, ch_local, tr = (executor or SerialExecutor()).run(
+        [
+            (_local, (values, weights, opt)),
+            (partial(moran_global_panel, permutations=opt.permutations, seed=opt.seed),
+             (values, weights)),
+            (_local, (delta, weights, opt)),
+            (partial(trends, alpha=opt.alpha, correction=opt.correction,
+                     min_periods=opt.min_periods), (values, period_times(panel.periods))),
+        ]
+    )  # fmt: skip
+    p_adj, codes = _label(local, values, opt)
+    glob = tuple(glob_list)
     _, ch_codes = _label(ch_local, delta, opt)
-
-    tr = trends(
-        values,
-        period_times(panel.periods),
-        alpha=opt.alpha,
-        correction=opt.correction,
-        min_periods=opt.min_periods,
-    )
     t_codes, t_labels = _trend_map(tr, "")
 
     if opt.statistic == "local-moran" and opt.permutations > 0:
