@@ -299,7 +299,8 @@ def _deflator(panel: Panel, view: View, spec: InputSpec | None) -> tuple[np.ndar
             f"(e.g. {examples(bad.unique())}); fix those cells"
         )
     typed = parse_periods(texts.tolist(), where=f"{where} column {pcol!r}")
-    labels = texts.map(lambda t: period_label(typed[t]))
+    labels = texts.map(lambda t: period_label(typed[t]))  # matched on the typed period
+    keys = [period_label(p) for p in panel.periods]
     table = pd.DataFrame({"period": labels.to_numpy(), "factor": factor.to_numpy()}).dropna()
     spread = table.groupby("period")["factor"].agg(["min", "max"])
     varies = spread.index[~np.isclose(spread["min"], spread["max"], rtol=1e-9, atol=0)]
@@ -309,13 +310,13 @@ def _deflator(panel: Panel, view: View, spec: InputSpec | None) -> tuple[np.ndar
             f"(e.g. {examples(list(varies))}); it must be one factor per period"
         )
     per_period = spread["min"]
-    missing = [p for p in panel.period_labels if p not in per_period.index]
+    missing = [lab for lab, key in zip(panel.period_labels, keys) if key not in per_period.index]
     if missing:
         raise InputError(
             f"{where}: the deflator {col!r} has no value for {len(missing)} periods of the data "
             f"({examples(missing)}); add them to the table"
         )
-    f = per_period.reindex(list(panel.period_labels)).to_numpy(dtype=float)
+    f = per_period.reindex(keys).to_numpy(dtype=float)
     if not (np.isfinite(f) & (f > 0)).all():
         zero = [p for p, x in zip(panel.period_labels, f) if not (np.isfinite(x) and x > 0)]
         raise InputError(
@@ -335,7 +336,7 @@ def _deflate(panel: Panel, view: View, spec: InputSpec | None) -> Panel:
         out,
         finding=Finding("note", "view-deflated", f"view: {text}"),
         variable=f"{panel.meta.variable}, in {base} terms",
-        unit_label=f"{unit}, in {base} terms" if unit else f"in {base} terms",
+        unit_label=f"{unit}, in {base} terms" if unit else "",
         view=f"view: {text}",
     )
 
