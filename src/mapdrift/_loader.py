@@ -430,8 +430,7 @@ def periods_stage(long: Long, spec: InputSpec, where: str, findings: list[Findin
     f = long.frame
     codes, uniq = pd.factorize(f["period_text"], use_na_sentinel=True)
     text = pd.Series(np.asarray(uniq, dtype=object)).astype(str).str.strip().to_numpy(dtype=object)
-    blank_u = text == ""
-    blank = (codes < 0) | blank_u[np.maximum(codes, 0)]
+    blank = np.append(text == "", True)[codes]  # code -1 (a missing cell) is blank too
     if blank.any():
         findings.append(
             Finding(
