@@ -93,7 +93,7 @@ def _digits(ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     import pandas as pd
 
     s = _text(np.asarray(ids, dtype=object))
-    digit = s.str.isdigit().fillna(False).to_numpy(bool) & s.str.isascii().fillna(False).to_numpy(bool)
+    digit = s.str.fullmatch(r"[0-9]+").fillna(False).to_numpy(bool)
     return digit, s.str.len().fillna(0).to_numpy(dtype=np.int64)
 
 
