@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from pathlib import Path
+from typing import Any
 
 from mapdrift.atomic import atomic_path
 from mapdrift.brief.slides import (
@@ -24,6 +25,7 @@ from mapdrift.brief.slides import (
     table_geometry,
 )
 from mapdrift.brief.textfit import fit
+from mapdrift.outputs import fixed_zip_dates
 
 __all__ = ["EMU_PER_PX", "FONT", "write_deck"]
 
@@ -89,7 +91,17 @@ def _picture(shapes, path: Path, box: Box):
     scale = min(bw / w, bh / h)
     pw, ph = w * scale, h * scale
     left, top = box[0] + (bw - pw) / 2, box[1] + (bh - ph) / 2
-    return shapes.add_picture(str(path), _emu(left), _emu(top), _emu(pw), _emu(ph)), (
+    source: Any = str(path)
+    if path.stat().st_size > 1_500_000:  # multi-MB pictures (national scale): slide resolution
+        import io
+
+        with Image.open(path) as im:
+            small = im.convert("RGB")
+            small.thumbnail((1600, 1600))
+            source = io.BytesIO()
+            small.save(source, format="PNG", compress_level=6)
+            source.seek(0)
+    return shapes.add_picture(source, _emu(left), _emu(top), _emu(pw), _emu(ph)), (
         left,
         top,
         left + pw,
@@ -202,6 +214,25 @@ def write_deck(slides: Sequence[Slide], path: Path, *, footer: str = "") -> Path
         )
         if s.notes:
             sl.notes_slide.notes_text_frame.text = s.notes
+    _fixed_properties(prs, slides)
     with atomic_path(path) as tmp:
         prs.save(str(tmp))
-    return path
+    return fixed_zip_dates(path)
+
+
+def _fixed_properties(prs: object, slides: Sequence[Slide]) -> None:
+    """Document properties of our own with a fixed date (not the template's, not the clock),
+    so reruns give identical bytes."""
+    from datetime import datetime
+
+    from mapdrift.outputs import FIXED_TIME
+
+    when = datetime.fromisoformat(FIXED_TIME.replace("Z", "")).replace(microsecond=0)
+    props = prs.core_properties  # type: ignore[attr-defined]
+    props.title = slides[0].title if slides else ""
+    props.author = "mapdrift"
+    props.last_modified_by = "mapdrift"
+    props.comments = ""
+    props.revision = 1
+    props.created = when
+    props.modified = when

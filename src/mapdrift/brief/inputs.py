@@ -61,6 +61,22 @@ class BriefInputs:
             object.__setattr__(self, "notice", self.classes.warning)
         object.__setattr__(self, "folder", Path(self.folder))
 
+    @property
+    def view(self) -> str:
+        """The line naming the values' view ('' for values as read)."""
+        return getattr(self.panel.meta, "view", "") or ""
+
+    @property
+    def trends_skipped(self) -> bool:
+        """Too few periods for per-unit trends: no trend map, slide or sentences."""
+        if self.clusters is not None:
+            need = self.clusters.options.min_periods
+        else:
+            from mapdrift.clusters import ClusterOptions
+
+            need = ClusterOptions().min_periods
+        return self.panel.n_periods < max(need, 3)
+
     def __repr__(self) -> str:
         parts = [p for p, r in (("changes", self.changes), ("clusters", self.clusters)) if r]
         return (
