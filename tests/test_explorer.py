@@ -1,0 +1,394 @@
+"""The explorer page: its data block and its security, then the page itself in a real browser.
+
+The browser checks drive Debian's chromium over the DevTools protocol (playwright, pointed at the
+system browser; no browser is downloaded). They skip, saying why, only when chromium or the
+playwright package is missing. Expected classes and colours come from ``mapdrift.breaks`` and
+``mapdrift.palettes`` and from the ``mapdrift breaks`` command, never from the page's own data;
+interior points come from shapely (each square's centre).
+"""
+
+from __future__ import annotations
+
+import base64
+import hashlib
+import json
+import re
+import shutil
+import zlib
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from conftest import grid_layer
+from mapdrift.brief.explorer import _json_for_script, pack_array, render_page
+
+XSS = "<img src=x onerror=alert(1)>"
+CLOSER = "</script><script>alert(2)</script>"
+PLACEHOLDER = "{{SCRIPT}}"
+SIDE = 6
+YEARS = list(range(2015, 2023))
+
+
+def _unpack(p: dict) -> np.ndarray:
+    """The page's decoder, in numpy: base64 -> zlib -> unshuffle bytes -> (prefix sum)."""
+    dt = np.dtype({"int8": "i1", "uint8": "u1", "int32": "<i4", "uint32": "<u4", "float64": "<f8"}[p["dtype"]])
+    raw = np.frombuffer(zlib.decompress(base64.b64decode(p["b64"])), dtype=np.uint8)
+    arr = raw.reshape(dt.itemsize, p["n"]).T.copy().view(dt).ravel()
+    return np.cumsum(arr, dtype=dt) if p["delta"] else arr
+
+
+def test_pack_array_round_trip():
+    rng = np.random.default_rng(0)
+    lab = np.repeat(rng.integers(-1, 90_000, 500), rng.integers(1, 40, 500)).astype(np.int32)
+    assert np.array_equal(_unpack(pack_array(lab, "int32", delta=True)), lab)
+    vals = rng.normal(10, 3, 1000)
+    vals[::7] = np.nan
+    back = _unpack(pack_array(vals, "float64"))
+    assert np.array_equal(back, vals, equal_nan=True)  # bit-exact: classes depend on it
+    codes = rng.integers(-1, 5, 300).astype(np.int8)
+    assert np.array_equal(_unpack(pack_array(codes, "int8")), codes)
+
+
+def test_data_block_cannot_close_the_script():
+    # HTML Living Standard, "restrictions for contents of script elements": the text must not
+    # contain "</script"; escaping every "<" (and ">", "&") as \u003c keeps JSON valid and inert.
+    text = _json_for_script({"names": [XSS, CLOSER, "a & b", "\u2028"]})
+    assert "<" not in text and ">" not in text and "&" not in text and "\u2028" not in text
+    assert json.loads(text)["names"] == [XSS, CLOSER, "a & b", "\u2028"]
+
+
+def _tiny_payload(names):
+    return {
+        "title": PLACEHOLDER + XSS,
+        "names": names,
+        "arrays": {},
+    }
+
+
+def test_page_is_single_pass_and_pinned_by_hashes():
+    page = render_page(_tiny_payload([PLACEHOLDER, CLOSER]))
+    # the placeholder text in the data stays data: the script appears exactly once
+    assert page.count("'use strict'") == 1
+    assert "</script><script>alert(2)" not in page
+    assert XSS not in page  # the title is escaped in <title>
+    csp = re.search(r'http-equiv="Content-Security-Policy" content="([^"]+)"', page).group(1)
+    csp = csp.replace("&#x27;", "'").replace("&quot;", '"')
+    assert "default-src 'none'" in csp and "img-src data: blob:" in csp
+    assert "unsafe-inline" not in csp and "unsafe-eval" not in csp
+    script = re.search(r"<script>(.*?)</script>\s*</body>", page, re.S).group(1)
+    style = re.search(r"<style>(.*?)</style>", page, re.S).group(1)
+    for body in (script, style):
+        digest = base64.b64encode(hashlib.sha256(body.encode()).digest()).decode()
+        assert f"'sha256-{digest}'" in csp
+
+
+def test_cluster_labels_match_the_cluster_module():
+    from mapdrift.brief import explorer
+    from mapdrift.clusters.labels import LABELS
+
+    assert explorer._CLUSTER_LABELS_DEFAULT == LABELS
+
+
+# ------------------------------------------------------------------------------------------
+# a small run with hostile names
+# ------------------------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def grid_run(tmp_path_factory):
+    """A 6 x 6 grid of 1 km squares over 8 years with counts, gaps, a jump and hostile names."""
+    d = tmp_path_factory.mktemp("explore")
+    gdf = grid_layer(SIDE)
+    gdf.loc[0, "name"] = XSS
+    gdf.loc[1, "name"] = CLOSER
+    gdf.loc[2, "name"] = PLACEHOLDER
+    gdf.to_file(d / "units.gpkg", driver="GPKG")
+    rng = np.random.default_rng(7)
+    rows = []
+    for i, u in enumerate(gdf["unit_id"]):
+        r, c = divmod(i, SIDE)
+        homes = int(rng.integers(300, 3000))
+        for y in YEARS:
+            rate = 4 + 3 * c + r + 0.6 * (y - 2015) * (c > 3) + rng.normal(0, 0.5)
+            if i == 14 and y >= 2019:
+                rate += 25  # a planted jump
+            ev = max(int(round(rate * homes / 1000)), 0)
+            if i == 20 and y in (2016, 2017):
+                continue  # no data two years
+            rows.append({"unit_id": u, "year": y, "events": ev, "homes": homes})
+    pd.DataFrame(rows).to_csv(d / "values.csv", index=False)
+    (d / "run.toml").write_text(
+        '[inputs]\ngeometry = "units.gpkg"\ntable = "values.csv"\nid = "unit_id"\nname = "name"\n'
+        'period = "year"\nnumerator = "events"\ndenominator = "homes"\nper = 1000\n'
+        'variable = "Event rate"\nunit_label = "per 1,000 homes"\n'
+        "[classes]\nk = 4\n[clusters]\npermutations = 99\n"
+    )
+    return d
+
+
+@pytest.fixture(scope="module")
+def explored(grid_run):
+    """``mapdrift explore CONFIG`` on the grid, and the reference panel and classes."""
+    from typer.testing import CliRunner
+
+    from mapdrift.breaks import classify_spec
+    from mapdrift.cli import app
+    from mapdrift.config import ClassSpec, load_config, merge
+    from mapdrift.panel import InputSpec, load_panel
+
+    out = grid_run / "page" / "explorer.html"
+    res = CliRunner().invoke(
+        app, ["explore", str(grid_run / "run.toml"), "--out", str(out), "--raster-px", "600"]
+    )
+    assert res.exit_code == 0, res.output
+    cfg = load_config(grid_run / "run.toml")
+    panel = load_panel(merge(InputSpec, cfg.section("inputs"), {}))
+    classes = classify_spec(panel, merge(ClassSpec, cfg.section("classes"), {}))
+    return out, panel, classes
+
+
+def test_explore_cli_refuses_to_overwrite(explored, grid_run):
+    from typer.testing import CliRunner
+
+    from mapdrift.cli import app
+
+    out, _, _ = explored
+    res = CliRunner().invoke(app, ["explore", str(grid_run / "run.toml"), "--out", str(out)])
+    assert res.exit_code == 3 and "--force" in res.output
+    res = CliRunner().invoke(app, ["explore", str(grid_run / "nope.toml")])
+    assert res.exit_code == 1 and "nope.toml" in res.output
+
+
+def test_demo_page_size_and_data(explored):
+    out, panel, classes = explored
+    text = out.read_text()
+    assert len(text.encode()) < 1_000_000
+    data = json.loads(re.search(r'id="md-data">(.*?)</script>', text, re.S).group(1))
+    assert data["units"] == list(panel.units)
+    vals = _unpack(data["arrays"]["values"]).reshape(panel.n_periods, panel.n_units).T
+    assert np.array_equal(vals, panel.values, equal_nan=True)
+    codes = _unpack(data["arrays"]["classes"]).reshape(panel.n_periods, panel.n_units).T
+    assert np.array_equal(codes, classes.codes)
+
+
+# ------------------------------------------------------------------------------------------
+# in a real browser
+# ------------------------------------------------------------------------------------------
+ARGS = [
+    "--headless",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--no-first-run",
+]
+
+
+@pytest.fixture(scope="module")
+def browser():
+    exe = shutil.which("chromium") or shutil.which("chromium-browser")
+    if exe is None:
+        pytest.skip("chromium is not installed (`apt-get install chromium`); browser checks skipped")
+    sync_api = pytest.importorskip(
+        "playwright.sync_api", reason="playwright is not installed (pip install -e '.[test]')"
+    )
+    with sync_api.sync_playwright() as p:
+        b = p.chromium.launch(executable_path=exe, args=ARGS)
+        yield b
+        b.close()
+
+
+class Page:
+    """One loaded explorer page with its console messages, errors, requests and dialogs."""
+
+    def __init__(self, browser, path: Path):
+        self.pg = browser.new_page(viewport={"width": 1300, "height": 900}, accept_downloads=True)
+        self.console, self.requests, self.dialogs = [], [], []
+        # console errors only: the test's own pixel reads make Chromium suggest willReadFrequently
+        self.pg.on(
+            "console",
+            lambda m: self.console.append(m.text) if m.type in ("error", "assert") else None,
+        )
+        self.pg.on("pageerror", lambda e: self.console.append(f"pageerror: {e}"))
+        self.pg.on("request", lambda r: self.requests.append(r.url))
+        self.pg.on("dialog", lambda d: (self.dialogs.append(d.message), d.dismiss()))
+        self.url = path.resolve().as_uri()
+        self.pg.goto(self.url)
+        self.pg.wait_for_selector("body[data-ready='1']", timeout=30_000)
+        self.data = json.loads(self.pg.evaluate("document.getElementById('md-data').textContent"))
+        self.W, self.H = self.data["raster"]["width"], self.data["raster"]["height"]
+
+    def raster_xy(self, geom):
+        """Raster pixel of a polygon's centre (shapely), in the page's map box."""
+        r = self.data["raster"]
+        c = geom.centroid
+        return int((c.x - r["x0"]) / r["res"]), int((r["y1"] - c.y) / r["res"])
+
+    def pixels(self, points):
+        return self.pg.evaluate(
+            """pts => { const ctx = document.getElementById('md-map').getContext('2d');
+                return pts.map(([x, y]) => Array.from(ctx.getImageData(x, y, 1, 1).data)); }""",
+            [list(p) for p in points],
+        )
+
+    def client_xy(self, raster_point):
+        box = self.pg.locator("#md-map").bounding_box()
+        x, y = raster_point
+        return (
+            box["x"] + (x + 0.5) / self.W * box["width"],
+            box["y"] + (y + 0.5) / self.H * box["height"],
+        )
+
+    def period(self) -> str:
+        return self.pg.get_attribute("#md-map", "data-period")
+
+
+def _rgb(hex_colour: str) -> list[int]:
+    h = hex_colour.lstrip("#")
+    return [int(h[i : i + 2], 16) for i in (0, 2, 4)]
+
+
+def _faded(rgb: list[int]) -> list[int]:
+    return [round(c + (255 - c) * 0.72) for c in rgb]
+
+
+@pytest.fixture(scope="module")
+def page(browser, explored):
+    out, _, _ = explored
+    return Page(browser, out)
+
+
+def test_loads_clean_and_offline(page):
+    assert page.console == []
+    assert page.requests == [page.url]  # the page itself and nothing else
+    assert page.dialogs == []
+
+
+def test_period_steps_recolour_units_with_their_classes(page, explored):
+    from mapdrift import palettes
+
+    _, panel, classes = explored
+    colours = [_rgb(c) for c in palettes.colours_for(classes.k)]
+    nodata = [_rgb(palettes.NODATA), _rgb(palettes.NODATA_HATCH)]
+    pts = [page.raster_xy(g) for g in panel.geometry]
+    page.pg.locator("#md-strip").focus()
+    page.pg.keyboard.press("Home")
+    seen = []
+    for j, label in enumerate(panel.period_labels):
+        if j:
+            page.pg.keyboard.press("ArrowRight")
+        assert page.period() == label
+        got = page.pixels(pts)
+        for u, px in enumerate(got):
+            c = int(classes.codes[u, j])
+            if c < 0:
+                assert px[:3] in nodata, (label, panel.units[u], px)
+            else:
+                assert px == colours[c] + [255], (label, panel.units[u], px, c)
+        seen.append(tuple(map(tuple, got)))
+    assert len(set(seen)) > 1  # the picture changed with the period
+
+
+def test_hover_names_the_unit_and_keeps_hostile_names_as_text(page, explored):
+    _, panel, _ = explored
+    for u in (0, 1, 2, 14, 35):
+        x, y = page.client_xy(page.raster_xy(panel.geometry.iloc[u]))
+        page.pg.mouse.move(x, y)
+        tip = page.pg.locator("#md-tip")
+        assert tip.get_attribute("data-unit") == panel.units[u]
+        assert panel.names[u] in tip.inner_text()
+    assert page.pg.evaluate("document.images.length") == 0
+    assert page.pg.evaluate("document.scripts.length") == 2
+    assert page.dialogs == [] and page.requests == [page.url] and page.console == []
+
+
+def test_pin_shows_trajectory_and_neighbours(page, explored):
+    _, panel, _ = explored
+    x, y = page.client_xy(page.raster_xy(panel.geometry.iloc[0]))  # a corner square
+    page.pg.mouse.click(x, y)
+    card = page.pg.locator("#md-inspect")
+    assert card.get_attribute("data-unit") == panel.units[0]
+    assert page.pg.get_attribute("#md-traj", "data-unit") == panel.units[0]
+    # queen contiguity on a grid: a corner cell has 3 neighbours (rook 2 + 1 diagonal)
+    assert "3 (outlined" in card.inner_text()
+    page.pg.mouse.click(x, y)  # unpin
+    assert card.get_attribute("data-unit") == ""
+
+
+def test_brush_highlights_exactly_the_units_in_range(page, explored):
+    _, panel, classes = explored
+    from mapdrift import palettes
+
+    page.pg.locator("#md-strip").focus()
+    page.pg.keyboard.press("End")
+    j = panel.n_periods - 1
+    box = page.pg.locator("#md-hist").bounding_box()
+    page.pg.mouse.move(box["x"] + box["width"] * 0.3, box["y"] + 60)
+    page.pg.mouse.down()
+    page.pg.mouse.move(box["x"] + box["width"] * 0.6, box["y"] + 60, steps=4)
+    page.pg.mouse.up()
+    lo = float(page.pg.get_attribute("#md-brush", "data-lo"))
+    hi = float(page.pg.get_attribute("#md-brush", "data-hi"))
+    v = panel.values[:, j]
+    expected = {u for u, x in zip(panel.units, v) if lo <= x <= hi}
+    assert 0 < len(expected) < panel.n_units
+    listed = set(page.pg.eval_on_selector_all("#md-list li", "els => els.map(e => e.dataset.unit)"))
+    assert listed == expected
+    colours = [_rgb(c) for c in palettes.colours_for(classes.k)]
+    got = page.pixels([page.raster_xy(g) for g in panel.geometry])
+    for u, px in enumerate(got):
+        c = int(classes.codes[u, j])
+        if c < 0:
+            continue
+        want = colours[c] if panel.units[u] in expected else _faded(colours[c])
+        assert px[:3] == want, (panel.units[u], px, want)
+    page.pg.click("#md-clear")
+    assert page.pg.get_attribute("#md-list", "data-count") == "0"
+
+
+def test_natural_breaks_match_the_breaks_command(page, explored, grid_run):
+    from typer.testing import CliRunner
+
+    from mapdrift.cli import app
+
+    _, panel, _ = explored
+    k = 3
+    res = CliRunner().invoke(
+        app,
+        ["breaks", "--config", str(grid_run / "run.toml"), "--scheme", "natural-breaks", "-k", str(k)],
+    )
+    assert res.exit_code == 0, res.output
+    lines = res.output.splitlines()
+    cli_labels = lines[1].strip().split(" | ")
+    page.pg.select_option("#md-scheme", "natural-breaks")
+    page.pg.select_option("#md-k", str(k))
+    assert page.pg.get_attribute("#md-map", "data-scheme") == f"natural-breaks:{k}"
+    page.pg.locator("#md-strip").focus()
+    for label in (panel.period_labels[0], panel.period_labels[-1]):
+        page.pg.keyboard.press("Home" if label == panel.period_labels[0] else "End")
+        items = page.pg.eval_on_selector_all(
+            "#md-legend li", "els => els.map(e => Array.from(e.children).map(c => c.textContent))"
+        )
+        assert [i[1] for i in items[:-1]] == cli_labels
+        row = next(line for line in lines if line.strip().startswith(label + " "))
+        cli_counts = [int(x) for x in row.split()[1:]]
+        assert [int(i[2]) for i in items] == cli_counts  # k classes + no data, same period
+    changed = page.pg.locator("#md-compare").inner_text()
+    assert "change class" in changed and "One set of breaks" in changed
+    page.pg.select_option("#md-scheme", "run")
+
+
+def test_filter_by_class_and_export_png(page, explored):
+    _, panel, classes = explored
+    page.pg.locator("#md-strip").focus()
+    page.pg.keyboard.press("End")
+    page.pg.select_option("#md-filter", "class:0")
+    want = {u for u, c in zip(panel.units, classes.codes[:, -1]) if c == 0}
+    listed = set(page.pg.eval_on_selector_all("#md-list li", "els => els.map(e => e.dataset.unit)"))
+    assert listed == want
+    with page.pg.expect_download() as dl:
+        page.pg.click("#md-export")
+    path = dl.value.path()
+    head = Path(path).read_bytes()[:8]
+    assert head == b"\x89PNG\r\n\x1a\n"
+    assert page.console == [] and page.requests == [page.url]
