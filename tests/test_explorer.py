@@ -32,17 +32,19 @@ YEARS = list(range(2015, 2023))
 
 
 def _unpack(p: dict) -> np.ndarray:
-    """The page's decoder, in numpy: base64 -> zlib -> unshuffle bytes -> (prefix sum)."""
+    """The page's decoder, in numpy: base64 -> zlib -> (unshuffle bytes)."""
     dt = np.dtype({"int8": "i1", "uint8": "u1", "int32": "<i4", "uint32": "<u4", "float64": "<f8"}[p["dtype"]])
     raw = np.frombuffer(zlib.decompress(base64.b64decode(p["b64"])), dtype=np.uint8)
-    arr = raw.reshape(dt.itemsize, p["n"]).T.copy().view(dt).ravel()
-    return np.cumsum(arr, dtype=dt) if p["delta"] else arr
+    if p["shuffle"]:
+        raw = raw.reshape(dt.itemsize, p["n"]).T.copy()
+    return raw.view(dt).ravel()
 
 
 def test_pack_array_round_trip():
     rng = np.random.default_rng(0)
     lab = np.repeat(rng.integers(-1, 90_000, 500), rng.integers(1, 40, 500)).astype(np.int32)
-    assert np.array_equal(_unpack(pack_array(lab, "int32", delta=True)), lab)
+    assert np.array_equal(_unpack(pack_array(lab, "int32", shuffle=False)), lab)
+    assert np.array_equal(_unpack(pack_array(lab, "int32")), lab)
     vals = rng.normal(10, 3, 1000)
     vals[::7] = np.nan
     back = _unpack(pack_array(vals, "float64"))
@@ -392,3 +394,52 @@ def test_filter_by_class_and_export_png(page, explored):
     head = Path(path).read_bytes()[:8]
     assert head == b"\x89PNG\r\n\x1a\n"
     assert page.console == [] and page.requests == [page.url]
+
+
+def _data(path: Path) -> dict:
+    return json.loads(re.search(r'id="md-data">(.*?)</script>', path.read_text(), re.S).group(1))
+
+
+def test_run_writes_the_page_and_a_run_folder_rebuilds_it(grid_run, tmp_path, browser):
+    from typer.testing import CliRunner
+
+    from mapdrift.cli import app
+    from mapdrift.config import load_config
+    from mapdrift.pipeline import run
+
+    cfg = load_config(grid_run / "run.toml").with_values("brief", {"formats": ["gpkg", "explorer"]})
+    res = run(cfg, out=tmp_path / "run")
+    assert (res.out / "explorer.html").exists()
+    again = tmp_path / "again.html"
+    cli = CliRunner().invoke(app, ["explore", str(res.out), "--out", str(again)])
+    assert cli.exit_code == 0, cli.output
+    a, b = _data(res.out / "explorer.html"), _data(again)
+    assert a["units"] == b["units"] and a["names"] == b["names"] and a["periods"] == b["periods"]
+    for key in ("values", "classes", "clusters", "jumps", "label", "nbrPtr", "nbrIdx"):
+        assert np.array_equal(
+            _unpack(a["arrays"][key]), _unpack(b["arrays"][key]), equal_nan=True
+        ), key
+    assert a["run"]["edges"] == b["run"]["edges"] and a["compare"] == b["compare"]
+    assert "base" in a["arrays"] and "base" not in b["arrays"]  # counts are not in a run folder
+    p = Page(browser, again)
+    assert p.console == [] and p.requests == [p.url]
+
+
+def test_natural_breaks_for_several_k_match_fresh_fits_and_mapclassify():
+    # The explorer fits natural breaks for k = 2..9 on the same values; fisher_jenks keeps the
+    # last input's DP layers, which must not change any result. Reference: mapclassify's
+    # FisherJenks (the exact Fisher 1958 optimum) on a small sample.
+    import mapclassify
+
+    from mapdrift import breaks
+
+    x = np.random.default_rng(1).gamma(2.0, 3.0, 300).round(2)
+    fresh = {}
+    for k in range(2, 10):
+        breaks._FISHER_LAYERS.clear()
+        fresh[k] = breaks.fisher_jenks(x, k)
+    breaks._FISHER_LAYERS.clear()
+    for k in (9, 3, 5, 2, 8, 4, 6, 7):
+        assert breaks.fisher_jenks(x, k) == fresh[k]
+    for k in (3, 5):
+        assert np.allclose(mapclassify.FisherJenks(x, k).bins, fresh[k])

@@ -52,7 +52,7 @@ COMPARE_SCHEMES: tuple[str, ...] = ("quantile", "natural-breaks", "equal-interva
 COMPARE_K: tuple[int, ...] = tuple(range(2, 10))
 #: Longest side of the label raster in pixels: about twice the map's on-screen size, so the map
 #: stays crisp when zoomed 2x.
-DEFAULT_RASTER_PX = 1600
+DEFAULT_RASTER_PX = 2048
 
 _JUMP_NONE = 0
 # cluster label codes as in mapdrift.clusters.labels.LABELS (kept in step by a test)
@@ -109,31 +109,29 @@ _DTYPES = {
 }
 
 
-def pack_array(arr: np.ndarray, dtype: str, *, delta: bool = False) -> dict[str, Any]:
-    """A typed array for the page: little-endian bytes, optionally delta-coded, byte-shuffled,
-    zlib-compressed (level 9) and base64-encoded.
+def pack_array(arr: np.ndarray, dtype: str, *, shuffle: bool = True) -> dict[str, Any]:
+    """A typed array for the page: little-endian bytes, optionally byte-shuffled,
+    zlib-compressed and base64-encoded.
 
-    ``delta`` stores the differences of consecutive elements (int32 only): a label raster is
-    mostly runs of one unit, so its differences are mostly zeros and compress to little.
-    Byte shuffling puts the i-th byte of every element together, which compresses numbers of one
-    magnitude better. The page reverses the steps (see ``unpack`` in ``explorer.js``).
+    Byte shuffling puts the i-th byte of every element together, which compresses floats of one
+    magnitude better; a label raster (long runs of one unit) compresses best unshuffled. The page
+    reverses the steps (``unpack`` in ``explorer.js``).
 
-    >>> p = pack_array(np.arange(5), "int32", delta=True)
-    >>> (p["dtype"], p["n"], p["delta"])
-    ('int32', 5, True)
+    >>> p = pack_array(np.arange(5), "int32", shuffle=False)
+    >>> (p["dtype"], p["n"], p["shuffle"])
+    ('int32', 5, False)
     """
-    a = np.ascontiguousarray(np.asarray(arr).ravel(), dtype=np.dtype(_DTYPES[dtype]).newbyteorder("<"))
-    if delta:
-        if dtype != "int32":
-            raise ValueError("delta coding is for int32 arrays")
-        a = np.diff(a, prepend=np.int32(0)).astype("<i4")
+    a = np.ascontiguousarray(
+        np.asarray(arr).ravel(), dtype=np.dtype(_DTYPES[dtype]).newbyteorder("<")
+    )
     size = a.dtype.itemsize
-    raw = a.view(np.uint8).reshape(-1, size).T.copy() if size > 1 else a.view(np.uint8)
-    data = zlib.compress(raw.tobytes(), 9)
+    shuffle = shuffle and size > 1
+    raw = a.view(np.uint8).reshape(-1, size).T.copy() if shuffle else a.view(np.uint8)
+    data = zlib.compress(raw.tobytes(), 6)
     return {
         "dtype": dtype,
         "n": int(a.size),
-        "delta": bool(delta),
+        "shuffle": bool(shuffle),
         "b64": base64.b64encode(data).decode("ascii"),
     }
 
@@ -245,7 +243,7 @@ def build_payload(
     run_colours = palettes.colours_for(k, diverging_legend=classes.breaks[0].diverging)
     first = classes.breaks[0]
     arrays: dict[str, Any] = {
-        "label": pack_array(raster.label, "int32", delta=True),
+        "label": pack_array(raster.label, "int32", shuffle=False),
         "values": pack_array(_period_major(values), "float64"),
         "classes": pack_array(_period_major(classes.codes), "int8"),
     }

@@ -28,7 +28,7 @@ def explore(
     ),
     force: bool = typer.Option(False, "--force", help="Overwrite an existing page."),
     raster_px: int = typer.Option(
-        1600,
+        2048,  # mapdrift.brief.explorer.DEFAULT_RASTER_PX (not imported: the CLI stays light)
         "--raster-px",
         min=200,
         max=6000,

@@ -16,11 +16,13 @@
     selected: [], brush: null, filter: 'all', playing: false, timer: 0, zoom: 1
   };
   var cache = {};                   // classes per scheme/k (Int8Array, period-major)
+  var changedAll = {};              // unit-periods whose class differs from the run's, per scheme/k
   var FLAG_ND = 1, FLAG_ND_FADED = 2; // pixel flags (alpha 0): no-data hatching
   var NO_VALUE = '\u2013';
 
   // ---------------------------------------------------------------- data
   function b64bytes(s) {
+    if (typeof Uint8Array.fromBase64 === 'function') return Uint8Array.fromBase64(s);
     var bin = atob(s), n = bin.length, out = new Uint8Array(n);
     for (var i = 0; i < n; i++) out[i] = bin.charCodeAt(i);
     return out;
@@ -33,16 +35,14 @@
     return new Response(stream).arrayBuffer().then(function (buf) {
       var Ctor = CTORS[p.dtype], size = Ctor.BYTES_PER_ELEMENT, n = p.n;
       var src = new Uint8Array(buf), bytes;
-      if (size === 1) { bytes = src; } else {
+      if (size === 1 || !p.shuffle) { bytes = src; } else {
         bytes = new Uint8Array(n * size);
         for (var b = 0; b < size; b++) {
           var off = b * n;
           for (var i = 0; i < n; i++) bytes[i * size + b] = src[off + i];
         }
       }
-      var arr = new Ctor(bytes.buffer, 0, n);
-      if (p.delta) { for (var j = 1; j < n; j++) arr[j] = (arr[j] + arr[j - 1]) | 0; }
-      return arr;
+      return new Ctor(bytes.buffer, bytes.byteOffset, n);
     });
   }
 
@@ -249,6 +249,7 @@
     return out;
   }
   function drawMarks() {
+    if (!bx1) return;
     var cv = $('md-marks'), ctx = cv.getContext('2d'), img = ctx.createImageData(W, H);
     var px = new Int32Array(img.data.buffer);
     var sel = pack32([23, 78, 166]), nb = pack32([214, 96, 20]), pin = pack32([20, 20, 20]);
@@ -316,9 +317,12 @@
 
   // ---------------------------------------------------------------- canvases with device pixels
   function sizeCanvas(cv, cssH) {
+    // resize the backing store only when the size changed (a resize reallocates it)
     var dpr = window.devicePixelRatio || 1, w = Math.max(cv.clientWidth, 50);
-    cv.width = Math.round(w * dpr); cv.height = Math.round(cssH * dpr);
+    var bw = Math.round(w * dpr), bh = Math.round(cssH * dpr);
+    if (cv.width !== bw || cv.height !== bh) { cv.width = bw; cv.height = bh; }
     var ctx = cv.getContext('2d'); ctx.setTransform(dpr, 0, 0, dpr, 0, 0);
+    ctx.clearRect(0, 0, w, cssH);
     return { ctx: ctx, w: w, h: cssH };
   }
 
@@ -469,20 +473,27 @@
   }
 
   // ---------------------------------------------------------------- filter and list
+  function quickCounts(j) {
+    // units that jumped, jumped credibly, entered a high-high cluster in period j (one pass)
+    var jump = 0, cred = 0, entered = 0, off = j * N;
+    for (var u = 0; u < N; u++) {
+      if (A.jumps && A.jumps[off + u] !== 0) { jump++; if (A.credible && A.credible[off + u] === 2) cred++; }
+      if (A.clusters && enteredHH(u, j)) entered++;
+    }
+    return { jump: jump, credible: cred, entered: entered };
+  }
   function filterOptions() {
-    var sel = $('md-filter'), j = S.period, keep = S.filter;
+    var sel = $('md-filter'), j = S.period, keep = S.filter, q = quickCounts(j), c = counts[j];
     clear(sel);
-    var opts = [['all', 'all units']];
-    if (A.jumps) opts.push(['jump', 'jumped into ' + D.periods[j]]);
-    if (A.credible) opts.push(['credible', 'credible jumps into ' + D.periods[j]]);
-    if (A.clusters) opts.push(['entered', 'entered a high-high cluster in ' + D.periods[j]]);
+    var opts = [['all', 'all units', N]];
+    if (A.jumps) opts.push(['jump', 'jumped into ' + D.periods[j], q.jump]);
+    if (A.credible) opts.push(['credible', 'credible jumps into ' + D.periods[j], q.credible]);
+    if (A.clusters) opts.push(['entered', 'entered a high-high cluster in ' + D.periods[j], q.entered]);
     var info = schemeInfo(), labels = labelsAt(info, j);
-    labels.forEach(function (l, i) { opts.push(['class:' + i, 'class ' + (i + 1) + ' (' + l + ')']); });
-    opts.push(['nodata', 'no data']);
+    labels.forEach(function (l, i) { opts.push(['class:' + i, 'class ' + (i + 1) + ' (' + l + ')', c[i]]); });
+    opts.push(['nodata', 'no data', c[info.colours.length]]);
     opts.forEach(function (o) {
-      var f = filterTest(o[0]), n = N;
-      if (f) { n = 0; for (var u = 0; u < N; u++) if (f(u)) n++; }
-      var op = el('option', o[1] + ' \u2014 ' + n); op.value = o[0]; sel.appendChild(op);
+      var op = el('option', o[1] + ' \u2014 ' + o[2]); op.value = o[0]; sel.appendChild(op);
     });
     sel.value = opts.some(function (o) { return o[0] === keep; }) ? keep : 'all';
     S.filter = sel.value;
@@ -612,11 +623,16 @@
       txt = 'Showing the run\u2019s classes: ' + info.describe + '. ' + holdTxt;
       p.dataset.changed = '0';
     } else {
-      var now = 0, nowN = 0, all = 0, allN = 0;
-      for (var q = 0; q < N * P; q++) {
-        if (run[q] < 0) continue;
-        allN++; if (cls[q] !== run[q]) all++;
+      var now = 0, nowN = 0, key = S.scheme + ':' + S.k;
+      if (!changedAll[key]) {
+        var diff = 0, valid = 0;
+        for (var q = 0; q < N * P; q++) {
+          if (run[q] < 0) continue;
+          valid++; if (cls[q] !== run[q]) diff++;
+        }
+        changedAll[key] = [diff, valid];
       }
+      var all = changedAll[key][0], allN = changedAll[key][1];
       var off = j * N;
       for (var u = 0; u < N; u++) { if (run[off + u] < 0) continue; nowN++; if (cls[off + u] !== run[off + u]) now++; }
       txt = 'Compared with the run\u2019s classes (' + D.run.describe + '): ' + now + ' of ' + nowN + ' units change class in ' + D.periods[j] +
@@ -629,17 +645,20 @@
   // ---------------------------------------------------------------- state changes
   function update(opts) {
     opts = opts || {};
-    if (opts.classes) { classCounts(); filterOptions(); }
-    else filterOptions();
-    redraw();
-    $('md-period').textContent = D.periods[S.period];
-    drawStrip(); drawLegend(); drawHist(); renderList(); compareLine(); renderInspect();
-    if (opts.marks) drawMarks();
+    var parts = [['counts', function () { if (opts.classes) classCounts(); }], ['filter', filterOptions],
+      ['map', redraw], ['strip', function () { $('md-period').textContent = D.periods[S.period]; drawStrip(); }],
+      ['legend', drawLegend], ['hist', drawHist], ['list', renderList], ['compare', compareLine],
+      ['inspect', renderInspect], ['marks', function () { if (opts.marks) drawMarks(); }]];
+    var times = {};
+    parts.forEach(function (p) { var t = performance.now(); p[1](); times[p[0]] = +(performance.now() - t).toFixed(2); });
+    $('md-map').dataset.updateMs = JSON.stringify(times);
   }
   function setPeriod(j) {
     j = Math.max(0, Math.min(P - 1, j));
     if (j === S.period) return;
+    var t0 = performance.now();
     S.period = j; update();
+    performance.measure('md-period-change', { start: t0, duration: performance.now() - t0 });
   }
   function pin(u) { S.pinned = (u === S.pinned) ? -1 : u; drawMarks(); drawHist(); renderInspect(); }
   function toggleSelect(u) {
@@ -768,8 +787,10 @@
   // ---------------------------------------------------------------- start
   function init() {
     var keys = Object.keys(D.arrays);
+    performance.mark('md-start');
     return Promise.all(keys.map(function (key) { return unpack(D.arrays[key]); })).then(function (arrs) {
       keys.forEach(function (key, i) { A[key] = arrs[i]; });
+      performance.mark('md-decoded');
       ['md-map', 'md-lines', 'md-marks'].forEach(function (id) { var c = $(id); c.width = W; c.height = H; });
       $('md-map').dataset.width = String(W); $('md-map').dataset.height = String(H);
       mapCtx = $('md-map').getContext('2d');
@@ -778,14 +799,20 @@
       lut = new Int32Array(N + 1);
       texts();
       layoutMap();
-      unitBoxes();
-      drawLines();
       events();
-      update({ classes: true, marks: true });
+      bx1 = null;
+      update({ classes: true });
       requestAnimationFrame(function () {
         performance.mark('md-first-paint');
-        document.body.dataset.ready = '1';
-        $('md-status').textContent = N.toLocaleString('en-US') + ' units \u00b7 ' + P + ' periods';
+        // unit outlines and boundary lines are not needed for the first picture
+        setTimeout(function () {
+          unitBoxes();
+          drawLines();
+          drawMarks();
+          performance.mark('md-complete');
+          document.body.dataset.ready = '1';
+          $('md-status').textContent = N.toLocaleString('en-US') + ' units \u00b7 ' + P + ' periods';
+        }, 0);
       });
     });
   }
