@@ -226,7 +226,9 @@
     }
     ctx.putImageData(img, 0, 0);
   }
-  function outline(px, u, col) {
+  function outline(px, u, col, inner) {
+    // a 2-pixel line on the unit's edge: `inner` on the unit's side (default `col`), `col` outside
+    if (inner === undefined) inner = col;
     if (u < 0 || bx1[u] < 0) return;
     var lab = A.label;
     var xa = Math.max(bx0[u] - 1, 0), xb = Math.min(bx1[u] + 1, W - 1);
@@ -234,11 +236,11 @@
     for (var y = ya; y <= yb; y++) {
       for (var x = xa, i = y * W + xa; x <= xb; x++, i++) {
         if (lab[i] !== u) continue;
-        if (x > 0 && lab[i - 1] !== u) { px[i] = col; px[i - 1] = col; }
-        if (x + 1 < W && lab[i + 1] !== u) { px[i] = col; px[i + 1] = col; }
-        if (y > 0 && lab[i - W] !== u) { px[i] = col; px[i - W] = col; }
-        if (y + 1 < H && lab[i + W] !== u) { px[i] = col; px[i + W] = col; }
-        if (x === 0 || y === 0 || x === W - 1 || y === H - 1) px[i] = col;
+        if (x > 0 && lab[i - 1] !== u) { px[i] = inner; px[i - 1] = col; }
+        if (x + 1 < W && lab[i + 1] !== u) { px[i] = inner; px[i + 1] = col; }
+        if (y > 0 && lab[i - W] !== u) { px[i] = inner; px[i - W] = col; }
+        if (y + 1 < H && lab[i + W] !== u) { px[i] = inner; px[i + W] = col; }
+        if (x === 0 || y === 0 || x === W - 1 || y === H - 1) px[i] = inner;
       }
     }
   }
@@ -255,7 +257,7 @@
     var sel = pack32([23, 78, 166]), nb = pack32([214, 96, 20]), pin = pack32([20, 20, 20]);
     S.selected.forEach(function (u) { outline(px, u, sel); });
     neighbours(S.pinned).forEach(function (u) { outline(px, u, nb); });
-    outline(px, S.pinned, pin);
+    outline(px, S.pinned, pin, pack32([255, 255, 255]));
     ctx.putImageData(img, 0, 0);
   }
 
@@ -586,7 +588,8 @@
       ctx.fillStyle = '#111';
       ctx.beginPath(); ctx.arc(X(jj), Y(v), jj === S.period ? 4 : 2.5, 0, 2 * Math.PI); ctx.fill();
       if (s) { // a triangle at each jump, pointing the way it went
-        var d = s > 0 ? -1 : 1, yy = Y(v) + d * 9;
+        var d = s > 0 ? -1 : 1, yy = Math.max(T + 8, Math.min(T + ph - 8, Y(v) + d * 9));
+        if (Math.abs(yy - Y(v)) < 6) { d = -d; yy = Y(v) + d * 9; }
         ctx.fillStyle = '#c2410c'; ctx.beginPath();
         ctx.moveTo(X(jj), yy + d * 5); ctx.lineTo(X(jj) - 5, yy - d * 3); ctx.lineTo(X(jj) + 5, yy - d * 3); ctx.fill();
       }
