@@ -216,7 +216,9 @@ def main() -> None:
         f"hover: median {med(hv):.2f} ms, 95th percentile {hv[int(0.95 * (len(hv) - 1))]:.2f} ms, "
         f"max {hv[-1]:.2f} ms over {len(hv)} moves (target <= 5)"
     )
-    print(f"raster pixels per screen pixel at 2x zoom: {m['px_per_css_px_at_2x']:.2f} (>= 1 is crisp)")
+    print(
+        f"raster pixels per screen pixel at 2x zoom: {m['px_per_css_px_at_2x']:.2f} (>= 1 is crisp)"
+    )
     print(f"console errors: {len(m['errors'])}; network requests besides the page: {m['requests']}")
 
     sys.path.insert(0, str(ROOT / "src"))
@@ -224,8 +226,14 @@ def main() -> None:
     from mapdrift.pipeline import STEPS, run
 
     with tempfile.TemporaryDirectory() as d:
-        steps = [s for s in STEPS if s[0] in ("load", "smooth", "classify", "changes", "clusters", "explorer")]
-        cfg = load_config(ROOT / "demo_data" / "demo.toml").with_values("brief", {"formats": ["explorer"]})
+        steps = [
+            s
+            for s in STEPS
+            if s[0] in ("load", "smooth", "classify", "changes", "clusters", "explorer")
+        ]
+        cfg = load_config(ROOT / "demo_data" / "demo.toml").with_values(
+            "brief", {"formats": ["explorer"]}
+        )
         res = run(cfg, out=Path(d) / "demo", steps=steps)
         size = (res.out / "explorer.html").stat().st_size
         print(f"demo county page: {size / 1e6:.2f} MB (target <= 1 MB)")

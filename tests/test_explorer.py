@@ -33,7 +33,9 @@ YEARS = list(range(2015, 2023))
 
 def _unpack(p: dict) -> np.ndarray:
     """The page's decoder, in numpy: base64 -> zlib -> (unshuffle bytes)."""
-    dt = np.dtype({"int8": "i1", "uint8": "u1", "int32": "<i4", "uint32": "<u4", "float64": "<f8"}[p["dtype"]])
+    dt = np.dtype(
+        {"int8": "i1", "uint8": "u1", "int32": "<i4", "uint32": "<u4", "float64": "<f8"}[p["dtype"]]
+    )
     raw = np.frombuffer(zlib.decompress(base64.b64decode(p["b64"])), dtype=np.uint8)
     if p["shuffle"]:
         raw = raw.reshape(dt.itemsize, p["n"]).T.copy()
@@ -190,7 +192,9 @@ ARGS = [
 def browser():
     exe = shutil.which("chromium") or shutil.which("chromium-browser")
     if exe is None:
-        pytest.skip("chromium is not installed (`apt-get install chromium`); browser checks skipped")
+        pytest.skip(
+            "chromium is not installed (`apt-get install chromium`); browser checks skipped"
+        )
     sync_api = pytest.importorskip(
         "playwright.sync_api", reason="playwright is not installed (pip install -e '.[test]')"
     )
@@ -357,7 +361,15 @@ def test_natural_breaks_match_the_breaks_command(page, explored, grid_run):
     k = 3
     res = CliRunner().invoke(
         app,
-        ["breaks", "--config", str(grid_run / "run.toml"), "--scheme", "natural-breaks", "-k", str(k)],
+        [
+            "breaks",
+            "--config",
+            str(grid_run / "run.toml"),
+            "--scheme",
+            "natural-breaks",
+            "-k",
+            str(k),
+        ],
     )
     assert res.exit_code == 0, res.output
     lines = res.output.splitlines()
@@ -443,3 +455,63 @@ def test_natural_breaks_for_several_k_match_fresh_fits_and_mapclassify():
         assert breaks.fisher_jenks(x, k) == fresh[k]
     for k in (3, 5):
         assert np.allclose(mapclassify.FisherJenks(x, k).bins, fresh[k])
+
+
+def test_jumps_with_and_without_a_credible_column():
+    from mapdrift.brief.explorer import _jump_arrays
+
+    units, periods = ["a", "b", "c"], ["2019", "2020", "2021"]
+    jumps = pd.DataFrame({"unit": ["a", "c"], "to_period": ["2020", "2021"], "size": [2, -3]})
+    size, cred, known = _jump_arrays(jumps, units, periods)
+    assert not known and cred.sum() == 0
+    assert size.tolist() == [[0, 2, 0], [0, 0, 0], [0, 0, -3]]
+    size, cred, known = _jump_arrays(jumps.assign(credible=[True, False]), units, periods)
+    assert known and cred.tolist() == [[0, 2, 0], [0, 0, 0], [0, 0, 1]]
+
+
+def test_smoothed_run_carries_the_raw_rates(grid_run, tmp_path, browser):
+    from typer.testing import CliRunner
+
+    from mapdrift.cli import app
+    from mapdrift.config import load_config, merge
+    from mapdrift.panel import InputSpec, load_panel
+
+    toml = (
+        (grid_run / "run.toml").read_text().replace("[clusters]\n", '[clusters]\nsmooth = "eb"\n')
+    )
+    (grid_run / "smooth.toml").write_text(toml)
+    out = tmp_path / "smooth.html"
+    res = CliRunner().invoke(
+        app, ["explore", str(grid_run / "smooth.toml"), "--out", str(out), "--raster-px", "500"]
+    )
+    assert res.exit_code == 0, res.output
+    data = _data(out)
+    panel = load_panel(
+        merge(InputSpec, load_config(grid_run / "smooth.toml").section("inputs"), {})
+    )
+    raw = _unpack(data["arrays"]["raw"]).reshape(panel.n_periods, panel.n_units).T
+    # the raw rates are the loaded (unsmoothed) values: events / homes x 1000
+    assert np.allclose(raw, panel.values, equal_nan=True)
+    smoothed = _unpack(data["arrays"]["values"]).reshape(panel.n_periods, panel.n_units).T
+    assert not np.allclose(smoothed, panel.values, equal_nan=True)
+    assert data["smoothing"] == "eb"
+    p = Page(browser, out)
+    x, y = p.client_xy(p.raster_xy(panel.geometry.iloc[7]))
+    p.pg.mouse.click(x, y)
+    assert "smoothed" in p.pg.locator("#md-traj-key").inner_text()
+    assert "Raw rate" in p.pg.locator("#md-inspect").inner_text()
+    # play steps through the periods by itself; zoom doubles the map's size on screen
+    p.pg.locator("#md-strip").focus()
+    p.pg.keyboard.press("Home")
+    first = p.period()
+    p.pg.click("#md-play")
+    for _ in range(50):  # the CSP forbids eval, so no wait_for_function: poll from here
+        if p.period() != first:
+            break
+        p.pg.wait_for_timeout(100)
+    assert p.period() != first
+    p.pg.click("#md-play")
+    w1 = p.pg.locator("#md-map").bounding_box()["width"]
+    p.pg.click("#md-zoom-in")
+    assert p.pg.locator("#md-map").bounding_box()["width"] == pytest.approx(2 * w1, abs=2)
+    assert p.console == [] and p.requests == [p.url]

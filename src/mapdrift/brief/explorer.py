@@ -317,7 +317,9 @@ def _asset(name: str) -> str:
 
 
 def _sha256(text: str) -> str:
-    return "'sha256-" + base64.b64encode(hashlib.sha256(text.encode("utf-8")).digest()).decode() + "'"
+    return (
+        "'sha256-" + base64.b64encode(hashlib.sha256(text.encode("utf-8")).digest()).decode() + "'"
+    )
 
 
 def _json_for_script(payload: dict[str, Any]) -> str:

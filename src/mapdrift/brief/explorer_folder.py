@@ -99,7 +99,9 @@ def payload_from_folder(folder: Path | str, *, raster_px: int | None = None) -> 
         ).astype(np.int8)
     jumps = None
     if (folder / "jumps.csv").exists():
-        jumps = pd.read_csv(folder / "jumps.csv", comment="#", dtype={"unit": str, "to_period": str})
+        jumps = pd.read_csv(
+            folder / "jumps.csv", comment="#", dtype={"unit": str, "to_period": str}
+        )
     nbrs = None
     try:
         from mapdrift.weights import build_weights
@@ -112,11 +114,7 @@ def payload_from_folder(folder: Path | str, *, raster_px: int | None = None) -> 
     method = [
         f"Data: {len(units)} units, {len(periods)} periods ({periods[0]} to {periods[-1]})",
         "Classes: "
-        + ", ".join(
-            x
-            for x in (breaks[0].scheme, f"{breaks[0].k} classes", breaks[0].basis)
-            if x
-        ),
+        + ", ".join(x for x in (breaks[0].scheme, f"{breaks[0].k} classes", breaks[0].basis) if x),
     ]
     if params.get("statistic"):
         method.append(

@@ -48,7 +48,9 @@ def explore(
         raise InputError(f"{target}: no such file or folder; give a CONFIG.toml or a run folder")
     dest = out or (target / "explorer.html" if target.is_dir() else Path("explorer.html"))
     if dest.exists() and not force:
-        raise OutputExistsError(f"{dest} exists; pass --force to overwrite it or choose another --out")
+        raise OutputExistsError(
+            f"{dest} exists; pass --force to overwrite it or choose another --out"
+        )
     if target.is_dir():
         from mapdrift.brief.explorer import write_explorer
         from mapdrift.brief.explorer_folder import payload_from_folder
@@ -59,10 +61,9 @@ def explore(
         import tempfile
 
         from mapdrift.atomic import atomic_path
+        from mapdrift.brief.explorer import payload_from_state, write_explorer
         from mapdrift.config import load_config
         from mapdrift.pipeline import STEPS, run
-
-        from mapdrift.brief.explorer import payload_from_state, write_explorer
 
         def _step_explorer(state):  # type: ignore[no-untyped-def]
             path = write_explorer(
