@@ -540,6 +540,7 @@
     var cv = $('md-traj'), g = sizeCanvas(cv, 180), ctx = g.ctx, key = $('md-traj-key');
     ctx.clearRect(0, 0, g.w, g.h);
     var u = S.pinned;
+    cv.style.display = u < 0 ? 'none' : 'block';
     if (u < 0) { key.textContent = ''; cv.dataset.unit = ''; return; }
     var info = schemeInfo(), L = 40, R = 8, T = 8, B = 20, pw = g.w - L - R, ph = g.h - T - B;
     var series = [], lo = Infinity, hi = -Infinity;
@@ -747,7 +748,22 @@
       stack.dataset.hoverMs = ms.toFixed(3);
     });
     stack.addEventListener('mouseleave', function () { $('md-tip').hidden = true; last = -2; S.hover = -1; });
+    // when zoomed in, dragging the map pans it (a drag is not a click)
+    var pan = null;
+    stack.addEventListener('pointerdown', function (e) {
+      if (S.zoom > 1 && e.button === 0) pan = { x: e.clientX, y: e.clientY, moved: false };
+    });
+    window.addEventListener('pointermove', function (e) {
+      if (!pan) return;
+      var dx = e.clientX - pan.x, dy = e.clientY - pan.y;
+      if (!pan.moved && Math.abs(dx) + Math.abs(dy) < 5) return;
+      pan.moved = true;
+      var wrap = $('md-mapwrap'); wrap.scrollLeft -= dx; wrap.scrollTop -= dy;
+      pan.x = e.clientX; pan.y = e.clientY;
+    });
+    window.addEventListener('pointerup', function () { setTimeout(function () { pan = null; }, 0); });
     stack.addEventListener('click', function (e) {
+      if (pan && pan.moved) return;
       var u = unitAtEvent(e);
       if (e.shiftKey) { if (u >= 0) toggleSelect(u); } else pin(u < 0 ? S.pinned : u);
     });
