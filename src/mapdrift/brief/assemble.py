@@ -78,7 +78,7 @@ def headline(state: RunState) -> list[tuple[str, str]]:
             )
         )
         sig = cl.trends["significant"].astype(bool)
-        for word in ("rising", "falling"):
+        for word in ("rising", "falling") if not state.trends_skipped else ():
             n = int((sig & (cl.trends["direction"] == word)).sum())
             out.append((f"units with a significant {word} trend", f"{n}"))
     nd = int(np.isnan(p.values).all(axis=1).sum())
@@ -102,6 +102,8 @@ def method(state: RunState) -> list[tuple[str, str]]:
             describe(b) + ("" if c.per_period else ": " + " | ".join(b.labels)),
         ),
     ]
+    if state.view:
+        rows.append(("View", state.view.removeprefix("view: ")))
     if c.per_period:
         rows.append(("Warning", c.warning or ""))
     ch = state.results.get("changes")
@@ -128,7 +130,9 @@ def method(state: RunState) -> list[tuple[str, str]]:
         rows.append(
             (
                 "Trends",
-                f"Mann-Kendall test with Theil-Sen slope, {cl.significance.replace('per period', 'across units')}",
+                f"Mann-Kendall test with Theil-Sen slope, {cl.significance.replace('per period', 'across units')}"
+                if not state.trends_skipped
+                else f"not estimated: {plural(p.n_periods, 'period')} are too few for a trend",
             )
         )
     if state.run.previous is not None:
@@ -332,6 +336,7 @@ def build_brief(state: RunState) -> Brief:
                 ),
             )
         )
+    if cl is not None and not state.trends_skipped:
         tr = cl.trends
         sig = tr[tr["significant"].astype(bool)]
         sig = sig.iloc[np.argsort(-np.abs(sig["theil_sen_slope"].to_numpy()), kind="stable")]

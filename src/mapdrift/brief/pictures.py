@@ -132,9 +132,14 @@ def change_pictures(result: Any, panel: Any, out: Path, *, force: bool = False) 
     return written
 
 
-def cluster_pictures(result: Any, panel: Any, out: Path, *, force: bool = False) -> list[Path]:
+def cluster_pictures(
+    result: Any, panel: Any, out: Path, *, force: bool = False, trends: bool | None = None
+) -> list[Path]:
     """Global Moran chart, cluster animation (GIF), last-period cluster map, change-cluster map
-    and trend map. Returns the paths written."""
+    and trend map. Returns the paths written.
+
+    The trend map is left out when ``trends`` is False, or (None) when no unit has enough
+    periods for a trend (a map of "too few periods" everywhere says nothing)."""
     from mapdrift.clusters.labels import LABELS
     from mapdrift.palettes import CLUSTER_COLOURS, diverging
     from mapdrift.render.encode import write_gif
@@ -194,6 +199,10 @@ def cluster_pictures(result: Any, panel: Any, out: Path, *, force: bool = False)
                  subtitle=f"Local clusters of the change {a} to {b}, {change_sig}",
                  legend_title=f"change {a} to {b}", caption=change_caption, force=force)
     )  # fmt: skip
+    if trends is None:
+        trends = bool((result.trends["direction"] != "too few periods").any())
+    if not trends:
+        return written
     written.append(
         static_map(panel.geometry, result.trend_codes, diverging(5), list(result.trend_labels),
                  out / "trend_map.png", title=f"Trend in {var.lower()}",
