@@ -229,7 +229,7 @@ def main() -> None:
         steps = [
             s
             for s in STEPS
-            if s[0] in ("load", "smooth", "classify", "changes", "clusters", "explorer")
+            if s[0] in ("load", "smooth", "view", "classify", "changes", "clusters", "explorer")
         ]
         cfg = load_config(ROOT / "demo_data" / "demo.toml").with_values(
             "brief", {"formats": ["explorer"]}

@@ -373,7 +373,8 @@ def test_natural_breaks_match_the_breaks_command(page, explored, grid_run):
     )
     assert res.exit_code == 0, res.output
     lines = res.output.splitlines()
-    cli_labels = lines[1].strip().split(" | ")
+    head = next(i for i, line in enumerate(lines) if line.startswith("natural-breaks,"))
+    cli_labels = lines[head + 1].strip().split(" | ")
     page.pg.select_option("#md-scheme", "natural-breaks")
     page.pg.select_option("#md-k", str(k))
     assert page.pg.get_attribute("#md-map", "data-scheme") == f"natural-breaks:{k}"

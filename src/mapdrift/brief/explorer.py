@@ -378,7 +378,10 @@ def payload_from_state(state: Any, *, raster_px: int = DEFAULT_RASTER_PX) -> dic
     smooth = state.section(ClusterOptions, "clusters").smooth
     inputs = state.config.section("inputs")
     raw = None
-    if smooth and panel.numerator is not None and panel.denominator is not None:
+    # raw rates beside smoothed ones, unless a view (e.g. change since a base period) turned
+    # the values into something else
+    viewed = bool(getattr(panel.meta, "view", ""))
+    if smooth and not viewed and panel.numerator is not None and panel.denominator is not None:
         with np.errstate(invalid="ignore", divide="ignore"):
             raw = panel.numerator / panel.denominator * float(inputs.get("per", 1000.0))
     nbrs = None
@@ -398,7 +401,7 @@ def payload_from_state(state: Any, *, raster_px: int = DEFAULT_RASTER_PX) -> dic
         title=brief.title or panel.meta.variable,
         subtitle=brief.subtitle or panel.meta.unit_label or "",
         source=brief.source or panel.meta.source,
-        notice=state.notice,
+        notice=" ".join(x for x in (state.notice, getattr(state, "view", "")) if x) or None,
         method=tuple(f"{k}: {v}" for k, v in method(state)),
         cautions=CAUTIONS,
     )

@@ -11,7 +11,7 @@ from mapdrift.cli._app import command
 from mapdrift.cli._print import echo
 
 #: The pipeline steps the explorer needs from a config (no animation, tables or briefing).
-EXPLORE_STEPS = ("load", "smooth", "classify", "changes", "clusters")
+EXPLORE_STEPS = ("load", "smooth", "view", "classify", "changes", "clusters")
 
 
 @command("explore")
