@@ -516,3 +516,22 @@ def test_smoothed_run_carries_the_raw_rates(grid_run, tmp_path, browser):
     p.pg.click("#md-zoom-in")
     assert p.pg.locator("#md-map").bounding_box()["width"] == pytest.approx(2 * w1, abs=2)
     assert p.console == [] and p.requests == [p.url]
+
+
+def test_map_selection_reaches_list_histogram_and_history(page, explored):
+    _, panel, _ = explored
+    page.pg.click("#md-clear")
+    a, b = (
+        page.client_xy(page.raster_xy(panel.geometry.iloc[8])),
+        page.client_xy(page.raster_xy(panel.geometry.iloc[27])),
+    )
+    page.pg.keyboard.down("Shift")
+    page.pg.mouse.click(*a)
+    page.pg.mouse.click(*b)
+    page.pg.keyboard.up("Shift")
+    listed = page.pg.eval_on_selector_all("#md-list li", "els => els.map(e => e.dataset.unit)")
+    assert listed == [panel.units[8], panel.units[27]]
+    page.pg.mouse.click(*a)  # pin one of them: the other is drawn in its history
+    assert "1 selected unit in blue" in page.pg.locator("#md-traj-key").inner_text()
+    page.pg.click("#md-clear")
+    page.pg.mouse.click(*a)  # unpin

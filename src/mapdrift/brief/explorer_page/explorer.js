@@ -602,7 +602,7 @@
     var parts = ['value per period (black) over the class bands'];
     if (A.raw) parts.push('raw rate dashed grey; the map shows the smoothed value (' + D.smoothing + ')');
     if (A.jumps) parts.push('orange triangles: jumps');
-    if (others.length) parts.push(others.length + ' selected units in blue');
+    if (others.length) parts.push(others.length + (others.length === 1 ? ' selected unit' : ' selected units') + ' in blue');
     key.textContent = parts.join('; ') + '.';
     cv.dataset.unit = D.units[u];
   }
