@@ -7,8 +7,10 @@
 (function () {
   'use strict';
 
+  performance.mark('md-script');
   var $ = function (id) { return document.getElementById(id); };
   var D = JSON.parse($('md-data').textContent);
+  performance.mark('md-parsed');
   var N = D.nUnits, P = D.nPeriods, W = D.raster.width, H = D.raster.height;
   var A = {};                       // typed arrays, unpacked
   var S = {
