@@ -22,7 +22,6 @@ from __future__ import annotations
 import base64
 import hashlib
 import json
-import math
 import re
 import zlib
 from collections.abc import Sequence
@@ -40,6 +39,7 @@ __all__ = [
     "ExplorerExtras",
     "build_payload",
     "pack_array",
+    "payload_from_state",
     "render_page",
     "write_explorer",
 ]
@@ -54,7 +54,6 @@ COMPARE_K: tuple[int, ...] = tuple(range(2, 10))
 #: stays crisp when zoomed 2x.
 DEFAULT_RASTER_PX = 2048
 
-_JUMP_NONE = 0
 # cluster label codes as in mapdrift.clusters.labels.LABELS (kept in step by a test)
 _CLUSTER_LABELS_DEFAULT = (
     "high-high",
@@ -144,10 +143,6 @@ def _period_major(arr: np.ndarray) -> np.ndarray:
 # ------------------------------------------------------------------------------------------
 # payload
 # ------------------------------------------------------------------------------------------
-def _finite_or_none(x: float) -> float | None:
-    return float(x) if math.isfinite(x) else None
-
-
 def _jump_arrays(
     jumps: Any, units: Sequence[str], periods: Sequence[str]
 ) -> tuple[np.ndarray, np.ndarray, bool]:
