@@ -173,25 +173,39 @@
 
   // ---------------------------------------------------------------- map drawing
   var mapCtx, mapImg, mapPx, lut, emph = null;
+  function hatchAt(flag, x, y) {
+    var stripe = ((x + y) & 7) < 2;
+    return flag === FLAG_ND ? (stripe ? HATCH32 : ND32) : (stripe ? HATCH_F32 : ND_F32);
+  }
   function redraw() {
     var t0 = performance.now();
     var info = schemeInfo(), cls = classesNow(), off = S.period * N;
     var pal = info.colours.map(hexRgb), p32 = pal.map(pack32), f32 = pal.map(function (c) { return pack32(fade(c)); });
     emph = emphasis();
     lut[0] = 0;
+    var nd = [];
     for (var u = 0; u < N; u++) {
       var c = cls[off + u], on = !emph || emph[u] === 1;
-      lut[u + 1] = c < 0 ? (on ? FLAG_ND : FLAG_ND_FADED) : (on ? p32[c] : f32[c]);
+      if (c < 0) { lut[u + 1] = on ? FLAG_ND : FLAG_ND_FADED; nd.push(u); }
+      else lut[u + 1] = on ? p32[c] : f32[c];
     }
-    var lab = A.label, px = mapPx, i = 0;
-    for (var y = 0; y < H; y++) {
-      for (var x = 0; x < W; x++, i++) {
-        var col = lut[lab[i] + 1];
-        if (col > 0) {
-          var stripe = ((x + y) & 7) < 2;
-          col = col === FLAG_ND ? (stripe ? HATCH32 : ND32) : (stripe ? HATCH_F32 : ND_F32);
+    // one flat pass: a pixel is the colour of its unit; then hatch the no-data units, within
+    // their bounding boxes once those are known (a full pass before that, at the first paint)
+    var lab = A.label, px = mapPx, n = W * H, i, x, y, col;
+    for (i = 0; i < n; i++) px[i] = lut[lab[i] + 1];
+    if (nd.length && !bx1) {
+      for (y = 0, i = 0; y < H; y++) {
+        for (x = 0; x < W; x++, i++) { col = px[i]; if (col > 0) px[i] = hatchAt(col, x, y); }
+      }
+    } else {
+      for (var q = 0; q < nd.length; q++) {
+        var v = nd[q];
+        if (bx1[v] < 0) continue;
+        for (y = by0[v]; y <= by1[v]; y++) {
+          for (x = bx0[v], i = y * W + x; x <= bx1[v]; x++, i++) {
+            if (lab[i] === v) px[i] = hatchAt(px[i], x, y);
+          }
         }
-        px[i] = col;
       }
     }
     mapCtx.putImageData(mapImg, 0, 0);
