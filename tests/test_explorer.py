@@ -535,3 +535,26 @@ def test_map_selection_reaches_list_histogram_and_history(page, explored):
     assert "1 selected unit in blue" in page.pg.locator("#md-traj-key").inner_text()
     page.pg.click("#md-clear")
     page.pg.mouse.click(*a)  # unpin
+
+
+def test_per_period_breaks_say_so(grid_run, tmp_path, browser):
+    from typer.testing import CliRunner
+
+    from mapdrift.breaks import PER_PERIOD_WARNING
+    from mapdrift.cli import app
+
+    toml = (grid_run / "run.toml").read_text().replace("k = 4\n", 'k = 4\nbasis = "per-period"\n')
+    (grid_run / "per_period.toml").write_text(toml)
+    out = tmp_path / "pp.html"
+    res = CliRunner().invoke(
+        app, ["explore", str(grid_run / "per_period.toml"), "--out", str(out), "--raster-px", "400"]
+    )
+    assert res.exit_code == 0, res.output
+    p = Page(browser, out)
+    assert PER_PERIOD_WARNING in p.pg.locator("#md-notice").inner_text()
+    assert "Breaks differ by period" in p.pg.locator("#md-compare").inner_text()
+    p.pg.select_option("#md-scheme", "quantile")
+    p.pg.locator("#md-strip").focus()
+    p.pg.keyboard.press("Home")
+    assert "Breaks differ by period" in p.pg.locator("#md-compare").inner_text()
+    assert p.console == [] and p.requests == [p.url]
