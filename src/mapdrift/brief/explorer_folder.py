@@ -99,9 +99,11 @@ def payload_from_folder(folder: Path | str, *, raster_px: int | None = None) -> 
         ).astype(np.int8)
     jumps = None
     if (folder / "jumps.csv").exists():
-        jumps = pd.read_csv(
-            folder / "jumps.csv", comment="#", dtype={"unit": str, "to_period": str}
-        )
+        path = folder / "jumps.csv"
+        with path.open(encoding="utf-8") as f:
+            skip = 1 if f.readline().startswith("# ") else 0  # the per-period warning line
+        # not comment="#": a name may hold a "#"
+        jumps = pd.read_csv(path, skiprows=skip, dtype={"unit": str, "to_period": str})
     nbrs = None
     try:
         from mapdrift.weights import build_weights
