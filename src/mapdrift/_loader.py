@@ -282,7 +282,7 @@ def _roles(spec: InputSpec) -> dict[str, str]:
     return {}
 
 
-_FLAGS = {"value": "--columns", "num": "--numerator", "den": "--denominator"}
+_FLAGS = {"value": "--columns", "num": "--numerator", "den": "--denominator", "moe": "--moe"}
 
 
 def _pattern(pattern: str, flag: str) -> re.Pattern[str]:
@@ -352,6 +352,8 @@ def long_stage(table: Table, spec: InputSpec) -> Long:
             )
         p_col = _column(df, spec.period, where, "--period")
         cols = {"value": spec.value} if spec.value else roles
+        if spec.moe:  # margins of error beside the values (rates only)
+            cols = {**cols, "moe": spec.moe}
         cols = {
             r: _column(df, c, where, "--value" if r == "value" else _FLAGS[r])
             for r, c in cols.items()
@@ -361,6 +363,8 @@ def long_stage(table: Table, spec: InputSpec) -> Long:
         )
         return Long(long.reset_index(drop=True), tuple(cols), {}, period_column=str(p_col))
     patterns = {"value": spec.columns} if spec.columns else (dict(roles) or {"value": ""})
+    if spec.moe:
+        patterns["moe"] = spec.moe
     parts = []
     col_of: dict[str, str] = {}
     for role, pattern in patterns.items():
@@ -487,6 +491,7 @@ def numbers_stage(long: Long, spec: InputSpec, table: Table, findings: list[Find
         "value": spec.value or spec.columns or "value",
         "num": spec.numerator,
         "den": spec.denominator,
+        "moe": spec.moe,
     }
     factorised = {r: distinct(f[r]) for r in long.roles}  # each column factorised once
     evidence = decimal_evidence({str(label[r]): factorised[r] for r in long.roles})
@@ -759,6 +764,7 @@ def _chain(
         findings += rate_findings
     else:
         values = _grid(shape, rows, cols, long.frame["value"].to_numpy())
+    moe = _grid(shape, rows, cols, long.frame["moe"].to_numpy()) if "moe" in long.roles else None
     _value_checks(values, layer.ids, long.labels, denominator, spec, findings)
     if not np.isfinite(values).any():
         what = "rates" if counts else f"column {str(spec.value or spec.columns or 'value')!r}"
@@ -791,6 +797,7 @@ def _chain(
         denominator=denominator,
         inputs=inputs,
         labels=labels,
+        moe=moe,
     )
 
 
