@@ -434,8 +434,7 @@ def periods_stage(long: Long, spec: InputSpec, where: str, findings: list[Findin
     f = long.frame
     codes, uniq = pd.factorize(f["period_text"], use_na_sentinel=True)
     text = pd.Series(np.asarray(uniq, dtype=object)).astype(str).str.strip().to_numpy(dtype=object)
-    blank_u = text == ""
-    blank = (codes < 0) | blank_u[np.maximum(codes, 0)]
+    blank = np.append(text == "", True)[codes]  # code -1 (a missing cell) is blank too
     if blank.any():
         findings.append(
             Finding(
@@ -733,6 +732,22 @@ def _value_checks(
         )
 
 
+class _Clock:
+    """Stage timings for the debug log (the run's own step timings cover the whole load)."""
+
+    def __init__(self) -> None:
+        import time
+
+        self._now = time.perf_counter
+        self._t = self._now()
+
+    def lap(self, stage: str, value: Any) -> Any:
+        t = self._now()
+        log.debug("load stage %s: %.3f s", stage, t - self._t)
+        self._t = t
+        return value
+
+
 def _words(col: str | None) -> str:
     """Column names (or patterns) read as words in titles: ``rate_*`` -> ``rate``,
     ``HR(\\d+)`` -> ``HR``."""
@@ -743,17 +758,23 @@ def _words(col: str | None) -> str:
 def _chain(
     layer: Layer, table: Table, spec: InputSpec, findings: list[Finding], inputs: tuple[Path, ...]
 ) -> Panel:
-    """Everything after reading: long frame -> ids -> periods -> numbers -> ... -> Panel."""
-    long = long_stage(table, spec)
-    long = ids_stage(long, layer, spec, table.where, not table.from_layer, findings)
+    """Everything after reading: long frame -> ids -> periods -> numbers -> ... -> Panel.
+
+    Each stage's time is logged at DEBUG level (``mapdrift -v``-style logging shows them).
+    """
+    clock = _Clock()
+    long = clock.lap("long frame", long_stage(table, spec))
+    long = clock.lap(
+        "ids", ids_stage(long, layer, spec, table.where, not table.from_layer, findings)
+    )
     if table.wide_append:
         long = drop_fill(long)
-    long = periods_stage(long, spec, table.where, findings)
-    long = numbers_stage(long, spec, table, findings)
-    long = duplicates_stage(long, spec, table, findings)
+    long = clock.lap("periods", periods_stage(long, spec, table.where, findings))
+    long = clock.lap("numbers", numbers_stage(long, spec, table, findings))
+    long = clock.lap("duplicates", duplicates_stage(long, spec, table, findings))
     counts = "num" in long.roles
-    long = crosswalk_stage(long, layer, spec, counts, findings)
-    rows, cols, long = match_stage(long, layer, table, findings)
+    long = clock.lap("crosswalk", crosswalk_stage(long, layer, spec, counts, findings))
+    rows, cols, long = clock.lap("match", match_stage(long, layer, table, findings))
 
     shape = (len(layer.ids), len(long.periods))
     numerator = denominator = None

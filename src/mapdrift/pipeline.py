@@ -188,6 +188,14 @@ def _weights(state: RunState) -> Any:
 
 
 def _step_smooth(state: RunState) -> str:
+    """Rate smoothing, then the view (smoothing works on counts, so it comes first); one step,
+    so the steps up to the classes stay load, smooth, classify."""
+    done = _smooth(state)
+    view = _view(state)
+    return f"{done}; {view}" if view else done
+
+
+def _smooth(state: RunState) -> str:
     from mapdrift.clusters import ClusterOptions
 
     opt = state.section(ClusterOptions, "clusters")
@@ -202,12 +210,12 @@ def _step_smooth(state: RunState) -> str:
     return f"{opt.smooth} smoothing applied to maps and statistics"
 
 
-def _step_view(state: RunState) -> str:
+def _view(state: RunState) -> str:
     from mapdrift.views import apply_view, parse_view
 
     view = parse_view(state.inputs.view)
     if view.is_raw:
-        return "values as read (no view)"
+        return ""
     state.panel = apply_view(state.panel, view, spec=state.inputs)
     state.findings.append(state.panel.findings[-1])
     return state.panel.meta.view
@@ -225,6 +233,22 @@ def _previous_breaks(state: RunState) -> Path | None:
     return path
 
 
+def _same_view(state: RunState, breaks: Path) -> None:
+    """Stop when last year's breaks were fitted on values seen through another view (their
+    numbers would mean something else), unless the breaks are refitted."""
+    manifest = breaks.parent / "manifest.json"
+    if state.run.rebreak or not manifest.exists():
+        return
+    before = json.loads(manifest.read_text(encoding="utf-8")).get("parameters", {}).get("view")
+    now = state.view or "values as read"
+    if before is not None and before != now:
+        raise ConfigError(
+            f"previous = {state.run.previous}: its breaks are for {before.removeprefix('view: ')}, "
+            f"but this run's values are {now.removeprefix('view: ')}; use the same view "
+            "([inputs] view / --view) or refit the breaks with --rebreak"
+        )
+
+
 def _step_classify(state: RunState) -> str:
     from mapdrift.atomic import write_text
     from mapdrift.breaks import classify_spec, describe
@@ -235,6 +259,7 @@ def _step_classify(state: RunState) -> str:
     reused_from = None
     prev = _previous_breaks(state)
     if prev is not None and breaks_file is None:
+        _same_view(state, prev)
         if state.run.rebreak:
             state.notices.append(REBREAK_NOTICE)
             state.findings.append(Finding("warning", "breaks-refitted", REBREAK_NOTICE))
@@ -409,8 +434,10 @@ def _step_changes(state: RunState) -> str:
     result = analyse_changes(
         panel, classes, opt, weights=_weights(state) if opt.spatial and same_weights else None
     )
-    if state.view:  # every table says which view its values are in
-        result = replace(result, warning=" ".join(x for x in (result.warning, state.view) if x))
+    if panel.meta.view:  # every table says which view its values are in
+        result = replace(
+            result, warning=" ".join(x for x in (result.warning, panel.meta.view) if x)
+        )
     state.results["changes"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_changes(result, state.staging, units_table=False)
@@ -551,7 +578,6 @@ def _step_brief(state: RunState) -> str:
 STEPS: list[tuple[str, Callable[[RunState], str]]] = [
     ("load", _step_load),
     ("smooth", _step_smooth),
-    ("view", _step_view),
     ("classify", _step_classify),
     ("changes", _step_changes),
     ("clusters", _step_clusters),

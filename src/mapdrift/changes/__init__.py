@@ -228,38 +228,16 @@ def relative_panel(panel: Panel, how: str = "mean") -> Panel:
     """Each period's values divided by that period's mean (or median) over units.
 
     NaN stays NaN; a period whose mean/median is zero or missing gets NaN values throughout and
-    a warning finding. The result is a derived Panel (``panel.with_values``) whose values are
-    ratios (1 = the period's typical value).
+    a warning finding. The result is a derived Panel whose values are ratios (1 = the period's
+    typical value), the same as the ``relative-mean``/``relative-median`` view of
+    :func:`mapdrift.views.apply_view` (one definition), labelled on every output.
     """
+    from mapdrift.views import View, apply_view
+
     if how not in RELATIVE_CHOICES:
         valid = ", ".join(RELATIVE_CHOICES)
         raise ConfigError(f"--relative {how!r} is not a valid option, must be one of {valid}")
-    v = panel.values
-    with np.errstate(invalid="ignore", divide="ignore"):
-        centre = np.nanmean(v, axis=0) if how == "mean" else np.nanmedian(v, axis=0)
-    bad = ~np.isfinite(centre) | (centre == 0)
-    safe = np.where(bad, np.nan, centre)
-    rel = v / safe
-    if bad.any():
-        periods = [panel.period_labels[j] for j in np.flatnonzero(bad)]
-        finding = Finding(
-            "warning",
-            "relative-undefined",
-            f"the {how} is zero or missing in {int(bad.sum())} periods ({examples(periods)}); "
-            "their relative values are no data",
-        )
-    else:
-        finding = Finding(
-            "note",
-            "relative-values",
-            f"values are divided by each period's {how} (1 = the period's {how})",
-        )
-    return panel.with_values(
-        rel,
-        finding=finding,
-        variable=f"{panel.meta.variable} relative to the period {how}",
-        unit_label=f"x the period {how}",
-    )
+    return apply_view(panel, View("relative", how))
 
 
 def _findings(

@@ -151,8 +151,8 @@ def changes(
         f"{int(u['stayed_bottom'].sum())} stayed in bottom class"
     )
     echo(result.noise_text)
-    if result.warning:
-        echo(typer.style(f"warning: {result.warning}", fg=typer.colors.YELLOW))
+    if cls.warning:  # (result.warning also names the view, said in the summary above)
+        echo(typer.style(f"warning: {cls.warning}", fg=typer.colors.YELLOW))
     shown = [
         f
         for f in result.findings
