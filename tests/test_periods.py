@@ -171,6 +171,11 @@ def test_mexico_decades_and_name_hints():
     assert "Quertaro -> Queretaro de Arteaga?" in hint and "Veracruz -> Veracruz-Llave?" in hint
     blank = codes["units-no-values"]
     assert blank.level == "warning" and blank.message.startswith("16% of layer units")
+    # joined on the wrong layer column, the error points at the right one
+    with pytest.raises(InputError, match=r"the layer's column 'NAME' holds \d+% .*--id NAME"):
+        load_panel(
+            InputSpec(geometry=shp, table=csv, id="POLY_ID", table_id="State", columns="pcgdp*")
+        )
     # Aguascalientes, 1940: 10384 (mexico.csv as shipped)
     assert p.values[p.units.index("Aguascalientes"), 0] == 10384
 
