@@ -51,7 +51,9 @@ def normalise(values: Any) -> np.ndarray:
     dotted = text.str.contains(".", regex=False).fillna(False).to_numpy(bool)
     out = text.to_numpy(dtype=object)
     if dotted.any():  # a float's trailing ".0": only the few cells with a point go through re
-        fixed = pd.Series(out[dotted], dtype=object).str.replace(r"^(-?\d+)\.0+$", r"\1", regex=True)
+        fixed = pd.Series(out[dotted], dtype=object).str.replace(
+            r"^(-?\d+)\.0+$", r"\1", regex=True
+        )
         out[dotted] = fixed.to_numpy(dtype=object)
     out[missing] = ""
     return out
