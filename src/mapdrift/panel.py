@@ -335,6 +335,10 @@ class InputSpec:
             if getattr(self, name) is not None:
                 object.__setattr__(self, name, Path(getattr(self, name)))
         object.__setattr__(self, "missing", tuple(float(x) for x in self.missing))
+        if self.view is not None:  # a bad view stops when the config is read
+            from mapdrift.views import parse_view
+
+            parse_view(self.view)
 
 
 def load_panel(spec: InputSpec) -> Panel:
