@@ -411,7 +411,7 @@ def ids_stage(
     codes2, distinct = pd.factorize(pd.Series(np.append(ids, ""), dtype=object))
     uid = np.where(codes >= 0, codes2[np.maximum(codes, 0)], codes2[-1])
     distinct = np.asarray(distinct, dtype=object)
-    blank = distinct[uid] == ""
+    blank = uid == codes2[-1]  # the code of "" (appended last above): rows without an ID
     if blank.any():  # rows that cannot be placed are counted, never dropped silently
         findings.append(
             Finding(
