@@ -90,8 +90,10 @@ def default_out(config: Config) -> Path:
 def run_inputs(config: Config) -> list[Path]:
     """Every file or folder this run reads: the config and each path-valued key."""
     found: list[Path] = [config.path] if config.path is not None else []
-    for values in config.sections.values():
-        for v in values.values():
+    for section, values in config.sections.items():
+        for key, v in values.items():
+            if (section, key) == ("run", "out"):
+                continue
             for item in v if isinstance(v, list | tuple) else (v,):
                 if isinstance(item, Path):
                     found.append(item)

@@ -85,6 +85,13 @@ class ClusterOptions:
             )
         if self.persist < 1:
             raise ConfigError(f"--persist must be 1 or more periods, got {self.persist}")
+        if not 0 <= self.seed < 2**32:
+            raise ConfigError(f"--seed must be a whole number from 0 to 2**32 - 1, got {self.seed}")
+        if self.min_periods < 3:
+            raise ConfigError(
+                f"min_periods must be 3 or more (a trend test needs 3 values), got "
+                f"{self.min_periods}"
+            )
         if self.smooth not in (None, "eb", "spatial-eb"):
             raise ConfigError(
                 f"--smooth {self.smooth!r} is not a valid option, must be one of eb, spatial-eb"
