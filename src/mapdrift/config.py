@@ -91,6 +91,12 @@ class BriefSpec:
     formats: tuple[str, ...] = ("gif", "mp4", "png", "pptx", "html", "gpkg")
 
     def __post_init__(self) -> None:
+        from mapdrift.safetext import clean
+
+        for name in ("title", "subtitle", "author", "organisation", "source", "date"):
+            value = getattr(self, name)
+            if isinstance(value, str):  # no line breaks or control characters in drawn text
+                object.__setattr__(self, name, clean(value))
         unknown = [f for f in self.formats if f not in FORMATS]
         if unknown:
             hint = _did_you_mean(unknown[0], FORMATS, "{!r}")
