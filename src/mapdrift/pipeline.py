@@ -377,7 +377,7 @@ def _step_clusters(state: RunState) -> str:
 
 
 def _step_units(state: RunState) -> str:
-    from mapdrift.brief.tables import units_table, write_units_gpkg
+    from mapdrift.brief.tables import SQLITE_MAX_COLUMNS, units_table, write_units_gpkg
     from mapdrift.outputs import write_csv
 
     extra: dict[str, Any] = {}
@@ -396,7 +396,19 @@ def _step_units(state: RunState) -> str:
     write_csv(df, state.path("units.csv"), warning=state.notice)
     formats = state.section(BriefSpec, "brief").formats
     if "gpkg" in formats:
-        write_units_gpkg(df, state.panel.geometry, state.path("units.gpkg"))
+        p = state.panel
+        if write_units_gpkg(
+            df, p.geometry, state.path("units.gpkg"), period_labels=p.period_labels
+        ):
+            state.findings.append(
+                Finding(
+                    "note",
+                    "units-gpkg-long",
+                    f"units.gpkg: {len(df.columns)} columns are more than a GeoPackage table "
+                    f"holds ({SQLITE_MAX_COLUMNS}); the per-period columns are in its table "
+                    "units_by_period (one row per unit and period)",
+                )
+            )
     return f"{len(df)} units x {len(df.columns)} columns (units.csv" + (
         ", units.gpkg)" if "gpkg" in formats else ")"
     )
