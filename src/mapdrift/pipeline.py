@@ -143,6 +143,13 @@ def _step_load(state: RunState) -> str:
     state.panel = load_panel(merge(InputSpec, inputs, {}))
     state.findings += state.panel.findings
     p = state.panel
+    if p.n_periods < 2:
+        table = inputs.get("table") or inputs["geometry"]
+        raise InputError(
+            f"{table}: only one period ({', '.join(p.period_labels) or 'none'}) has values; a run "
+            "compares periods, so it needs two or more (check the period column, or use "
+            "`mapdrift animate --at` for a single map)"
+        )
     return (
         f"{p.n_units} units x {p.n_periods} periods ({p.period_labels[0]} to {p.period_labels[-1]})"
     )

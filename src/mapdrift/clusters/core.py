@@ -203,6 +203,27 @@ def _trend_map(tr: TrendResult, unit_label: str) -> tuple[np.ndarray, tuple[str,
     return codes, labels
 
 
+#: Above this magnitude squared deviations overflow float64 (1e308); statistics then use the
+#: values scaled by a power of two (exact), which Moran's I and Gi* do not depend on.
+_HUGE = 1e150
+
+
+def _rescaled(values: np.ndarray) -> tuple[np.ndarray, Finding | None]:
+    """``values`` scaled by a power of two when they are huge, with a note saying so."""
+    finite = values[np.isfinite(values)]
+    big = float(np.abs(finite).max()) if finite.size else 0.0
+    if big <= _HUGE:
+        return values, None
+    exp = int(np.frexp(big)[1])
+    note = Finding(
+        "note",
+        "values-rescaled",
+        f"values reach {big:.3g}; the cluster statistics used them divided by 2^{exp} (exact, "
+        "and Moran's I and Gi* do not change with the scale) so squares do not overflow",
+    )
+    return np.ldexp(values, -exp), note
+
+
 def analyse_clusters(
     panel: Panel,
     classes: Any = None,
@@ -239,9 +260,12 @@ def analyse_clusters(
     labels_p = panel.period_labels
     n_t = len(labels_p)
 
-    local = _local(values, weights, opt)
-    p_adj, codes = _label(local, values, opt)
-    glob = tuple(moran_global_panel(values, weights, permutations=opt.permutations, seed=opt.seed))
+    stat, rescaled = _rescaled(values)
+    if rescaled is not None:
+        findings.append(rescaled)
+    local = _local(stat, weights, opt)
+    p_adj, codes = _label(local, stat, opt)
+    glob = tuple(moran_global_panel(stat, weights, permutations=opt.permutations, seed=opt.seed))
 
     # local Moran of change between two periods
     a = panel.period_index(opt.change_from) if opt.change_from is not None else 0
@@ -251,7 +275,7 @@ def analyse_clusters(
             f"the change between periods needs two different periods; got --from "
             f"{labels_p[a]} --to {labels_p[b]} (periods: {examples(labels_p, 6)})"
         )
-    delta = (values[:, b] - values[:, a])[:, None]
+    delta = (stat[:, b] - stat[:, a])[:, None]
     ch_local = _local(delta, weights, opt)
     _, ch_codes = _label(ch_local, delta, opt)
 
