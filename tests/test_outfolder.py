@@ -116,6 +116,16 @@ def test_read_only_parent_refused_before_any_work(tmp_path):
         ro.chmod(0o755)
 
 
+def test_unwritable_parent_refused_before_any_work(tmp_path, monkeypatch):
+    # the same check as above for a process that may write anywhere (tests may run as root)
+    import mapdrift.pipeline as pipeline
+
+    monkeypatch.setattr(pipeline.os, "access", lambda path, mode: False)
+    with pytest.raises(ConfigError, match=r"cannot write in .* \(permission denied\)"):
+        run(_quick(), out=tmp_path / "ro" / "run", steps=STEPS[:1])
+    assert not (tmp_path / "ro").exists()
+
+
 def test_second_run_into_the_same_folder_stops_at_once(tmp_path):
     out = tmp_path / "new"
     with lock_out(out), pytest.raises(OutputExistsError, match="another mapdrift run"):
