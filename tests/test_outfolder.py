@@ -282,7 +282,8 @@ def test_killed_run_loses_nothing_and_next_run_cleans_up(earlier_run, tmp_path, 
                 break
         proc.send_signal(sig)
     elif point == "mp4":
-        assert _wait_for(lambda: any(_procs_naming(".run.partial-")))
+        # this test's own encoder (other test sessions may run encoders at the same time)
+        assert _wait_for(lambda: any(_procs_naming(str(tmp_path / ".run.partial-"))))
         proc.send_signal(sig)
     rc = proc.wait(timeout=600)
     assert rc != 0

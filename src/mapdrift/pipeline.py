@@ -15,7 +15,6 @@ from __future__ import annotations
 import json
 import logging
 import os
-import shutil
 import time
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
@@ -580,7 +579,14 @@ def run(
     it starts (the CLI shows a spinner with it). ``out`` is checked before any work and again
     at the swap (see :mod:`mapdrift.outfolder`); leftovers of killed runs are cleaned first.
     """
-    from mapdrift.outfolder import lock_out, recover, set_aside_for, staging_for, swap_in
+    from mapdrift.outfolder import (
+        lock_out,
+        recover,
+        remove_staging,
+        set_aside_for,
+        staging_for,
+        swap_in,
+    )
 
     run_spec: RunSpec = merge(RunSpec, config.section("run"), {})
     out = Path(out or run_spec.out or default_out(config))
@@ -595,15 +601,15 @@ def run(
                 progress(f"{'recover':<10} {line}")
         prepare_out(out, force=force, inputs=inputs)  # before any work
         staging = staging_for(out)
-        staging.mkdir(parents=True)
         try:
+            staging.mkdir(parents=True)
             state = RunState(config=config, staging=staging, run=run_spec)
             state.findings += [Finding("warning", "out-recovered", m) for m in recovered]
             _run_steps(state, out, steps, progress, on_start)
             _manifest(state, replaces=set_aside_for(out).name if out.exists() else None)
             swap_in(staging, out, inputs, force=force)
         finally:
-            shutil.rmtree(staging, ignore_errors=True)
+            remove_staging(staging)
     outputs = tuple(sorted(p for p in out.rglob("*") if p.is_file()))
     return RunResult(
         out, tuple(state.findings), dict(state.timings), dict(state.summaries), outputs
