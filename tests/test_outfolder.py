@@ -23,6 +23,9 @@ from mapdrift.errors import ConfigError, OutputExistsError
 from mapdrift.outfolder import blockers, lock_out, recover
 from mapdrift.pipeline import STEPS, run
 
+# the steps up to and including classify (which writes breaks.json), by name
+TO_CLASSIFY = STEPS[: [name for name, _ in STEPS].index("classify") + 1]
+
 
 def _hashes(folder: Path) -> dict[str, str]:
     return {
@@ -65,16 +68,16 @@ def test_force_never_replaces_a_folder_holding_inputs(inputs_copy, runner):
 def test_force_refuses_unknown_and_edited_files(tmp_path):
     cfg = _quick()
     out = tmp_path / "run"
-    run(cfg, out=out, steps=STEPS[:3])
+    run(cfg, out=out, steps=TO_CLASSIFY)
     assert blockers(out) == []
     (out / "notes.txt").write_text("keep me")
     with pytest.raises(OutputExistsError, match=r"1 file no mapdrift run wrote \(notes.txt\)"):
-        run(cfg, out=out, force=True, steps=STEPS[:3])
+        run(cfg, out=out, force=True, steps=TO_CLASSIFY)
     assert (out / "notes.txt").read_text() == "keep me"
     (out / "notes.txt").unlink()
     (out / "breaks.json").write_text("{}\n")  # an output edited by hand
     with pytest.raises(OutputExistsError, match=r"1 output changed.*breaks.json"):
-        run(cfg, out=out, force=True, steps=STEPS[:3])
+        run(cfg, out=out, force=True, steps=TO_CLASSIFY)
     assert (out / "breaks.json").read_text() == "{}\n"
 
 
@@ -90,10 +93,10 @@ def test_unknown_folder_refused_even_with_force(tmp_path):
 def test_previous_run_is_an_input(tmp_path):
     out = tmp_path / "2024"
     cfg = _quick()
-    run(cfg, out=out, steps=STEPS[:3])
+    run(cfg, out=out, steps=TO_CLASSIFY)
     again = cfg.with_values("run", {"previous": str(out)})
     with pytest.raises(OutputExistsError, match="input"):
-        run(again, out=out, force=True, steps=STEPS[:3])
+        run(again, out=out, force=True, steps=TO_CLASSIFY)
 
 
 @pytest.mark.parametrize("where", [".", "file"])
@@ -150,7 +153,7 @@ def test_folder_created_during_the_run_is_not_replaced(tmp_path):
 def test_file_added_during_the_run_stops_the_swap(tmp_path):
     out = tmp_path / "run"
     cfg = _quick()
-    run(cfg, out=out, steps=STEPS[:3])
+    run(cfg, out=out, steps=TO_CLASSIFY)
     before = _hashes(out)
 
     def add_file(state):
@@ -158,14 +161,14 @@ def test_file_added_during_the_run_stops_the_swap(tmp_path):
         return "added"
 
     with pytest.raises(OutputExistsError, match=r"at the end of the run.*added.txt"):
-        run(cfg, out=out, force=True, steps=[*STEPS[:3], ("user", add_file)])
+        run(cfg, out=out, force=True, steps=[*TO_CLASSIFY, ("user", add_file)])
     assert _hashes(out) == before | {"added.txt": _hashes(out)["added.txt"]}
     assert _strays(tmp_path, "run") == []
 
 
 def test_recover_restores_an_interrupted_swap_and_cleans_staging(tmp_path):
     out = tmp_path / "run"
-    run(_quick(), out=out, steps=STEPS[:3])
+    run(_quick(), out=out, steps=TO_CLASSIFY)
     before = _hashes(out)
     os.rename(out, tmp_path / ".run.old-99999")  # killed between the two renames
     stale = tmp_path / ".run.partial-99998"
@@ -178,7 +181,7 @@ def test_recover_restores_an_interrupted_swap_and_cleans_staging(tmp_path):
 
 def test_recover_reports_an_intact_old_folder_beside_out(tmp_path):
     out = tmp_path / "run"
-    run(_quick(), out=out, steps=STEPS[:3])
+    run(_quick(), out=out, steps=TO_CLASSIFY)
     shutil.copytree(out, tmp_path / ".run.old-4242")
     done = recover(out)
     assert "left alone" in done[0] and (tmp_path / ".run.old-4242").is_dir()
@@ -186,7 +189,7 @@ def test_recover_reports_an_intact_old_folder_beside_out(tmp_path):
 
 def test_recover_removes_a_half_deleted_old_folder(tmp_path):
     out = tmp_path / "run"
-    run(_quick(), out=out, steps=STEPS[:3])
+    run(_quick(), out=out, steps=TO_CLASSIFY)
     old = tmp_path / ".run.old-4243"
     shutil.copytree(out, old)
     (old / "manifest.json").unlink()  # the swap finished and had begun deleting it

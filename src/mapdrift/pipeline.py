@@ -51,6 +51,25 @@ class RunState:
     timings: dict[str, float] = field(default_factory=dict)
     summaries: dict[str, str] = field(default_factory=dict)
     notices: list[str] = field(default_factory=list)
+    inputs: Any = None
+
+    @property
+    def view(self) -> str:
+        """The line naming the values' view ('' for values as read)."""
+        return self.panel.meta.view if self.panel is not None else ""
+
+    @property
+    def csv_note(self) -> str | None:
+        """The ``# `` first line of every table: the notice, then the view."""
+        return " ".join(x for x in (self.notice, self.view) if x) or None
+
+    @property
+    def trends_skipped(self) -> bool:
+        """Too few periods for per-unit trends: no trend map, slide or sentences."""
+        from mapdrift.clusters import ClusterOptions
+
+        need = max(self.section(ClusterOptions, "clusters").min_periods, 3)
+        return self.panel is not None and self.panel.n_periods < need
 
     def path(self, name: str) -> Path:
         p = self.staging / name
@@ -139,7 +158,12 @@ def _step_load(state: RunState) -> str:
         inputs["crosswalk"] = state.run.crosswalk
     if "geometry" not in inputs:
         raise ConfigError(f'{state.config.path}: [inputs] needs geometry = "<polygon layer>"')
-    state.panel = load_panel(merge(InputSpec, inputs, {}))
+    if inputs.get("view") and state.config.path is not None:
+        from mapdrift.views import resolve_view  # a deflator file is relative to the config
+
+        inputs["view"] = resolve_view(inputs["view"], state.config.path.parent)
+    state.inputs = merge(InputSpec, inputs, {})
+    state.panel = load_panel(state.inputs)
     state.findings += state.panel.findings
     p = state.panel
     if p.n_periods < 2:
@@ -172,6 +196,14 @@ def _weights(state: RunState) -> Any:
 
 
 def _step_smooth(state: RunState) -> str:
+    """Rate smoothing, then the view (smoothing works on counts, so it comes first); one step,
+    so the steps up to the classes stay load, smooth, classify."""
+    done = _smooth(state)
+    view = _view(state)
+    return f"{done}; {view}" if view else done
+
+
+def _smooth(state: RunState) -> str:
     from mapdrift.clusters import ClusterOptions
 
     opt = state.section(ClusterOptions, "clusters")
@@ -186,6 +218,17 @@ def _step_smooth(state: RunState) -> str:
     return f"{opt.smooth} smoothing applied to maps and statistics"
 
 
+def _view(state: RunState) -> str:
+    from mapdrift.views import apply_view, parse_view
+
+    view = parse_view(state.inputs.view)
+    if view.is_raw:
+        return ""
+    state.panel = apply_view(state.panel, view, spec=state.inputs)
+    state.findings.append(state.panel.findings[-1])
+    return state.panel.meta.view
+
+
 def _previous_breaks(state: RunState) -> Path | None:
     prev = state.run.previous
     if prev is None:
@@ -198,6 +241,22 @@ def _previous_breaks(state: RunState) -> Path | None:
     return path
 
 
+def _same_view(state: RunState, breaks: Path) -> None:
+    """Stop when last year's breaks were fitted on values seen through another view (their
+    numbers would mean something else), unless the breaks are refitted."""
+    manifest = breaks.parent / "manifest.json"
+    if state.run.rebreak or not manifest.exists():
+        return
+    before = json.loads(manifest.read_text(encoding="utf-8")).get("parameters", {}).get("view")
+    now = state.view or "values as read"
+    if before is not None and before != now:
+        raise ConfigError(
+            f"previous = {state.run.previous}: its breaks are for {before.removeprefix('view: ')}, "
+            f"but this run's values are {now.removeprefix('view: ')}; use the same view "
+            "([inputs] view / --view) or refit the breaks with --rebreak"
+        )
+
+
 def _step_classify(state: RunState) -> str:
     from mapdrift.atomic import write_text
     from mapdrift.breaks import classify_spec, describe
@@ -208,6 +267,7 @@ def _step_classify(state: RunState) -> str:
     reused_from = None
     prev = _previous_breaks(state)
     if prev is not None and breaks_file is None:
+        _same_view(state, prev)
         if state.run.rebreak:
             state.notices.append(REBREAK_NOTICE)
             state.findings.append(Finding("warning", "breaks-refitted", REBREAK_NOTICE))
@@ -224,6 +284,24 @@ def _step_classify(state: RunState) -> str:
     classes = classify_spec(state.panel, cs, breaks_file=breaks_file, reused_from=reused_from)
     state.classes = classes
     state.findings += classes.findings
+    if not classes.per_period:
+        from mapdrift.views import common_trend
+
+        trend = common_trend(state.panel, classes.codes, k=classes.k, view=state.inputs.view)
+        if trend is not None:
+            state.findings.append(trend)
+    if state.trends_skipped:
+        from mapdrift.clusters import ClusterOptions
+
+        need = max(state.section(ClusterOptions, "clusters").min_periods, 3)
+        state.findings.append(
+            Finding(
+                "note",
+                "trends-skipped",
+                f"{plural(state.panel.n_periods, 'period')}: per-unit trends need at least "
+                f"{need}, so the trend map, trend slide and trend sentences are left out",
+            )
+        )
     if classes.per_period:
         state.notices.insert(0, classes.warning)
         write_text(
@@ -270,10 +348,12 @@ def _step_animate(state: RunState) -> str:
     if ch is not None and len(ch.jumps):  # outline the units that jumped into each period
         index = {u: i for i, u in enumerate(p.units)}
         landed = {label: [] for label in p.period_labels}
-        for unit, to in zip(ch.jumps["unit"], ch.jumps["to_period"].astype(str)):
+        counted = ch.jumps["credible"] != "false"  # moves within count noise are not outlined
+        for unit, to in zip(ch.jumps["unit"][counted], ch.jumps["to_period"][counted].astype(str)):
             landed[to].append(index[unit])
         text["outlines"] = [landed[label] for label in p.period_labels]
-        text["outline_label"] = f"jumped {ch.options.jump}+ classes since the previous period"
+        what = "credibly jumped" if ch.tested else "jumped"
+        text["outline_label"] = f"{what} {ch.options.jump}+ classes since the previous period"
     done = []
     for fmt in ("gif", "mp4"):
         if fmt in formats:
@@ -333,9 +413,19 @@ def _step_changes(state: RunState) -> str:
     from mapdrift.breaks import classify_spec
     from mapdrift.brief.pictures import change_pictures
     from mapdrift.changes import ChangeOptions, analyse_changes, relative_panel, write_changes
+    from mapdrift.clusters import ClusterOptions
 
     opt = state.section(ChangeOptions, "changes")
+    given = state.config.section("changes")
+    cl_opt = state.section(ClusterOptions, "clusters")  # the run's multiple-testing choice
+    opt = replace(
+        opt,
+        alpha=given.get("alpha", cl_opt.alpha),
+        correction=given.get("correction", cl_opt.correction),
+    )
     panel, classes = state.panel, state.classes
+    if opt.persist > panel.n_periods:  # "the last 3 periods" with 2: all there are
+        opt = replace(opt, persist=panel.n_periods)
     if opt.relative:
         cs: ClassSpec = state.section(ClassSpec, "classes")
         panel = relative_panel(panel, opt.relative)
@@ -348,12 +438,14 @@ def _step_changes(state: RunState) -> str:
                 f"changes use values relative to each period's {opt.relative}",
             )
         )
-    from mapdrift.clusters import ClusterOptions
-
-    same_weights = opt.weights == state.section(ClusterOptions, "clusters").weights
+    same_weights = opt.weights == cl_opt.weights
     result = analyse_changes(
         panel, classes, opt, weights=_weights(state) if opt.spatial and same_weights else None
     )
+    if panel.meta.view:  # every table says which view its values are in
+        result = replace(
+            result, warning=" ".join(x for x in (result.warning, panel.meta.view) if x)
+        )
     state.results["changes"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_changes(result, state.staging, units_table=False)
@@ -361,7 +453,16 @@ def _step_changes(state: RunState) -> str:
     n_jump = int(result.units["jump"].sum())
     up = int((result.net_change > 0).sum())
     down = int((result.net_change < 0).sum())
-    return f"{up} units up, {down} down first to last; {n_jump} units jumped {opt.jump}+ classes"
+    if not result.tested:
+        return (
+            f"{up} units up, {down} down first to last; {n_jump} units jumped {opt.jump}+ "
+            "classes (not tested against noise: no counts)"
+        )
+    noise = int(((result.units["n_noise_moves"] > 0) & ~result.units["jump"]).sum())
+    return (
+        f"{up} units up, {down} down first to last; {n_jump} units credibly jumped {opt.jump}+ "
+        f"classes ({noise} more moved within count noise)"
+    )
 
 
 def _step_clusters(state: RunState) -> str:
@@ -370,13 +471,22 @@ def _step_clusters(state: RunState) -> str:
 
     opt = state.section(ClusterOptions, "clusters")
     opt = replace(opt, smooth=None)  # smoothing, when asked, was applied to the panel already
-    result = analyse_clusters(state.panel, state.classes, opt, weights=_weights(state))
+    if opt.persist > state.panel.n_periods:  # "steady for 3 periods" with 2: all there are
+        opt = replace(opt, persist=state.panel.n_periods)
+    from mapdrift.compute import ComputeSpec, executor_for
+
+    with executor_for(state.section(ComputeSpec, "compute")) as executor:
+        result = analyse_clusters(
+            state.panel, state.classes, opt, weights=_weights(state), executor=executor
+        )
     state.results["clusters"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
-    write_clusters(result, state.staging)
-    cluster_pictures(result, state.panel, state.staging)
+    write_clusters(result, state.staging, warning=state.view or None)
+    cluster_pictures(result, state.panel, state.staging, trends=not state.trends_skipped)
     last = result.period_labels[-1]
     hh = int((result.codes[:, -1] == 0).sum())
+    if state.trends_skipped:
+        return f"{hh} units high-high in {last}; trends skipped (too few periods)"
     sig = int(result.trend.significant.sum())
     trend_sig = result.significance.replace("per period", "across units")
     return f"{hh} units high-high in {last}; {sig} significant trends ({trend_sig})"
@@ -399,7 +509,7 @@ def _step_units(state: RunState) -> str:
     extra["small_base"] = [u in small for u in state.panel.units]
     df = units_table(state.panel, state.classes, extra)
     state.results["units"] = df
-    write_csv(df, state.path("units.csv"), warning=state.notice)
+    write_csv(df, state.path("units.csv"), warning=state.csv_note)
     formats = state.section(BriefSpec, "brief").formats
     if "gpkg" in formats:
         p = state.panel
@@ -424,7 +534,7 @@ def _step_whatsnew(state: RunState) -> str:
     if state.run.previous is None:
         return "no previous run given"
     from mapdrift.atomic import write_text
-    from mapdrift.brief.whatsnew import compare_runs, previous_name
+    from mapdrift.brief.whatsnew import compare_runs
 
     ch = state.results.get("changes")
     cl = state.results.get("clusters")
@@ -439,7 +549,7 @@ def _step_whatsnew(state: RunState) -> str:
     state.results["whatsnew"] = wn
     write_text(
         state.path("whats_new.json"),
-        json.dumps({"previous": previous_name(wn.previous), "news": wn.bullets()}, indent=2) + "\n",
+        json.dumps(wn.to_json(), indent=2, ensure_ascii=False) + "\n",
     )
     return (
         f"{plural(len(wn.new_jumps), 'new jump')}, {plural(len(wn.cluster_events), 'new cluster event')}, "
@@ -509,6 +619,7 @@ def _manifest(state: RunState, replaces: str | None = None) -> None:
         "units": state.panel.n_units if state.panel is not None else 0,
         "breaks": [b.to_dict() for b in c.breaks] if c is not None else [],
         "notice": state.notice,
+        "view": state.view or "values as read",
     }
     cl = state.results.get("clusters")
     if cl is not None:
@@ -517,6 +628,9 @@ def _manifest(state: RunState, replaces: str | None = None) -> None:
             weights=cl.weights.kind,
             islands=o.islands,
             permutations=o.permutations,
+            p_value=o.p_value,
+            standardise=o.standardise,
+            cluster_inputs=cl.inputs,
             alpha=o.alpha,
             correction=o.correction,
             seed=o.seed,

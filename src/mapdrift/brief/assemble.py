@@ -48,12 +48,29 @@ def headline(state: RunState) -> list[tuple[str, str]]:
         )
         spikes = int((ch.units["jump"] & ch.units["spike"]).sum())
         back = f" ({spikes} came straight back: check the data)" if spikes else ""
-        out.append(
-            (
-                f"units that jumped {ch.options.jump}+ classes in one year{back}",
-                f"{int(ch.units['jump'].sum())}",
+        if ch.tested:
+            noise = int(((ch.units["n_noise_moves"] > 0) & ~ch.units["jump"]).sum())
+            out.append(
+                (
+                    f"units that credibly jumped {ch.options.jump}+ classes in {p.step_label}{back}",
+                    f"{int(ch.units['jump'].sum())}",
+                )
             )
-        )
+            out.append(
+                (
+                    f"units whose {ch.options.jump}+ class moves are within count noise "
+                    "(listed in jumps.csv)",
+                    f"{noise}",
+                )
+            )
+        else:
+            out.append(
+                (
+                    f"units that jumped {ch.options.jump}+ classes in {p.step_label}{back} (not tested "
+                    "against noise: no counts given)",
+                    f"{int(ch.units['jump'].sum())}",
+                )
+            )
     cl = state.results.get("clusters")
     if cl is not None:
         joined = np.array([bool(v) for v in cl.changes["joined_high_cluster"]])
@@ -78,7 +95,7 @@ def headline(state: RunState) -> list[tuple[str, str]]:
             )
         )
         sig = cl.trends["significant"].astype(bool)
-        for word in ("rising", "falling"):
+        for word in ("rising", "falling") if not state.trends_skipped else ():
             n = int((sig & (cl.trends["direction"] == word)).sum())
             out.append((f"units with a significant {word} trend", f"{n}"))
     nd = int(np.isnan(p.values).all(axis=1).sum())
@@ -102,6 +119,8 @@ def method(state: RunState) -> list[tuple[str, str]]:
             describe(b) + ("" if c.per_period else ": " + " | ".join(b.labels)),
         ),
     ]
+    if state.view:
+        rows.append(("View", state.view.removeprefix("view: ")))
     if c.per_period:
         rows.append(("Warning", c.warning or ""))
     ch = state.results.get("changes")
@@ -113,6 +132,7 @@ def method(state: RunState) -> list[tuple[str, str]]:
                 f"transitions between consecutive periods on the map's classes; jump = {o.jump}+ classes in one step; spike = back within {o.spike_window} periods; Markov summaries after Kemeny & Snell; homogeneity test after Anderson & Goodman (1957)",
             )
         )
+        rows.append(("Jumps and noise", ch.noise_text))
     cl = state.results.get("clusters")
     if cl is not None:
         o = cl.options
@@ -122,13 +142,15 @@ def method(state: RunState) -> list[tuple[str, str]]:
         rows.append(
             (
                 "Clusters",
-                f"{'local Moran (Anselin 1995)' if o.statistic == 'local-moran' else 'Getis-Ord Gi*'}, {o.permutations} conditional permutations, two-sided p-values, seed {o.seed}; {cl.significance}",
+                f"{'local Moran (Anselin 1995)' if o.statistic == 'local-moran' else 'Getis-Ord Gi*'} on {cl.inputs}, two-sided p-values by {o.p_text}; {cl.significance}",
             )
         )
         rows.append(
             (
                 "Trends",
-                f"Mann-Kendall test with Theil-Sen slope, {cl.significance.replace('per period', 'across units')}",
+                f"Mann-Kendall test with Theil-Sen slope on {cl.trend_input}, {cl.significance.replace('per period', 'across units')}"
+                if not state.trends_skipped
+                else f"not estimated: {plural(p.n_periods, 'period')} are too few for a trend",
             )
         )
     if state.run.previous is not None:
@@ -149,18 +171,22 @@ def top_movers(state: RunState, n: int = 10) -> pd.DataFrame | None:
         return None
     j = ch.jumps.copy()
     j["abs"] = j["size"].abs()
-    j = j.sort_values(["abs", "to_period", "unit"], ascending=[False, False, True]).head(n)
+    j["noise"] = j["credible"] == "false"  # credible moves first, then moves within noise
+    j = j.sort_values(
+        ["noise", "abs", "to_period", "unit"], ascending=[True, False, False, True]
+    ).head(n)
     small = units_of(state.findings, "rates-small-base")
     check = [
         "; ".join(
             x
             for x in (
+                "within count noise" if noisy else "",
                 "came back: check data" if s else "",
                 "small base: unstable" if u in small else "",
             )
             if x
         )
-        for u, s in zip(j["unit"], j["spike"])
+        for u, s, noisy in zip(j["unit"], j["spike"], j["noise"])
     ]
     return j.assign(
         step=[f"{a}→{b}" for a, b in zip(j["from_period"], j["to_period"])],
@@ -273,6 +299,7 @@ def build_brief(state: RunState) -> Brief:
                     "Units that jumped",
                     paragraphs=(
                         f"Moves of {ch.options.jump} or more classes in one step, largest first. A jump that comes back soon after is often a data error: check it before reading it as change.",
+                        ch.noise_text,
                     ),
                     tables=(Table(movers, "Largest one-step jumps", csv_name="jumps.csv"),),
                 )
@@ -303,7 +330,7 @@ def build_brief(state: RunState) -> Brief:
                 "Where high and low values cluster",
                 paragraphs=(
                     f"Global Moran's I (each period tested on its own, permutation p <= {cl.options.alpha:g}, no correction across periods) shows significant clustering in {where_sig}.",
-                    f"Local clusters: {sig_text}. High-high: a high unit among high neighbours; low-low likewise; high-low and low-high are spatial outliers.",
+                    f"Local clusters on {cl.inputs}, {cl.options.p_text}: {sig_text}. High-high: a high unit among high neighbours; low-low likewise; high-low and low-high are spatial outliers.",
                 ),
                 figures=(
                     _fig(state, "global_moran.png", "Global Moran's I per period"),
@@ -332,6 +359,7 @@ def build_brief(state: RunState) -> Brief:
                 ),
             )
         )
+    if cl is not None and not state.trends_skipped:
         tr = cl.trends
         sig = tr[tr["significant"].astype(bool)]
         sig = sig.iloc[np.argsort(-np.abs(sig["theil_sen_slope"].to_numpy()), kind="stable")]
@@ -501,6 +529,8 @@ def build_slides(state: RunState, brief: Brief) -> list[Slide]:
                 Slide(key, title, images=(d / name,), notice=notice, notes=_notes(brief, note))
             )
     movers = top_movers(state, 10)
+    ch = state.results.get("changes")
+    ch_note = ch.noise_text if ch is not None else ""
     if movers is not None:
         slides.append(
             Slide(
@@ -509,6 +539,7 @@ def build_slides(state: RunState, brief: Brief) -> list[Slide]:
                 table=movers,
                 bullets=(
                     "A jump that came back soon after is often a data error; a small base makes rates unstable: check both first.",
+                    ch_note,
                 ),
                 notice=notice,
                 notes=_notes(brief, "Largest one-step jumps."),

@@ -120,8 +120,8 @@ def change_pictures(result: Any, panel: Any, out: Path, *, force: bool = False) 
                 f"last {opts.persist} periods"
             ),
             caption=(
-                "Each unit shows the first of its flags in the legend's order; all flags are in "
-                "units.csv and every jump in jumps.csv." + (f" {source}" if source else "")
+                f"{result.noise_short} First flag in the legend's order; all in units.csv "
+                "and jumps.csv." + (f" {source}" if source else "")
             ),
             legend_title="flag",
             nodata_label="no data",
@@ -132,9 +132,14 @@ def change_pictures(result: Any, panel: Any, out: Path, *, force: bool = False) 
     return written
 
 
-def cluster_pictures(result: Any, panel: Any, out: Path, *, force: bool = False) -> list[Path]:
+def cluster_pictures(
+    result: Any, panel: Any, out: Path, *, force: bool = False, trends: bool | None = None
+) -> list[Path]:
     """Global Moran chart, cluster animation (GIF), last-period cluster map, change-cluster map
-    and trend map. Returns the paths written."""
+    and trend map. Returns the paths written.
+
+    The trend map is left out when ``trends`` is False, or (None) when no unit has enough
+    periods for a trend (a map of "too few periods" everywhere says nothing)."""
     from mapdrift.clusters.labels import LABELS
     from mapdrift.palettes import CLUSTER_COLOURS, diverging
     from mapdrift.render.encode import write_gif
@@ -146,9 +151,9 @@ def cluster_pictures(result: Any, panel: Any, out: Path, *, force: bool = False)
     var = panel.meta.variable or "value"
     sig = result.significance
     stat_name = "Local Moran's I" if opt.statistic == "local-moran" else "Getis-Ord Gi*"
-    caption = (
-        f"{stat_name} with {result.weights.kind} weights, {opt.permutations} permutations "
-        f"(seed {opt.seed}); {sig}. {panel.meta.source}".strip()
+    caption = (  # the subtitle carries the significance sentence
+        f"{stat_name}, {result.weights.kind} weights, on {result.inputs}; {opt.p_text}. "
+        f"{panel.meta.source}".strip()
     )
     written: list[Path] = []
     g = result.global_moran
@@ -194,12 +199,17 @@ def cluster_pictures(result: Any, panel: Any, out: Path, *, force: bool = False)
                  subtitle=f"Local clusters of the change {a} to {b}, {change_sig}",
                  legend_title=f"change {a} to {b}", caption=change_caption, force=force)
     )  # fmt: skip
+    if trends is None:
+        trends = bool((result.trends["direction"] != "too few periods").any())
+    if not trends:
+        return written
     written.append(
         static_map(panel.geometry, result.trend_codes, diverging(5), list(result.trend_labels),
                  out / "trend_map.png", title=f"Trend in {var.lower()}",
                  subtitle=f"Theil-Sen slope where the Mann-Kendall trend is "
                  f"{result.trend.correction and sig.replace('per period', 'across units')}",
-                 caption=f"Slopes are change per period in {panel.meta.unit_label or 'the value'}; grey: no "
+                 caption=f"Mann-Kendall and Theil-Sen on {result.trend_input}. Slopes are change per "
+                 f"period in {panel.meta.unit_label or 'the value'}; grey: no "
                  f"significant trend. {panel.meta.source}".strip(),
                  legend_title="trend (Theil-Sen slope)", force=force)
     )  # fmt: skip

@@ -7,6 +7,7 @@ and maps from the plain arrays of the result.
 
 from __future__ import annotations
 
+from dataclasses import replace
 from enum import Enum
 from pathlib import Path
 from typing import Any, Optional
@@ -14,6 +15,7 @@ from typing import Any, Optional
 import typer
 
 from mapdrift.cli._app import command
+from mapdrift.cli._data import load_data, summarise
 from mapdrift.cli._options import class_options, input_options
 from mapdrift.cli._print import echo, print_findings
 
@@ -90,7 +92,6 @@ def changes(
     from mapdrift.brief.pictures import CHANGE_PICTURES, change_pictures
     from mapdrift.changes import analyse_changes, relative_panel, write_changes
     from mapdrift.changes.io import check_outputs, output_names
-    from mapdrift.panel import load_panel
 
     options = _options(
         config,
@@ -106,11 +107,18 @@ def changes(
     )
     names = output_names(spatial=options.spatial) + (list(CHANGE_PICTURES) if pictures else [])
     check_outputs(out, names, force)  # before any work
-    panel = load_panel(inputs)
+    panel = load_data(inputs)
     if options.relative:
         panel = relative_panel(panel, options.relative)
     cls = classify_spec(panel, classes)
+    panel = summarise(panel, cls, view="relative" if options.relative else inputs.view)
+    if options.persist > panel.n_periods:  # "the last 3 periods" with 2: all there are
+        options = replace(options, persist=panel.n_periods)
     result = analyse_changes(panel, cls, options)
+    if panel.meta.view:  # every table says which view its values are in
+        result = replace(
+            result, warning=" ".join(x for x in (result.warning, panel.meta.view) if x)
+        )
     written = write_changes(result, out, force=True)
     if pictures:
         written += change_pictures(result, panel, out, force=True)  # checked above
@@ -134,13 +142,17 @@ def changes(
             f"transitions independent of the neighbours' class? LR {t.LR:.1f}, df {t.df}, p = {t.p_LR:.3g}"
         )
     u = result.units
+    noise = int(((u["n_noise_moves"] > 0) & ~u["jump"]).sum())
     echo(
-        f"flagged: {int(u['jump'].sum())} units jumped {options.jump}+ classes, "
-        f"{int(u['spike'].sum())} spikes, {int(u['stayed_top'].sum())} stayed in top class, "
+        f"flagged: {int(u['jump'].sum())} units {'credibly ' if result.tested else ''}jumped "
+        f"{options.jump}+ classes"
+        + (f" ({noise} more moved within count noise)" if result.tested else "")
+        + f", {int(u['spike'].sum())} spikes, {int(u['stayed_top'].sum())} stayed in top class, "
         f"{int(u['stayed_bottom'].sum())} stayed in bottom class"
     )
-    if result.warning:
-        echo(typer.style(f"warning: {result.warning}", fg=typer.colors.YELLOW))
+    echo(result.noise_text)
+    if cls.warning:  # (result.warning also names the view, said in the summary above)
+        echo(typer.style(f"warning: {cls.warning}", fg=typer.colors.YELLOW))
     shown = [
         f
         for f in result.findings
