@@ -102,7 +102,7 @@ class Panel:
         from mapdrift.findings import examples, plural
         from mapdrift.safetext import clean, clean_all
 
-        names, changed = clean_all(str(n) for n in self.names)
+        names, changed = clean_all(self.names)
         if changed:
             object.__setattr__(self, "names", names)
             if not any(f.code == "names-control-characters" for f in self.findings):

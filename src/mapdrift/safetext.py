@@ -33,7 +33,12 @@ def clean(text: str) -> str:
 def clean_all(texts: Iterable[str]) -> tuple[tuple[str, ...], list[int]]:
     """Cleaned texts and the positions that changed (a quick scan first: most data is clean)."""
     texts = tuple(texts)
-    if not _BAD.search("".join(texts)):
+    try:
+        joined = "".join(texts)  # one scan in C: most data is clean
+    except TypeError:  # a non-text name (a number): compare as text
+        texts = tuple(map(str, texts))
+        joined = "".join(texts)
+    if not _BAD.search(joined):
         return texts, []
     out = tuple(clean(t) for t in texts)
     return out, [i for i, (a, b) in enumerate(zip(texts, out)) if a != b]
