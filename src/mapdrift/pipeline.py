@@ -211,6 +211,7 @@ def _text(state: RunState) -> dict[str, Any]:
         "subtitle": sub,
         "caption": brief.source or p.meta.source,
         "notice": state.notice,
+        "unit_noun": brief.unit_noun,
     }
 
 
@@ -318,7 +319,7 @@ def _step_changes(state: RunState) -> str:
     state.results["changes"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_changes(result, state.staging, units_table=False)
-    change_pictures(result, panel, state.staging)
+    change_pictures(result, panel, state.staging, look=_look(state))
     n_jump = int(result.units["jump"].sum())
     up = int((result.net_change > 0).sum())
     down = int((result.net_change < 0).sum())
@@ -335,7 +336,7 @@ def _step_clusters(state: RunState) -> str:
     state.results["clusters"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_clusters(result, state.staging)
-    cluster_pictures(result, state.panel, state.staging)
+    cluster_pictures(result, state.panel, state.staging, look=_look(state))
     last = result.period_labels[-1]
     hh = int((result.codes[:, -1] == 0).sum())
     sig = int(result.trend.significant.sum())
@@ -407,6 +408,12 @@ def _step_findings(state: RunState) -> str:
     return f"{plural(n['warning'], 'warning')}, {plural(n['note'], 'note')}"
 
 
+def _look(state: RunState) -> Any:
+    from mapdrift.brief.pictures import Look
+
+    return Look(unit_noun=state.section(BriefSpec, "brief").unit_noun)
+
+
 def _step_brief(state: RunState) -> str:
     from mapdrift.brief.assemble import build_brief, build_slides
     from mapdrift.brief.report import write_report
@@ -420,16 +427,21 @@ def _step_brief(state: RunState) -> str:
     if "png" in formats or "pptx" in formats:
         from mapdrift.brief.slides import write_slide_pngs
 
-        slides = build_slides(state, brief)
-        footer = brief.source
-        if "png" in formats:
-            write_slide_pngs(slides, state.path("slides"), footer=footer)
-            done.append(f"{len(slides)} slides")
-        if "pptx" in formats:
-            from mapdrift.brief.deck import write_deck
+        import tempfile
 
-            write_deck(slides, state.path("brief.pptx"), footer=footer)
-            done.append("brief.pptx")
+        # the slides' own pictures (drawn at the slide's size, text >= 18 px) live only until
+        # the slides and the deck are written
+        with tempfile.TemporaryDirectory(prefix="mapdrift-slides-") as parts:
+            slides = build_slides(state, brief, pictures=Path(parts))
+            footer = brief.source
+            if "png" in formats:
+                write_slide_pngs(slides, state.path("slides"), footer=footer)
+                done.append(f"{len(slides)} slides")
+            if "pptx" in formats:
+                from mapdrift.brief.deck import write_deck
+
+                write_deck(slides, state.path("brief.pptx"), footer=footer)
+                done.append("brief.pptx")
     return ", ".join(done) or "no briefing formats asked for"
 
 
