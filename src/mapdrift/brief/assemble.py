@@ -571,13 +571,18 @@ def build_slides(state: RunState, brief: Brief, pictures: Path | None = None) ->
         up, down = int((ch.net_change > 0).sum()), int((ch.net_change < 0).sum())
         n_jump = int(ch.units["jump"].sum())
         stay = np.trace(ch.transitions.counts) / max(ch.transitions.counts.sum(), 1)
-        change_title = f"{noun_for(up, noun)} rose and {down:,} fell a class or more, {first} to {last}"
+        change_title = (
+            f"{noun_for(up, noun)} rose and {down:,} fell a class or more, {first} to {last}"
+        )
         flag_title = f"{noun_for(n_jump, noun)} jumped {ch.options.jump}+ classes in one step"
         trans_title = f"{stay:.0%} of steps stay in their class"
         flow_title = f"Where {noun} moved, {first} to {last}"
     else:
         change_title = f"Which {noun} changed class, {first} to {last}"
-        flag_title, trans_title = f"{noun.capitalize()} worth a closer look", f"How {noun} move between classes"
+        flag_title, trans_title = (
+            f"{noun.capitalize()} worth a closer look",
+            f"How {noun} move between classes",
+        )
         flow_title = f"Where {noun} moved, {first} to {last}"
     pictures_l = [
         ("change", "change_map.png", change_title, "Net class change between the first and the last period."),

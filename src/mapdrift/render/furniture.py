@@ -125,9 +125,7 @@ def _strip_bars(ax: Any, layout: Layout, chrome: Chrome) -> None:
                 continue
             h = share * st.height
             # a class drawn as marks shows in its mark colour (its fill is blank)
-            colour = (
-                mark_cols[i] if i < len(chrome.colours) and chrome.mark_of(i) else colours[i]
-            )
+            colour = mark_cols[i] if i < len(chrome.colours) and chrome.mark_of(i) else colours[i]
             ax.add_patch(
                 Rectangle(
                     (x - st.bar_w / 2, y - h), st.bar_w, h, facecolor=colour, edgecolor="none",
