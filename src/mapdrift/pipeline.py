@@ -425,9 +425,9 @@ def _step_brief(state: RunState) -> str:
         write_report(brief, state.path("report.html"), state.path("report.md"), root=state.staging)
         done.append("report.html, report.md")
     if "png" in formats or "pptx" in formats:
-        from mapdrift.brief.slides import write_slide_pngs
-
         import tempfile
+
+        from mapdrift.brief.slides import write_slide_pngs
 
         # the slides' own pictures (drawn at the slide's size, text >= 18 px) live only until
         # the slides and the deck are written

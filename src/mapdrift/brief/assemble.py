@@ -420,7 +420,7 @@ def _slide_pictures(state: RunState, folder: Path) -> dict[str, Path]:
     split into pages. Returns ``{name: path}`` (multiples as ``multiples-1.png`` ...)."""
     from mapdrift import palettes
     from mapdrift.brief.pictures import Look, change_pictures, cluster_pictures, multiples_pages
-    from mapdrift.brief.slides import PICTURE_BOX, MIN_TEXT_PX
+    from mapdrift.brief.slides import MIN_TEXT_PX, PICTURE_BOX
     from mapdrift.render.frames import FrameRenderer
     from mapdrift.render.layout import MapText
 

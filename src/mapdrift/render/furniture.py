@@ -22,7 +22,6 @@ import numpy as np
 
 from mapdrift.palettes import NODATA, NODATA_HATCH
 from mapdrift.render.layout import (
-    COAST,
     FONT,
     HALO,
     MUTED,
