@@ -171,14 +171,15 @@ def draw_static(
     ax.text(
         m, m, chrome.title, fontsize=layout.title_size, weight="bold", color=TEXT, va="top", **kw
     )
-    if chrome.subtitle:
+    if layout.subtitle_lines:
         ax.text(
             m,
             m + round(layout.title_size * 1.3),
-            chrome.subtitle,
+            "\n".join(layout.subtitle_lines),
             fontsize=layout.subtitle_size,
             color=MUTED,
             va="top",
+            linespacing=1.2,
             **kw,
         )
     if boundaries:

@@ -195,6 +195,7 @@ class Layout:
     callout_top: int
     panel_bottom: int
     t: float = 1.0
+    subtitle_lines: tuple[str, ...] = ()
     extras: dict[str, Any] = field(default_factory=dict)
 
     @property
@@ -297,10 +298,12 @@ def plan(
     panel_x = w - m - panel_w
     left_w = panel_x - gap - m
     title_size = fit_font(chrome.title, 24 * t, left_w, weight="bold", min_size=floor)
-    subtitle_size = fit_font(chrome.subtitle, 14 * t, left_w, min_size=floor)
+    # a long subtitle shrinks a little, then wraps (never below the text floor)
+    subtitle_size = fit_font(chrome.subtitle, 14 * t, left_w, floor=0.85, min_size=floor)
+    subtitle_lines = tuple(_wrap_px(chrome.subtitle, subtitle_size, left_w)) if chrome.subtitle else ()
     top = m + round(title_size * 1.25)
-    if chrome.subtitle:
-        top += round(subtitle_size * 1.6)
+    if subtitle_lines:
+        top += round(subtitle_size * (1.6 + 1.2 * (len(subtitle_lines) - 1)))
     top += round(14 * s)
     small = 10.5 * t
     caption_lines: tuple[str, ...] = ()
@@ -362,6 +365,7 @@ def plan(
         panel_w=panel_w,
         title_size=title_size,
         subtitle_size=subtitle_size,
+        subtitle_lines=subtitle_lines,
         legend_top=legend_top,
         row_h=row_h,
         strip=strip,

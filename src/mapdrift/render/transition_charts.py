@@ -40,14 +40,18 @@ def _figure(size: tuple[int, int], dpi: int) -> tuple[Any, Any]:
     return fig, fig.add_axes((0.0, 0.0, 1.0, 1.0))
 
 
-def _headings(fig: Any, title: str, subtitle: str, caption: str, notice: str | None) -> None:
-    fig.text(0.03, 0.955, title, fontsize=17, fontweight="bold", color=_INK, va="top")
+def _headings(
+    fig: Any, title: str, subtitle: str, caption: str, notice: str | None, h_px: float = 720
+) -> None:
+    """Title, subtitle, caption and notice at fixed distances (design pixels) from the edges
+    of a figure ``h_px`` design pixels high, so larger text (a higher dpi) never collides."""
+    fig.text(0.03, 1 - 32 / h_px, title, fontsize=17, fontweight="bold", color=_INK, va="top")
     if subtitle:
-        fig.text(0.03, 0.905, subtitle, fontsize=11.5, color=_MUTED, va="top")
-    y = 0.02
+        fig.text(0.03, 1 - 68 / h_px, subtitle, fontsize=11.5, color=_MUTED, va="top")
+    y = 14 / h_px
     if caption:
         fig.text(0.03, y, caption, fontsize=9, color=_MUTED, va="bottom")
-        y += 0.035
+        y += 25 / h_px
     if notice:
         fig.text(0.03, y, notice, fontsize=10, color="#8a1c1c", fontweight="bold", va="bottom")
 
@@ -92,14 +96,14 @@ def transition_heatmap(
     k = counts.shape[0]
     labels = list(labels)
     fig, ax = _figure(size, dpi)
-    _headings(fig, title, subtitle, caption, notice)
+    _headings(fig, title, subtitle, caption, notice, size[1] * 100 / dpi)
     rows = counts.sum(axis=1)
     share = np.divide(counts, rows[:, None], out=np.zeros_like(counts), where=rows[:, None] > 0)
     cm = colormaps[cmap]
     # matrix area: leave room for row labels on the left and headings above (figure pixels at
     # the 100-dpi design size, so a larger dpi only makes the text larger)
     w_px, h_px = size[0] * 100 / dpi, size[1] * 100 / dpi
-    top, bottom = 0.80, 0.17
+    top, bottom = 1 - 150 / h_px, 122 / h_px  # room for headings and the rotated labels
     cell = min((top - bottom) * h_px / k, 0.62 * w_px / k)
     x0 = 0.30 * w_px
     y_top = top * h_px
@@ -294,7 +298,7 @@ def class_flow(
     k = counts.shape[0]
     labels = list(labels)
     fig, ax = _figure(size, dpi)
-    _headings(fig, title, subtitle, caption, notice)
+    _headings(fig, title, subtitle, caption, notice, size[1] * 100 / dpi)
     total = counts.sum()
     w_px, h_px = size[0] * 100 / dpi, size[1] * 100 / dpi  # design pixels (100 dpi)
     ax.set_xlim(0, w_px)
@@ -311,7 +315,7 @@ def class_flow(
             color=_MUTED,
         )
         return _save(fig, Path(path), dpi)
-    top, bottom = 0.82 * h_px, 0.16 * h_px
+    top, bottom = h_px - 130, 115.0
     gap = 6.0 if k > 1 else 0.0
     scale = (top - bottom - gap * (k - 1)) / total
     bar_w = 0.035 * w_px
