@@ -28,7 +28,7 @@ import numpy as np
 from mapdrift.colour import hex_to_rgb8
 from mapdrift.errors import ConfigError
 from mapdrift.findings import Finding
-from mapdrift.palettes import NODATA, NODATA_HATCH
+from mapdrift.palettes import CLUSTER_BLANK, NODATA, NODATA_HATCH
 from mapdrift.render import furniture as fur
 from mapdrift.render import layout as lay
 from mapdrift.render.pixels import hatch_alpha, pack_rgb, unpack_rgb
@@ -139,6 +139,18 @@ class FrameRenderer:
             )
             for j in range(n_periods)
         )
+        # classes left blank on the map (e.g. "not significant") are left out of the strip,
+        # whose bars then fill at a round share just above the tallest period
+        strip_skip = tuple(
+            i
+            for i, c in enumerate(self.colours)
+            if c == CLUSTER_BLANK and not (marks is not None and i < len(marks) and marks[i])
+        )
+        strip_full = 1.0
+        if strip_skip and shares:
+            keep = [i for i in range(k) if i not in strip_skip]
+            top = max(sum(sh[i] for i in keep) for sh in shares)
+            strip_full = _round_up_share(top)
         self.chrome = lay.Chrome(
             colours=self.colours,
             labels=labels_t,
@@ -153,6 +165,8 @@ class FrameRenderer:
             marks=tuple(marks) if marks is not None else (),
             mark_colours=tuple(mark_colours) if mark_colours is not None else (),
             shares=shares if timeline else (),
+            strip_skip=strip_skip,
+            strip_full=strip_full,
             boundary=boundary or lay.BOUNDARY,
         )
         self.outlines = outlines
@@ -390,6 +404,14 @@ class FrameRenderer:
     def close(self) -> None:
         """Release the matplotlib figure."""
         self._fig.clear()
+
+
+def _round_up_share(x: float) -> float:
+    """The next of 5 %, 10 %, 20 %, 25 %, 50 %, 100 % at or above ``x``."""
+    for step in (0.05, 0.1, 0.2, 0.25, 0.5):
+        if x <= step:
+            return step
+    return 1.0
 
 
 def _map_text(text: lay.MapText | None, words: dict[str, Any], outlined: bool) -> lay.MapText:

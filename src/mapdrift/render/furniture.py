@@ -120,9 +120,9 @@ def _strip_bars(ax: Any, layout: Layout, chrome: Chrome) -> None:
     for x, shares in zip(st.xs, chrome.shares):
         y = st.top + st.height
         for i, share in enumerate(shares):
-            if share <= 0:
+            if share <= 0 or i in chrome.strip_skip or (chrome.strip_skip and i == len(shares) - 1):
                 continue
-            h = share * st.height
+            h = min(share / chrome.strip_full, 1.0) * st.height
             # a class drawn as marks shows in its mark colour (its fill is blank)
             colour = mark_cols[i] if i < len(chrome.colours) and chrome.mark_of(i) else colours[i]
             ax.add_patch(
@@ -275,6 +275,21 @@ def draw_static(
             va="center",
             **kw,
         )
+    if chrome.strip_note:
+        row = nodata_row(chrome) + 1 + (1 if chrome.outline_label else 0)
+        x, y, bw, bh = swatch_box(layout, row)
+        # a tiny bar as the swatch: the strip's look in the legend
+        ax.add_patch(
+            Rectangle((x + bw * 0.35, y), bw * 0.3, bh, facecolor="none", edgecolor=RULE, lw=0.8)
+        )
+        kept = [i for i in range(len(chrome.colours)) if i not in chrome.strip_skip]
+        yb = y + bh
+        for n, i in enumerate(kept[:2]):
+            h = bh * (0.45 if n == 0 else 0.3)
+            colour = (chrome.mark_colours or chrome.colours)[i] if chrome.mark_of(i) else chrome.colours[i]
+            ax.add_patch(Rectangle((x + bw * 0.35, yb - h), bw * 0.3, h, facecolor=colour, lw=0))
+            yb -= h
+        _label(ax, layout, x + bw + 10 * t, y + bh / 2, chrome.strip_note, width=pw - 44 * t)
     if chrome.notice:
         size = 11.5 * t
         lines = _wrap_px(chrome.notice, size, pw - 20 * t, bold=True)

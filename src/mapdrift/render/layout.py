@@ -103,6 +103,8 @@ class Chrome:
     marks: tuple[str | None, ...] = ()
     mark_colours: tuple[str, ...] = ()
     shares: tuple[tuple[float, ...], ...] = ()
+    strip_skip: tuple[int, ...] = ()
+    strip_full: float = 1.0
     boundary: str = "#ffffff"
 
     def labels_for(self, j: int) -> tuple[str, ...]:
@@ -138,6 +140,16 @@ class Chrome:
 
     def mark_of(self, i: int) -> str | None:
         return self.marks[i] if i < len(self.marks) else None
+
+    @property
+    def strip_note(self) -> str:
+        """The legend's line about the strip when its bars leave classes out."""
+        if not self.strip_skip or not self.shares or not self.timeline:
+            return ""
+        return (
+            f"strip below the map: share of {self.text.unit_noun}\n"
+            f"in each kind of pattern; a full bar is {self.strip_full:.0%}"
+        )
 
     @property
     def two_line(self) -> bool:
@@ -334,6 +346,8 @@ def plan(
     rows = n_legend_rows if n_legend_rows is not None else len(chrome.colours) + 1
     y = legend_top + round(24 * t) + rows * row_h + round(8 * s)
     if chrome.outline_label:
+        y += row_h
+    if chrome.strip_note:
         y += row_h
     notice_top = y + round(6 * s)
     if chrome.notice:
