@@ -17,7 +17,7 @@ from mapdrift.brief.pictures import noun_for
 from mapdrift.brief.slides import Slide
 from mapdrift.brief.whatsnew import previous_name
 from mapdrift.config import BriefSpec
-from mapdrift.findings import examples, plural, units_of
+from mapdrift.findings import examples, units_of
 
 if TYPE_CHECKING:
     from pathlib import Path
@@ -197,6 +197,7 @@ def build_brief(state: RunState) -> Brief:
     p = state.panel
     per = p.period_labels
     sections: list[Section] = []
+    noun = _noun(state)
     wn = state.results.get("whatsnew")
     if wn is not None:
         sections.append(
@@ -232,9 +233,9 @@ def build_brief(state: RunState) -> Brief:
         sections.append(
             Section(
                 "change",
-                "Which units changed",
+                f"Which {noun} changed",
                 paragraphs=(
-                    f"Net class change from {per[0]} to {per[-1]}, and the units whose path is worth a look (jumps, spikes, stayed in the top or bottom class).",
+                    f"Net class change from {per[0]} to {per[-1]}, and the {noun} whose path is worth a look (jumps, spikes, stayed in the top or bottom class).",
                 ),
                 figures=(
                     _fig(state, "change_map.png", f"Class change {per[0]} to {per[-1]}"),
@@ -263,7 +264,7 @@ def build_brief(state: RunState) -> Brief:
                         "transition_heatmap.png",
                         "Transitions between consecutive periods, pooled",
                     ),
-                    _fig(state, "class_flow.png", f"Where units moved, {per[0]} to {per[-1]}"),
+                    _fig(state, "class_flow.png", f"Where {noun} moved, {per[0]} to {per[-1]}"),
                 ),
                 tables=(
                     Table(
@@ -279,7 +280,7 @@ def build_brief(state: RunState) -> Brief:
             sections.append(
                 Section(
                     "jumps",
-                    "Units that jumped",
+                    f"{noun.capitalize()} that jumped",
                     paragraphs=(
                         f"Moves of {ch.options.jump} or more classes in one step, largest first. A jump that comes back soon after is often a data error: check it before reading it as change.",
                     ),
@@ -332,7 +333,7 @@ def build_brief(state: RunState) -> Brief:
                 "change-clusters",
                 "Is the change clustered in space?",
                 paragraphs=(
-                    f"Local clusters of the change in value from {a} to {b}: where units rose (or fell) together with their neighbours. {sig_text.replace(' per period', '')}.",
+                    f"Local clusters of the change in value from {a} to {b}: where {noun} rose (or fell) together with their neighbours. {sig_text.replace(' per period', '')}.",
                 ),
                 figures=(
                     _fig(
@@ -352,9 +353,9 @@ def build_brief(state: RunState) -> Brief:
         sections.append(
             Section(
                 "trends",
-                "Trends per unit",
+                f"Trends per {noun_for(1, noun)[2:]}",
                 paragraphs=(
-                    f"{plural(len(sig), 'unit')} with a significant monotone trend ({cl.significance.replace('per period', 'across units')}).",
+                    f"{noun_for(len(sig), noun)} with a significant monotone trend ({cl.significance.replace('per period', 'across units')}).",
                 ),
                 figures=(
                     _fig(state, "trend_map.png", "Theil-Sen slope where the trend is significant"),

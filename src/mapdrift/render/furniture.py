@@ -286,7 +286,11 @@ def draw_static(
         yb = y + bh
         for n, i in enumerate(kept[:2]):
             h = bh * (0.45 if n == 0 else 0.3)
-            colour = (chrome.mark_colours or chrome.colours)[i] if chrome.mark_of(i) else chrome.colours[i]
+            colour = (
+                (chrome.mark_colours or chrome.colours)[i]
+                if chrome.mark_of(i)
+                else chrome.colours[i]
+            )
             ax.add_patch(Rectangle((x + bw * 0.35, yb - h), bw * 0.3, h, facecolor=colour, lw=0))
             yb -= h
         _label(ax, layout, x + bw + 10 * t, y + bh / 2, chrome.strip_note, width=pw - 44 * t)

@@ -312,7 +312,9 @@ def plan(
     title_size = fit_font(chrome.title, 24 * t, left_w, weight="bold", min_size=floor)
     # a long subtitle shrinks a little, then wraps (never below the text floor)
     subtitle_size = fit_font(chrome.subtitle, 14 * t, left_w, floor=0.85, min_size=floor)
-    subtitle_lines = tuple(_wrap_px(chrome.subtitle, subtitle_size, left_w)) if chrome.subtitle else ()
+    subtitle_lines = (
+        tuple(_wrap_px(chrome.subtitle, subtitle_size, left_w)) if chrome.subtitle else ()
+    )
     top = m + round(title_size * 1.25)
     if subtitle_lines:
         top += round(subtitle_size * (1.6 + 1.2 * (len(subtitle_lines) - 1)))
