@@ -139,8 +139,13 @@ def _strip_bars(ax: Any, layout: Layout, chrome: Chrome) -> None:
             )
         )  # fmt: skip
     step = _label_step(chrome.period_labels, st.xs, layout.small)
+    shown = list(range(0, len(st.xs), step))
+    if shown[-1] != len(st.xs) - 1:  # always name the last period, never on top of another
+        if len(st.xs) - 1 - shown[-1] < step and len(shown) > 1:
+            shown.pop()
+        shown.append(len(st.xs) - 1)
     for i, (x, lab) in enumerate(zip(st.xs, chrome.period_labels)):
-        if i % step == 0 or i == len(st.xs) - 1:
+        if i in shown:
             ax.text(
                 x, st.label_y, lab, fontsize=layout.small, color=MUTED, ha="center", va="top",
                 family=FONT,
