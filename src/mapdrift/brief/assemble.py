@@ -92,7 +92,12 @@ def headline(state: RunState) -> list[tuple[str, str]]:
             out.append((f"{u} with a significant {word} trend", f"{n:,}"))
     nd = int(np.isnan(p.values).all(axis=1).sum())
     out.append((f"{u} with no data at all (kept on the map)", f"{nd:,}"))
-    return out
+    # "1 tract", not "1 tracts"
+    one = noun_for(1, u)[2:]
+    return [
+        (one + label[len(u) :] if value == "1" and label.startswith(u + " ") else label, value)
+        for label, value in out
+    ]
 
 
 def method(state: RunState) -> list[tuple[str, str]]:
