@@ -15,6 +15,9 @@ from mapdrift.config import load_config
 from mapdrift.errors import OutputExistsError, StepError
 from mapdrift.pipeline import STEPS, run
 
+# the steps up to and including classify (which writes breaks.json), by name
+TO_CLASSIFY = STEPS[: [name for name, _ in STEPS].index("classify") + 1]
+
 DESIGN_OUTPUTS = [
     "animation.gif", "animation.mp4", "small_multiples.png", "small_multiples.pdf", "change_map.png",
     "units.csv", "units.gpkg", "transitions.csv", "transition_probabilities.csv", "breaks.json",
@@ -73,23 +76,23 @@ def test_same_inputs_and_seed_give_identical_tables(demo_run, tmp_path):
 def test_force_rules(demo_run, tmp_path):
     cfg = load_config(DEMO / "demo.toml").with_values("brief", {"formats": []})
     out = tmp_path / "run"
-    run(cfg, out=out, steps=STEPS[:3])
+    run(cfg, out=out, steps=TO_CLASSIFY)
     with pytest.raises(OutputExistsError, match="--force"):
-        run(cfg, out=out, steps=STEPS[:3])
-    run(cfg, out=out, force=True, steps=STEPS[:3])
+        run(cfg, out=out, steps=TO_CLASSIFY)
+    run(cfg, out=out, force=True, steps=TO_CLASSIFY)
 
 
 def test_failure_mid_run_leaves_previous_outputs(tmp_path):
     cfg = load_config(DEMO / "demo.toml").with_values("brief", {"formats": []})
     out = tmp_path / "run"
-    run(cfg, out=out, steps=STEPS[:3])
+    run(cfg, out=out, steps=TO_CLASSIFY)
     before = {p.relative_to(out): _sha(p) for p in out.rglob("*") if p.is_file()}
 
     def broken(state):
         raise RuntimeError("disk on fire")
 
     with pytest.raises(StepError, match="step 'changes' failed.*disk on fire"):
-        run(cfg, out=out, force=True, steps=[*STEPS[:3], ("changes", broken)])
+        run(cfg, out=out, force=True, steps=[*TO_CLASSIFY, ("changes", broken)])
     after = {p.relative_to(out): _sha(p) for p in out.rglob("*") if p.is_file()}
     assert after == before
     assert not list(tmp_path.glob(".*partial*"))

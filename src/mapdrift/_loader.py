@@ -116,13 +116,27 @@ def _long_from_wide(
     return out.rename(columns={id_col: "id"}).fillna("")
 
 
-def _append_tables(df: pd.DataFrame, first: Path, more: tuple[Path, ...]) -> pd.DataFrame:
-    """Stack further tables (e.g. next year's release) below the first; columns must agree."""
+def _append_tables(
+    df: pd.DataFrame, first: Path, more: tuple[Path, ...], *, wide_id: str | None = None
+) -> pd.DataFrame:
+    """Stack further tables (e.g. next year's release) below the first.
+
+    Long tables need the same columns. Wide tables (``wide_id``, the ID column, given) may hold
+    only the ID and the new periods' columns, as a new release usually does: they are stacked
+    with the union of columns, and the blank cells that only fill the other tables' columns are
+    dropped once the rows are long (:func:`_drop_fill`).
+    """
     import pandas as pd
 
     parts = [df]
     for path in more:
         extra = read_table(path)
+        if wide_id is not None:
+            col = _column(extra, wide_id, path, "--id")
+            if len(extra.columns) < 2:
+                raise InputError(f"{path}: appended table holds only the ID column {col!r}")
+            parts.append(extra.rename(columns={col: wide_id}))
+            continue
         missing = [c for c in df.columns if c not in extra.columns]
         if missing:
             raise InputError(
@@ -130,7 +144,17 @@ def _append_tables(df: pd.DataFrame, first: Path, more: tuple[Path, ...]) -> pd.
                 "appended tables need the same columns"
             )
         parts.append(extra[list(df.columns)])
-    return pd.concat(parts, ignore_index=True)
+    out = pd.concat(parts, ignore_index=True)
+    return out.fillna("") if wide_id is not None else out
+
+
+def _drop_fill(long: pd.DataFrame, roles: list[str]) -> pd.DataFrame:
+    """Rows of side-by-side wide tables whose cells are all blank only because another table
+    holds that (unit, period): dropped, keeping a blank row where no table has a value."""
+    blank = (long[roles] == "").all(axis=1)
+    key = long[["id", "period_text"]].assign(_blank=blank).sort_values("_blank", kind="stable")
+    filler = key["_blank"] & key.duplicated(["id", "period_text"], keep="first")
+    return long.drop(index=key.index[filler.to_numpy()])
 
 
 def detect_zero_block(
@@ -255,7 +279,11 @@ def load(spec: InputSpec) -> Panel:
         tpath = spec.table
         df = read_table(tpath)
         if spec.append:
-            df = _append_tables(df, tpath, spec.append)
+            wide_id = None
+            if not spec.period:  # wide: a new release may hold only the new periods' columns
+                flag = "--table-id" if spec.table_id else "--id"
+                wide_id = _column(df, spec.table_id or id_col, tpath, flag)
+            df = _append_tables(df, tpath, spec.append, wide_id=wide_id)
         t_id = _column(
             df, spec.table_id or id_col, tpath, "--table-id" if spec.table_id else "--id"
         )
@@ -314,6 +342,8 @@ def load(spec: InputSpec) -> Panel:
         )
         long["id"] = padded
         findings += pad_findings
+        if spec.append and not spec.period:
+            long = _drop_fill(long, [c for c in ("value", "num", "den") if c in long.columns])
 
     # -- numbers --------------------------------------------------------------------------
     ids_arr = long["id"].to_numpy()

@@ -182,6 +182,8 @@ def _coerce(value: Any, tp: Any, base: Path | None) -> Any:
                 value = [item(v) for v in value]
             except ValueError:
                 raise TypeError(f"a list of {_type_name(item)}") from None
+        if isinstance(value, str) and item is Path:
+            value = [value]  # one path (append = "next.csv", --set inputs.append=next.csv)
         if not isinstance(value, list | tuple):
             raise TypeError(f"a list of {_type_name(item)}")
         return tuple(_coerce(v, item, base) for v in value)

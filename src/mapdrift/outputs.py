@@ -20,7 +20,18 @@ from mapdrift.findings import examples
 if TYPE_CHECKING:
     import pandas as pd
 
-__all__ = ["check_free", "defuse", "read_csv", "write_csv"]
+__all__ = [
+    "FIXED_TIME",
+    "check_free",
+    "defuse",
+    "fixed_zip_dates",
+    "read_csv",
+    "write_csv",
+]
+
+#: The timestamp written into files that want one (GeoPackage ``last_change``, the deck's
+#: created/modified dates and zip entries), so the same inputs and seed give identical bytes.
+FIXED_TIME = "2000-01-01T00:00:00.000Z"
 
 _TRIGGERS = ("=", "+", "-", "@", "\t", "\r")
 
@@ -82,3 +93,22 @@ def read_csv(path: Path, **kw: Any) -> pd.DataFrame:
 def _warning_lines(path: Path) -> int:
     with open(path, encoding="utf-8") as f:
         return 1 if f.readline().startswith("# ") else 0
+
+
+def fixed_zip_dates(path: Path) -> Path:
+    """Rewrite the zip file ``path`` (e.g. a .pptx) with every entry dated :data:`FIXED_TIME`,
+    keeping order, names, content and compression; atomic."""
+    import zipfile
+
+    with (
+        zipfile.ZipFile(path) as src,
+        atomic_path(path) as tmp,
+        zipfile.ZipFile(tmp, "w") as dst,
+    ):
+        for info in src.infolist():
+            fixed = zipfile.ZipInfo(info.filename, date_time=(2000, 1, 1, 0, 0, 0))
+            fixed.compress_type = info.compress_type
+            fixed.external_attr = info.external_attr
+            fixed.create_system = 3  # Unix, whatever the machine
+            dst.writestr(fixed, src.read(info.filename))
+    return path

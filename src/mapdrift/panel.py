@@ -32,11 +32,16 @@ def period_label(period: Any) -> str:
 
 @dataclass(frozen=True)
 class PanelMeta:
-    """What the values are: variable name, unit label and source line for titles and captions."""
+    """What the values are: variable name, unit label and source line for titles and captions.
+
+    ``view`` is one line naming how the values were rescaled after loading ('' = as read; see
+    :mod:`mapdrift.views`); every output carries it.
+    """
 
     variable: str = "value"
     unit_label: str = ""
     source: str = ""
+    view: str = ""
 
 
 @dataclass(frozen=True, eq=False)
@@ -183,7 +188,10 @@ class InputSpec:
     columns whose names carry a year are used. ``numerator``/``denominator`` turn counts into
     rates ``per`` so many (patterns such as ``filings_*`` for wide tables). ``crosswalk`` (a
     from, to, weight table) moves the values onto the layer's boundary vintage first. ``append``
-    names more tables of the same columns to add below ``table`` (e.g. next year's release).
+    names more tables to add to ``table`` (e.g. next year's release): long tables need the same
+    columns; wide tables may hold only the new periods' columns besides the ID. ``view``
+    (``relative-median``, ``index:2015``, ``deflate:cpi.csv``...) rescales the values after
+    loading; the loader ignores it, :func:`mapdrift.views.apply_view` applies it.
     """
 
     geometry: Path
@@ -209,6 +217,7 @@ class InputSpec:
     source: str | None = None
     crosswalk: Path | None = None
     append: tuple[Path, ...] = ()
+    view: str | None = None
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "append", tuple(Path(p) for p in self.append))

@@ -17,7 +17,8 @@ import logging
 import os
 import shutil
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
 from datetime import date
 from pathlib import Path
@@ -27,7 +28,7 @@ from mapdrift.config import BriefSpec, ClassSpec, Config, RunSpec, merge
 from mapdrift.errors import ConfigError, InputError, MapdriftError, StepError
 from mapdrift.findings import Finding, plural, units_of
 
-__all__ = ["STEPS", "RunResult", "RunState", "default_out", "prepare_out", "run"]
+__all__ = ["STEPS", "RunResult", "RunState", "default_out", "prepare_out", "run", "run_inputs"]
 
 log = logging.getLogger(__name__)
 Progress = Callable[[str], None]
@@ -51,6 +52,25 @@ class RunState:
     timings: dict[str, float] = field(default_factory=dict)
     summaries: dict[str, str] = field(default_factory=dict)
     notices: list[str] = field(default_factory=list)
+    inputs: Any = None
+
+    @property
+    def view(self) -> str:
+        """The line naming the values' view ('' for values as read)."""
+        return self.panel.meta.view if self.panel is not None else ""
+
+    @property
+    def csv_note(self) -> str | None:
+        """The ``# `` first line of every table: the notice, then the view."""
+        return " ".join(x for x in (self.notice, self.view) if x) or None
+
+    @property
+    def trends_skipped(self) -> bool:
+        """Too few periods for per-unit trends: no trend map, slide or sentences."""
+        from mapdrift.clusters import ClusterOptions
+
+        need = max(self.section(ClusterOptions, "clusters").min_periods, 3)
+        return self.panel is not None and self.panel.n_periods < need
 
     def path(self, name: str) -> Path:
         p = self.staging / name
@@ -86,13 +106,43 @@ def default_out(config: Config) -> Path:
     return out
 
 
-def prepare_out(out: Path, *, force: bool) -> None:
-    """Refuse to touch a non-empty ``out`` unless ``force``."""
-    from mapdrift.errors import OutputExistsError
+def run_inputs(config: Config) -> list[Path]:
+    """Every file or folder this run reads: the config and each path-valued key."""
+    found: list[Path] = [config.path] if config.path is not None else []
+    for values in config.sections.values():
+        for v in values.values():
+            for item in v if isinstance(v, list | tuple) else (v,):
+                if isinstance(item, Path):
+                    found.append(item)
+    return found
 
-    if out.exists() and (not out.is_dir() or any(out.iterdir())) and not force:
-        raise OutputExistsError(
-            f"{out} already holds an earlier run; pass --force to replace it or choose another --out"
+
+def prepare_out(out: Path, *, force: bool, inputs: list[Path] | None = None) -> None:
+    """Refuse an ``out`` we may not write: the working folder or one above it, a file, a folder
+    we cannot write in, or an existing folder :func:`mapdrift.outfolder.check_replaceable`
+    refuses (not an earlier run, holds inputs or unknown files; an earlier run without
+    ``force``)."""
+    from mapdrift.outfolder import check_replaceable
+
+    _check_target(out)
+    check_replaceable(out, inputs or [], force=force)
+
+
+def _check_target(out: Path) -> None:
+    here = Path.cwd().resolve()
+    target = out.resolve()
+    if target == here or target in here.parents:
+        raise ConfigError(
+            f"--out {out} is the working folder or one above it; mapdrift writes a new folder, "
+            "e.g. --out outputs/run"
+        )
+    if out.exists() and not out.is_dir():
+        raise ConfigError(f"--out {out} is a file; give a folder name, e.g. --out outputs/run")
+    existing = next(p for p in target.parents if p.exists())
+    if not os.access(existing, os.W_OK | os.X_OK):
+        raise ConfigError(
+            f"--out {out}: cannot write in {existing} (permission denied); choose a folder you "
+            "can write to"
         )
 
 
@@ -107,7 +157,12 @@ def _step_load(state: RunState) -> str:
         inputs["crosswalk"] = state.run.crosswalk
     if "geometry" not in inputs:
         raise ConfigError(f'{state.config.path}: [inputs] needs geometry = "<polygon layer>"')
-    state.panel = load_panel(merge(InputSpec, inputs, {}))
+    if inputs.get("view") and state.config.path is not None:
+        from mapdrift.views import resolve_view  # a deflator file is relative to the config
+
+        inputs["view"] = resolve_view(inputs["view"], state.config.path.parent)
+    state.inputs = merge(InputSpec, inputs, {})
+    state.panel = load_panel(state.inputs)
     state.findings += state.panel.findings
     p = state.panel
     return (
@@ -145,6 +200,17 @@ def _step_smooth(state: RunState) -> str:
     state.findings.append(state.panel.findings[-1])
     state.notices.append(f"Rates smoothed ({opt.smooth}) before mapping and statistics.")
     return f"{opt.smooth} smoothing applied to maps and statistics"
+
+
+def _step_view(state: RunState) -> str:
+    from mapdrift.views import apply_view, parse_view
+
+    view = parse_view(state.inputs.view)
+    if view.is_raw:
+        return "values as read (no view)"
+    state.panel = apply_view(state.panel, view, spec=state.inputs)
+    state.findings.append(state.panel.findings[-1])
+    return state.panel.meta.view
 
 
 def _previous_breaks(state: RunState) -> Path | None:
@@ -185,6 +251,24 @@ def _step_classify(state: RunState) -> str:
     classes = classify_spec(state.panel, cs, breaks_file=breaks_file, reused_from=reused_from)
     state.classes = classes
     state.findings += classes.findings
+    if not classes.per_period:
+        from mapdrift.views import common_trend
+
+        trend = common_trend(state.panel, classes.codes, k=classes.k, view=state.inputs.view)
+        if trend is not None:
+            state.findings.append(trend)
+    if state.trends_skipped:
+        from mapdrift.clusters import ClusterOptions
+
+        need = max(state.section(ClusterOptions, "clusters").min_periods, 3)
+        state.findings.append(
+            Finding(
+                "note",
+                "trends-skipped",
+                f"{plural(state.panel.n_periods, 'period')}: per-unit trends need at least "
+                f"{need}, so the trend map, trend slide and trend sentences are left out",
+            )
+        )
     if classes.per_period:
         state.notices.insert(0, classes.warning)
         write_text(
@@ -298,6 +382,8 @@ def _step_changes(state: RunState) -> str:
 
     opt = state.section(ChangeOptions, "changes")
     panel, classes = state.panel, state.classes
+    if opt.persist > panel.n_periods:  # "the last 3 periods" with 2: all there are
+        opt = replace(opt, persist=panel.n_periods)
     if opt.relative:
         cs: ClassSpec = state.section(ClassSpec, "classes")
         panel = relative_panel(panel, opt.relative)
@@ -316,6 +402,8 @@ def _step_changes(state: RunState) -> str:
     result = analyse_changes(
         panel, classes, opt, weights=_weights(state) if opt.spatial and same_weights else None
     )
+    if state.view:  # every table says which view its values are in
+        result = replace(result, warning=" ".join(x for x in (result.warning, state.view) if x))
     state.results["changes"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_changes(result, state.staging, units_table=False)
@@ -332,13 +420,19 @@ def _step_clusters(state: RunState) -> str:
 
     opt = state.section(ClusterOptions, "clusters")
     opt = replace(opt, smooth=None)  # smoothing, when asked, was applied to the panel already
+    if opt.persist > state.panel.n_periods:  # "steady for 3 periods" with 2: all there are
+        opt = replace(opt, persist=state.panel.n_periods)
     result = analyse_clusters(state.panel, state.classes, opt, weights=_weights(state))
     state.results["clusters"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
-    write_clusters(result, state.staging)
-    cluster_pictures(result, state.panel, state.staging, look=_look(state))
+    write_clusters(result, state.staging, warning=state.view or None)
+    cluster_pictures(
+        result, state.panel, state.staging, trends=not state.trends_skipped, look=_look(state)
+    )
     last = result.period_labels[-1]
     hh = int((result.codes[:, -1] == 0).sum())
+    if state.trends_skipped:
+        return f"{hh} units high-high in {last}; trends skipped (too few periods)"
     sig = int(result.trend.significant.sum())
     trend_sig = result.significance.replace("per period", "across units")
     return f"{hh} units high-high in {last}; {sig} significant trends ({trend_sig})"
@@ -361,7 +455,7 @@ def _step_units(state: RunState) -> str:
     extra["small_base"] = [u in small for u in state.panel.units]
     df = units_table(state.panel, state.classes, extra)
     state.results["units"] = df
-    write_csv(df, state.path("units.csv"), warning=state.notice)
+    write_csv(df, state.path("units.csv"), warning=state.csv_note)
     formats = state.section(BriefSpec, "brief").formats
     if "gpkg" in formats:
         write_units_gpkg(df, state.panel.geometry, state.path("units.gpkg"))
@@ -374,7 +468,7 @@ def _step_whatsnew(state: RunState) -> str:
     if state.run.previous is None:
         return "no previous run given"
     from mapdrift.atomic import write_text
-    from mapdrift.brief.whatsnew import compare_runs, previous_name
+    from mapdrift.brief.whatsnew import compare_runs
 
     ch = state.results.get("changes")
     cl = state.results.get("clusters")
@@ -389,7 +483,7 @@ def _step_whatsnew(state: RunState) -> str:
     state.results["whatsnew"] = wn
     write_text(
         state.path("whats_new.json"),
-        json.dumps({"previous": previous_name(wn.previous), "news": wn.bullets()}, indent=2) + "\n",
+        json.dumps(wn.to_json(), indent=2, ensure_ascii=False) + "\n",
     )
     return (
         f"{plural(len(wn.new_jumps), 'new jump')}, {plural(len(wn.cluster_events), 'new cluster event')}, "
@@ -449,6 +543,7 @@ def _step_brief(state: RunState) -> str:
 STEPS: list[tuple[str, Callable[[RunState], str]]] = [
     ("load", _step_load),
     ("smooth", _step_smooth),
+    ("view", _step_view),
     ("classify", _step_classify),
     ("changes", _step_changes),
     ("clusters", _step_clusters),
@@ -460,17 +555,7 @@ STEPS: list[tuple[str, Callable[[RunState], str]]] = [
 ]
 
 
-def _swap_in(staging: Path, out: Path) -> None:
-    old = None
-    if out.exists():
-        old = out.with_name(f".{out.name}.old-{os.getpid()}")
-        os.replace(out, old)
-    os.replace(staging, out)
-    if old is not None:
-        shutil.rmtree(old, ignore_errors=True)
-
-
-def _manifest(state: RunState) -> None:
+def _manifest(state: RunState, replaces: str | None = None) -> None:
     from mapdrift.brief.manifest import write_manifest
 
     c = state.classes
@@ -480,6 +565,7 @@ def _manifest(state: RunState) -> None:
         "units": state.panel.n_units if state.panel is not None else 0,
         "breaks": [b.to_dict() for b in c.breaks] if c is not None else [],
         "notice": state.notice,
+        "view": state.view or "values as read",
     }
     cl = state.results.get("clusters")
     if cl is not None:
@@ -508,7 +594,31 @@ def _manifest(state: RunState) -> None:
         findings=state.findings,
         timings=state.timings,
         summaries=state.summaries,
+        replaces=replaces,
     )
+
+
+@contextmanager
+def _terminate_as_exit() -> Iterator[None]:
+    """Turn SIGTERM (and SIGHUP) into SystemExit while a run works, so its clean-up runs: the
+    staging folder is removed and encoders are stopped instead of being left behind."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    wanted = [s for s in ("SIGTERM", "SIGHUP") if hasattr(signal, s)]
+
+    def _exit(signum: int, frame: Any) -> None:
+        raise SystemExit(128 + signum)
+
+    previous = {name: signal.signal(getattr(signal, name), _exit) for name in wanted}
+    try:
+        yield
+    finally:
+        for name, handler in previous.items():
+            signal.signal(getattr(signal, name), handler)
 
 
 def run(
@@ -523,17 +633,48 @@ def run(
     """Run every step into ``out``; raise StepError naming the failed step (``out`` untouched).
 
     ``progress`` gets one summary line per finished step; ``on_start`` the name of each step as
-    it starts (the CLI shows a spinner with it).
+    it starts (the CLI shows a spinner with it). ``out`` is checked before any work and again
+    at the swap (see :mod:`mapdrift.outfolder`); leftovers of killed runs are cleaned first.
     """
+    from mapdrift.outfolder import lock_out, recover, set_aside_for, staging_for, swap_in
+
     run_spec: RunSpec = merge(RunSpec, config.section("run"), {})
     out = Path(out or run_spec.out or default_out(config))
-    prepare_out(out, force=force)
+    inputs = run_inputs(config)
+    _check_target(out)
     out.parent.mkdir(parents=True, exist_ok=True)
-    staging = out.with_name(f".{out.name}.partial-{os.getpid()}")
-    shutil.rmtree(staging, ignore_errors=True)
-    staging.mkdir(parents=True)
-    state = RunState(config=config, staging=staging, run=run_spec)
-    handler = logging.FileHandler(staging / "run.log", encoding="utf-8")
+    with lock_out(out), _terminate_as_exit():
+        recovered = recover(out)  # leftovers of killed runs first: it may restore `out`
+        for line in recovered:
+            log.warning(line)
+            if progress is not None:
+                progress(f"{'recover':<10} {line}")
+        prepare_out(out, force=force, inputs=inputs)  # before any work
+        staging = staging_for(out)
+        staging.mkdir(parents=True)
+        try:
+            state = RunState(config=config, staging=staging, run=run_spec)
+            state.findings += [Finding("warning", "out-recovered", m) for m in recovered]
+            _run_steps(state, out, steps, progress, on_start)
+            _manifest(state, replaces=set_aside_for(out).name if out.exists() else None)
+            swap_in(staging, out, inputs, force=force)
+        finally:
+            shutil.rmtree(staging, ignore_errors=True)
+    outputs = tuple(sorted(p for p in out.rglob("*") if p.is_file()))
+    return RunResult(
+        out, tuple(state.findings), dict(state.timings), dict(state.summaries), outputs
+    )
+
+
+def _run_steps(
+    state: RunState,
+    out: Path,
+    steps: list[tuple[str, Callable[[RunState], str]]] | None,
+    progress: Progress | None,
+    on_start: Progress | None,
+) -> None:
+    """Run every step into the staging folder, logging to its ``run.log``."""
+    handler = logging.FileHandler(state.staging / "run.log", encoding="utf-8")
     handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
     root = logging.getLogger("mapdrift")
     root.addHandler(handler)
@@ -553,23 +694,15 @@ def run(
             except Exception as exc:
                 log.info("step %s failed", name, exc_info=True)
                 raise StepError(
-                    f"step {name!r} failed: {type(exc).__name__}: {exc}; earlier outputs in {out} were left untouched"
+                    f"step {name!r} failed: {type(exc).__name__}: {exc}; earlier outputs in "
+                    f"{out} were left untouched"
                 ) from exc
             state.timings[name] = round(time.perf_counter() - t0, 3)
             state.summaries[name] = summary
             log.info("%s: %s", name, summary)
             if progress is not None:
                 progress(f"{name:<10} {summary}")
-        root.removeHandler(handler)  # close the log before hashing it into the manifest
-        handler.close()
-        _manifest(state)
-        _swap_in(staging, out)
-    finally:
+    finally:  # close the log before hashing it into the manifest
         root.removeHandler(handler)
         handler.close()
         root.setLevel(old_level)
-        shutil.rmtree(staging, ignore_errors=True)
-    outputs = tuple(sorted(p for p in out.rglob("*") if p.is_file()))
-    return RunResult(
-        out, tuple(state.findings), dict(state.timings), dict(state.summaries), outputs
-    )

@@ -87,7 +87,7 @@ def headline(state: RunState) -> list[tuple[str, str]]:
             )
         )
         sig = cl.trends["significant"].astype(bool)
-        for word in ("rising", "falling"):
+        for word in ("rising", "falling") if not state.trends_skipped else ():
             n = int((sig & (cl.trends["direction"] == word)).sum())
             out.append((f"{u} with a significant {word} trend", f"{n:,}"))
     nd = int(np.isnan(p.values).all(axis=1).sum())
@@ -116,6 +116,8 @@ def method(state: RunState) -> list[tuple[str, str]]:
             describe(b) + ("" if c.per_period else ": " + " | ".join(b.labels)),
         ),
     ]
+    if state.view:
+        rows.append(("View", state.view.removeprefix("view: ")))
     if c.per_period:
         rows.append(("Warning", c.warning or ""))
     ch = state.results.get("changes")
@@ -142,7 +144,9 @@ def method(state: RunState) -> list[tuple[str, str]]:
         rows.append(
             (
                 "Trends",
-                f"Mann-Kendall test with Theil-Sen slope, {cl.significance.replace('per period', 'across units')}",
+                f"Mann-Kendall test with Theil-Sen slope, {cl.significance.replace('per period', 'across units')}"
+                if not state.trends_skipped
+                else f"not estimated: {plural(p.n_periods, 'period')} are too few for a trend",
             )
         )
     if state.run.previous is not None:
@@ -347,6 +351,7 @@ def build_brief(state: RunState) -> Brief:
                 ),
             )
         )
+    if cl is not None and not state.trends_skipped:
         tr = cl.trends
         sig = tr[tr["significant"].astype(bool)]
         sig = sig.iloc[np.argsort(-np.abs(sig["theil_sen_slope"].to_numpy()), kind="stable")]
@@ -479,7 +484,9 @@ def _slide_pictures(state: RunState, folder: Path) -> dict[str, Path]:
             out[path.name] = path
     cl = state.results.get("clusters")
     if cl is not None:
-        for path in cluster_pictures(cl, p, folder, force=True, look=look, animation=False):
+        for path in cluster_pictures(
+            cl, p, folder, force=True, look=look, animation=False, trends=not state.trends_skipped
+        ):
             out[path.name] = path
     return out
 
@@ -622,8 +629,7 @@ def build_slides(state: RunState, brief: Brief, pictures: Path | None = None) ->
         g = cl.global_moran
         n_sig = int((np.asarray(g["p_permutation"], dtype=float) <= cl.options.alpha).sum())
         rises, falls = int((cl.change_codes == 0).sum()), int((cl.change_codes == 1).sum())
-        sig = cl.trends["significant"].astype(bool)
-        n_trend = int(sig.sum())
+        n_trend = 0 if state.trends_skipped else int(cl.trends["significant"].astype(bool).sum())
         later = [
             ("clusters", "cluster_map.png",
              f"{noun_for(n_hh, noun)} in high-high and {n_ll:,} in low-low clusters, {last}",

@@ -25,6 +25,7 @@ from mapdrift.brief.slides import (
     table_geometry,
 )
 from mapdrift.brief.textfit import fit
+from mapdrift.outputs import fixed_zip_dates
 
 __all__ = ["EMU_PER_PX", "FONT", "write_deck"]
 
@@ -203,6 +204,25 @@ def write_deck(slides: Sequence[Slide], path: Path, *, footer: str = "") -> Path
         )
         if s.notes:
             sl.notes_slide.notes_text_frame.text = s.notes
+    _fixed_properties(prs, slides)
     with atomic_path(path) as tmp:
         prs.save(str(tmp))
-    return path
+    return fixed_zip_dates(path)
+
+
+def _fixed_properties(prs: object, slides: Sequence[Slide]) -> None:
+    """Document properties of our own with a fixed date (not the template's, not the clock),
+    so reruns give identical bytes."""
+    from datetime import datetime
+
+    from mapdrift.outputs import FIXED_TIME
+
+    when = datetime.fromisoformat(FIXED_TIME.replace("Z", "")).replace(microsecond=0)
+    props = prs.core_properties  # type: ignore[attr-defined]
+    props.title = slides[0].title if slides else ""
+    props.author = "mapdrift"
+    props.last_modified_by = "mapdrift"
+    props.comments = ""
+    props.revision = 1
+    props.created = when
+    props.modified = when

@@ -83,8 +83,13 @@ def write_manifest(
     findings: Iterable[Any],
     timings: Mapping[str, float],
     summaries: Mapping[str, str],
+    replaces: str | None = None,
 ) -> Path:
-    """Write the manifest; outputs are listed relative to ``root`` with their hashes."""
+    """Write the manifest; outputs are listed relative to ``root`` with their hashes.
+
+    ``replaces`` names the folder an earlier run is set aside as while this one is swapped in
+    (``.<out>.old-<pid>``), so a run killed mid-swap can tell which leftover is garbage.
+    """
     doc = {
         "format": MANIFEST_FORMAT,
         "versions": versions(),
@@ -104,4 +109,6 @@ def write_manifest(
             if p.is_file()
         ],
     }
+    if replaces is not None:
+        doc["replaces"] = replaces
     return write_text(path, json.dumps(doc, indent=2, sort_keys=False) + "\n")

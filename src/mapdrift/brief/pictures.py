@@ -207,9 +207,13 @@ def cluster_pictures(
     force: bool = False,
     look: Look | None = None,
     animation: bool = True,
+    trends: bool | None = None,
 ) -> list[Path]:
     """Global Moran chart, cluster animation (GIF, unless ``animation`` is False), last-period
-    cluster map, change-cluster map and trend map. Returns the paths written."""
+    cluster map, change-cluster map and trend map. Returns the paths written.
+
+    The trend map is left out when ``trends`` is False, or (None) when no unit has enough
+    periods for a trend (a map of "too few periods" everywhere says nothing)."""
     from mapdrift.clusters.labels import LABELS
     from mapdrift.palettes import CLUSTER_WORDS, diverging
     from mapdrift.render.encode import write_gif
@@ -288,6 +292,10 @@ def cluster_pictures(
                               legend_title=f"change {a} to {b}", caption=change_caption),
                    size=look.size, force=force, **look_kw)
     )  # fmt: skip
+    if trends is None:
+        trends = bool((result.trends["direction"] != "too few periods").any())
+    if not trends:
+        return written
     written.append(
         static_map(panel.geometry, result.trend_codes, diverging(5), list(result.trend_labels),
                    out / "trend_map.png",

@@ -5,7 +5,8 @@ CSVs are written with :func:`mapdrift.outputs.write_csv` (formula injection defu
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Iterator, Mapping
+from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -56,7 +57,23 @@ def write_units_gpkg(
     for col in gdf.columns:
         if str(gdf[col].dtype) == "Int64":
             gdf[col] = gdf[col].astype("float64")
-    with atomic_path(path) as tmp:
+    with atomic_path(path) as tmp, _fixed_gdal_date():
         tmp.unlink()  # GDAL wants to create the file itself
         gdf.to_file(tmp, layer=layer, driver="GPKG", engine="pyogrio")
     return path
+
+
+@contextmanager
+def _fixed_gdal_date() -> Iterator[None]:
+    """GDAL stamps a GeoPackage's ``last_change`` with the clock unless ``OGR_CURRENT_DATE``
+    is set: set it to :data:`mapdrift.outputs.FIXED_TIME` while writing (reruns identical)."""
+    import pyogrio
+
+    from mapdrift.outputs import FIXED_TIME
+
+    before = pyogrio.get_gdal_config_option("OGR_CURRENT_DATE")
+    pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": FIXED_TIME})
+    try:
+        yield
+    finally:
+        pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": before})

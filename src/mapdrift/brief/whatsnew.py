@@ -4,15 +4,22 @@ The previous run is read back from its folder (``jumps.csv``, ``cluster_changes.
 ``trends.csv``, ``findings.json``). An event is new when the previous run did not list it: a
 jump is keyed by (unit, from period, to period, direction), a cluster event by (unit, kind,
 period), a trend by (unit, direction) among significant trends; findings by (code, unit).
+
+:meth:`WhatsNew.bullets` words the news for people (long lists cut at "... (7 in all)");
+:meth:`WhatsNew.records` gives scripts every item in full, one dict each with the same keys
+(``kind``, ``unit``, ``name``, ``what``, ``from``, ``to``, plus details of the kind), and
+:meth:`WhatsNew.to_json` is the content of ``whats_new.json``. A new kind of news adds a table
+field and its records in :meth:`WhatsNew.records`; the keys above stay.
 """
 
 from __future__ import annotations
 
 import json
+import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from mapdrift.errors import InputError
 from mapdrift.findings import Finding, examples, plural, units_of
@@ -30,6 +37,22 @@ CLUSTER_EVENTS: dict[str, str] = {
     "joined_low_cluster": "entered a low-low cluster",
     "left_low_cluster": "left a low-low cluster",
 }
+#: The states before and after each cluster event, for whats_new.json's ``from`` and ``to``.
+_EVENT_STATES: dict[str, tuple[str, str]] = {
+    "joined_high_cluster": ("not high-high", "high-high"),
+    "left_high_cluster": ("high-high", "not high-high"),
+    "joined_low_cluster": ("not low-low", "low-low"),
+    "left_low_cluster": ("low-low", "not low-low"),
+}
+
+
+def _plain(x: Any) -> Any:
+    """A JSON-safe scalar: numpy numbers to Python, NaN to None."""
+    if hasattr(x, "item"):
+        x = x.item()
+    if isinstance(x, float) and not math.isfinite(x):
+        return None
+    return x
 
 
 @dataclass(frozen=True)
@@ -45,6 +68,7 @@ class WhatsNew:
     findings: tuple[str, ...] = field(default=())
     small_base: frozenset[str] = field(default=frozenset())
     names: dict[str, str] = field(default_factory=dict)
+    finding_items: tuple[dict[str, Any], ...] = field(default=())
 
     def _who(self, unit: str) -> str:
         name = self.names.get(unit, "")
@@ -84,6 +108,96 @@ class WhatsNew:
             )
         out.extend(self.findings)
         return out
+
+    def records(self) -> list[dict[str, Any]]:
+        """Every news item in full (no list is cut), one dict each, for scripts.
+
+        Keys common to every kind: ``kind`` (jump, cluster, trend, trend-ended, finding),
+        ``unit``, ``name``, ``what`` (a few words), ``from`` and ``to`` (the state before and
+        after: a period/class/value dict for jumps, a cluster state, a trend direction; None for
+        findings, which list their ``units`` instead).
+        """
+        out: list[dict[str, Any]] = []
+        for r in self.new_jumps.to_dict("records") if len(self.new_jumps) else ():
+            unit = str(r["unit"])
+            ends = {}
+            for end, when, cls, label, value in (
+                ("from", "from_period", "from_class", "from_label", "value_before"),
+                ("to", "to_period", "to_class", "to_label", "value_after"),
+            ):
+                ends[end] = {
+                    "period": str(r.get(when, "")),
+                    "class": _plain(r.get(cls)),
+                    "label": _plain(r.get(label)),
+                    "value": _plain(r.get(value)),
+                }
+            size = _plain(r.get("size"))
+            out.append(
+                {
+                    "kind": "jump",
+                    "unit": unit,
+                    "name": self.names.get(unit, _plain(r.get("name")) or unit),
+                    "what": f"jumped {r.get('direction', '')} {abs(int(size or 0))} classes",
+                    **ends,
+                    "size": size,
+                    "spike": bool(r.get("spike", False)),
+                    "small_base": unit in self.small_base,
+                }
+            )
+        for unit, event, period in self.cluster_events.itertuples(index=False):
+            before, after = _EVENT_STATES.get(event, ("", ""))
+            out.append(
+                {
+                    "kind": "cluster",
+                    "unit": str(unit),
+                    "name": self.names.get(str(unit), str(unit)),
+                    "what": CLUSTER_EVENTS.get(event, event),
+                    "from": before,
+                    "to": after,
+                    "event": event,
+                    "period": str(period),
+                }
+            )
+        for r in self.new_trends.to_dict("records") if len(self.new_trends) else ():
+            unit = str(r["unit"])
+            out.append(
+                {
+                    "kind": "trend",
+                    "unit": unit,
+                    "name": self.names.get(unit, unit),
+                    "what": f"new significant {r['direction']} trend",
+                    "from": r.get("before", "no significant trend"),
+                    "to": r["direction"],
+                    "theil_sen_slope": _plain(r.get("theil_sen_slope")),
+                }
+            )
+        for unit, direction in zip(self.ended_trends["unit"], self.ended_trends["direction"]):
+            out.append(
+                {
+                    "kind": "trend-ended",
+                    "unit": str(unit),
+                    "name": self.names.get(str(unit), str(unit)),
+                    "what": f"{direction} trend no longer significant",
+                    "from": direction,
+                    "to": "no significant trend",
+                }
+            )
+        out.extend(dict(item) for item in self.finding_items)
+        return out
+
+    def to_json(self) -> dict[str, Any]:
+        """The content of ``whats_new.json``: the sentences, counts per kind and every item."""
+        items = self.records()
+        counts: dict[str, int] = {}
+        for item in items:
+            counts[item["kind"]] = counts.get(item["kind"], 0) + 1
+        return {
+            "previous": previous_name(self.previous),
+            "previous_periods": list(self.previous_periods),
+            "news": self.bullets(),
+            "counts": counts,
+            "items": items,
+        }
 
 
 def previous_name(previous: Path | None) -> str:
@@ -125,24 +239,43 @@ def _events(df: pd.DataFrame | None) -> set[tuple[str, str, str]]:
     return out
 
 
-def _finding_news(prev_findings: list[dict], findings: Sequence[Finding]) -> list[str]:
+def _finding_news(
+    prev_findings: list[dict], findings: Sequence[Finding]
+) -> tuple[list[str], list[dict[str, Any]]]:
+    """Sentences and full records of the data findings that are new, newly name units, or are
+    resolved since the previous run."""
     before: dict[str, set[str]] = {}
+    levels: dict[str, str] = {}
     for f in prev_findings:
         before.setdefault(f["code"], set()).update(f.get("units", []))
-    out = []
+        levels[f["code"]] = f.get("level", "")
+    out: list[str] = []
+    items: list[dict[str, Any]] = []
+
+    def item(f_code: str, level: str, what: str, units: Sequence[str], message: str) -> None:
+        items.append(
+            {"kind": "finding", "unit": None, "name": None, "what": what, "from": None,
+             "to": None, "code": f_code, "level": level, "units": list(units), "message": message}
+        )  # fmt: skip
+
     for f in findings:
         if f.level == "note":
             continue
         if f.code not in before:
             out.append(f"New data finding ({f.code}): {f.message}")
+            item(f.code, f.level, "new data finding", f.units, f.message)
             continue
         new_units = [u for u in f.units if u not in before[f.code]]
         if new_units:
             out.append(f"Newly named in a data check ({f.code}): {examples(new_units)}.")
+            item(f.code, f.level, "newly named in a data check", new_units, f.message)
     now = {f.code for f in findings}
     for code in sorted(set(before) - now):
         out.append(f"Resolved since the previous run: {code}.")
-    return out
+        item(
+            code, levels.get(code, ""), "resolved since the previous run", sorted(before[code]), ""
+        )
+    return out, items
 
 
 def compare_runs(
@@ -211,11 +344,17 @@ def compare_runs(
         new_trends = new_trends[
             [c for c in ("unit", "name", "direction", "theil_sen_slope") if c in sig.columns]
         ].reset_index(drop=True)
+        if prev_tr is not None and len(new_trends):  # the state before, for whats_new.json
+            was = dict(zip(prev_tr["unit"].astype(str), prev_tr["direction"].astype(str)))
+            new_trends["before"] = [
+                was.get(u, "not in the previous run") for u in new_trends["unit"].astype(str)
+            ]
         ended = pd.DataFrame(sorted(prev_sig - now_sig), columns=["unit", "direction"])
     prev_findings = []
     fpath = previous / "findings.json"
     if fpath.exists():
         prev_findings = json.loads(fpath.read_text(encoding="utf-8"))
+    finding_text, finding_items = _finding_news(prev_findings, findings)
     return WhatsNew(
         previous=previous,
         previous_periods=periods,
@@ -223,7 +362,8 @@ def compare_runs(
         cluster_events=cluster_events,
         new_trends=new_trends,
         ended_trends=ended,
-        findings=tuple(_finding_news(prev_findings, findings)),
+        findings=tuple(finding_text),
         small_base=small,
         names=dict(names or {}),
+        finding_items=tuple(finding_items),
     )

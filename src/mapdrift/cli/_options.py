@@ -207,6 +207,18 @@ _INPUT_PARAMS = [
         _opt(None, "--unit-label", help="Unit of the values, e.g. 'per 1,000 mortgaged parcels'."),
     ),
     _param("source", Optional[str], _opt(None, "--source", help="Source line for captions.")),
+    _param(
+        "view",
+        Optional[str],
+        _opt(
+            None,
+            "--view",
+            help="Rescale the values after loading, for trending data: raw, relative-mean, "
+            "relative-median (each period over its mean/median), index:2015 (each unit over its "
+            "2015 value), deflate:FILE[:COLUMN][@PERIOD] or deflate:COLUMN (a per-period factor, "
+            "e.g. a price index) [default: raw].",
+        ),
+    ),
 ]
 
 _CLASS_PARAMS = [
@@ -303,6 +315,14 @@ def input_options(func: Callable[..., Any]) -> Callable[..., Any]:
         raw["missing"] = parse_numbers(raw.get("missing"), "--missing")
         raw["append"] = tuple(raw["append"]) if raw.get("append") else None
         from_config = config.section("inputs") if config is not None else {}
+        if raw.get("view") is None and from_config.get("view") and config.path is not None:
+            from mapdrift.views import resolve_view  # a config's paths are relative to it
+
+            from_config["view"] = resolve_view(from_config["view"], config.path.parent)
+        if raw.get("view") is not None or from_config.get("view"):
+            from mapdrift.views import parse_view
+
+            parse_view(raw.get("view") or from_config.get("view"))  # a bad view stops here
         if raw.get("geometry") is None and "geometry" not in from_config:
             raise ConfigError(
                 "no polygon layer given: pass it as the first argument (e.g. `mapdrift check "

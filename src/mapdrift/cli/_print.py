@@ -5,13 +5,14 @@ from __future__ import annotations
 import shutil
 import textwrap
 from collections.abc import Sequence
+from typing import Any
 
 import typer
 
 from mapdrift.cli._app import state
-from mapdrift.findings import Finding
+from mapdrift.findings import Finding, plural
 
-__all__ = ["echo", "print_findings"]
+__all__ = ["echo", "print_findings", "print_summary"]
 
 _COLOURS = {"error": typer.colors.RED, "warning": typer.colors.YELLOW, "note": typer.colors.BLUE}
 
@@ -36,3 +37,23 @@ def print_findings(findings: Sequence[Finding]) -> None:
         typer.echo(
             textwrap.fill(f.message, width=width, initial_indent="    ", subsequent_indent="    ")
         )
+
+
+def print_summary(panel: Any) -> None:
+    """The data findings of a command that loaded data, short: counts by level, then each
+    error and warning on one line (``mapdrift check`` prints them in full). ``-q`` silences it."""
+    findings = list(panel.findings)
+    per = panel.period_labels
+    counts = {lvl: sum(f.level == lvl for f in findings) for lvl in ("error", "warning", "note")}
+    parts = [plural(n, lvl) for lvl, n in counts.items() if n or lvl != "error"]
+    span = f" ({per[0]} to {per[-1]})" if per else ""
+    echo(
+        f"data: {plural(panel.n_units, 'unit')} x {plural(panel.n_periods, 'period')}{span}; "
+        + ", ".join(parts)
+    )
+    if panel.meta.view:
+        echo(f"  {panel.meta.view}")
+    for f in findings:
+        if f.level in ("error", "warning"):
+            head = typer.style(f"{f.level:<8}", fg=_COLOURS.get(f.level))
+            echo(f"  {head}{f.code}: {f.message}")

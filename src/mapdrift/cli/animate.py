@@ -14,6 +14,7 @@ from typing import Any, Optional
 import typer
 
 from mapdrift.cli._app import command
+from mapdrift.cli._data import load_data, summarise
 from mapdrift.cli._options import class_options, input_options
 from mapdrift.cli._print import echo, print_findings
 
@@ -115,7 +116,6 @@ def animate(
     from mapdrift.breaks import classify_spec
     from mapdrift.config import merge
     from mapdrift.errors import OutputExistsError
-    from mapdrift.panel import load_panel
     from mapdrift.render.animation import AnimateOptions, parse_size
 
     overrides = {
@@ -138,8 +138,9 @@ def animate(
     for p in sm_paths:
         if p.exists() and not force:
             raise OutputExistsError(f"{p} exists; pass --force to overwrite it")
-    panel = load_panel(inputs)
+    panel = load_data(inputs)
     cls = classify_spec(panel, classes)
+    panel = summarise(panel, cls, view=inputs.view)
     t = map_text(panel, cls)
     colours, labels = t.pop("colours"), t.pop("labels")
     findings = list(cls.findings)

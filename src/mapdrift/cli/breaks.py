@@ -8,6 +8,7 @@ from typing import Any, Optional
 import typer
 
 from mapdrift.cli._app import command
+from mapdrift.cli._data import load_data, summarise
 from mapdrift.cli._options import class_options, input_options
 from mapdrift.cli._print import echo, print_findings
 from mapdrift.errors import OutputExistsError
@@ -26,14 +27,14 @@ def breaks(
 ) -> None:
     """Fit class breaks (pooled over all periods by default) and show the classes per period."""
     from mapdrift.breaks import classify_spec
-    from mapdrift.panel import load_panel
 
     if save is not None and save.exists() and not force:
         raise OutputExistsError(
             f"{save} exists; pass --force to overwrite it or choose another --save path"
         )
-    panel = load_panel(inputs)
+    panel = load_data(inputs)
     result = classify_spec(panel, classes)
+    panel = summarise(panel, result, view=inputs.view)
     counts = result.counts()
     nodata = result.no_data()
     for j, label in enumerate(panel.period_labels):

@@ -7,6 +7,7 @@ and maps from the plain arrays of the result.
 
 from __future__ import annotations
 
+from dataclasses import replace
 from enum import Enum
 from pathlib import Path
 from typing import Any, Optional
@@ -14,6 +15,7 @@ from typing import Any, Optional
 import typer
 
 from mapdrift.cli._app import command
+from mapdrift.cli._data import load_data, summarise
 from mapdrift.cli._options import class_options, input_options
 from mapdrift.cli._print import echo, print_findings
 
@@ -90,7 +92,6 @@ def changes(
     from mapdrift.brief.pictures import CHANGE_PICTURES, change_pictures
     from mapdrift.changes import analyse_changes, relative_panel, write_changes
     from mapdrift.changes.io import check_outputs, output_names
-    from mapdrift.panel import load_panel
 
     options = _options(
         config,
@@ -106,11 +107,18 @@ def changes(
     )
     names = output_names(spatial=options.spatial) + (list(CHANGE_PICTURES) if pictures else [])
     check_outputs(out, names, force)  # before any work
-    panel = load_panel(inputs)
+    panel = load_data(inputs)
     if options.relative:
         panel = relative_panel(panel, options.relative)
     cls = classify_spec(panel, classes)
+    panel = summarise(panel, cls, view="relative" if options.relative else inputs.view)
+    if options.persist > panel.n_periods:  # "the last 3 periods" with 2: all there are
+        options = replace(options, persist=panel.n_periods)
     result = analyse_changes(panel, cls, options)
+    if panel.meta.view:  # every table says which view its values are in
+        result = replace(
+            result, warning=" ".join(x for x in (result.warning, panel.meta.view) if x)
+        )
     written = write_changes(result, out, force=True)
     if pictures:
         written += change_pictures(result, panel, out, force=True)  # checked above

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
 from enum import Enum
 from pathlib import Path
 from typing import Any, Optional
@@ -9,6 +10,7 @@ from typing import Any, Optional
 import typer
 
 from mapdrift.cli._app import command
+from mapdrift.cli._data import load_data, summarise
 from mapdrift.cli._options import input_options
 from mapdrift.cli._print import echo, print_findings
 
@@ -95,7 +97,6 @@ def clusters(
     from mapdrift.clusters import ClusterOptions, analyse_clusters, write_clusters
     from mapdrift.config import merge
     from mapdrift.outputs import check_free
-    from mapdrift.panel import load_panel
 
     flags = {
         "weights": weights,
@@ -118,11 +119,37 @@ def clusters(
     from mapdrift.brief.pictures import CLUSTER_PICTURES, cluster_pictures
 
     check_free([out / n for n in (*_table_names(), *(CLUSTER_PICTURES if maps else ()))], force)
-    panel = load_panel(inputs)
-    result = analyse_clusters(panel, None, options)
-    written = write_clusters(result, out, force=force)
+    w: Any = None
+    smooth = None
+    if options.smooth and inputs.view:
+        # smoothing works on counts: smooth first, then rescale (analyse_clusters would smooth
+        # the counts again and lose the view)
+        from mapdrift.rates import smooth_panel
+        from mapdrift.weights import build_weights
+
+        def smooth(raw: Any) -> Any:
+            nonlocal w
+            w = build_weights(raw.geometry, options.weights, islands=options.islands,
+                              cache_dir=options.cache_dir, units=raw.units)  # fmt: skip
+            return smooth_panel(raw, options.smooth, weights=w)
+
+    panel = summarise(load_data(inputs, smooth=smooth), view=inputs.view)
+    if smooth is not None:
+        options = replace(options, smooth=None)
+    if options.persist > panel.n_periods:  # "steady for 3 periods" with 2: all there are
+        options = replace(options, persist=panel.n_periods)
+    result = analyse_clusters(panel, None, options, weights=w)
+    written = write_clusters(result, out, force=force, warning=panel.meta.view or None)
     if maps:
-        written += cluster_pictures(result, panel, out, force=True)  # checked above
+        written += cluster_pictures(
+            result, panel, out, force=True, trends=panel.n_periods >= max(options.min_periods, 3)
+        )  # checked above
+    need = max(options.min_periods, 3)
+    if panel.n_periods < need:  # said once; the trend map is left out, trends.csv says why
+        echo(
+            f"trends: {panel.n_periods} periods are too few for a trend per unit (need {need}); "
+            "no trend map"
+        )
     g = result.global_moran
     echo(
         f"{options.statistic}, {result.weights.kind} weights, {options.permutations} permutations, seed {options.seed}"

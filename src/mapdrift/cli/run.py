@@ -58,6 +58,19 @@ def run_cmd(
     previous: Optional[Path] = _o(
         None, "--previous", help="Last year's run folder: reuse its breaks and report what is new."
     ),
+    append: Optional[list[Path]] = _o(
+        None,
+        "--append",
+        help="Another values table to add, e.g. next year's release (repeatable; added to the "
+        "config's [inputs] append). Long tables need the same columns; a wide table may hold "
+        "only the ID and the new periods' columns.",
+    ),
+    view: Optional[str] = _o(
+        None,
+        "--view",
+        help="Rescale the values: raw, relative-mean, relative-median, index:PERIOD, "
+        "deflate:FILE[:COLUMN][@PERIOD] (overrides [inputs] view).",
+    ),
     rebreak: Optional[bool] = _o(
         None,
         "--rebreak/--keep-breaks",
@@ -101,6 +114,16 @@ def run_cmd(
     cfg = cfg.with_values(
         "run", {"previous": str(previous) if previous else None, "rebreak": rebreak}
     )
+    if append:  # added to the config's list; a table listed there already is not read twice
+        have = [Path(p) for p in cfg.section("inputs").get("append", ())]
+        seen = {p.resolve() for p in have}
+        extra = [p for p in append if p.resolve() not in seen]
+        cfg = cfg.with_values("inputs", {"append": [str(p) for p in (*have, *extra)]})
+    if view is not None:
+        from mapdrift.views import parse_view, resolve_view
+
+        parse_view(view)  # a bad view stops before any work
+        cfg = cfg.with_values("inputs", {"view": resolve_view(view, Path.cwd())})
     cfg = cfg.with_values(
         "classes",
         {

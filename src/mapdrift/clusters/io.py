@@ -23,12 +23,17 @@ OUTPUT_FILES: dict[str, str] = {
 }
 
 
-def write_clusters(result: ClusterResult, out: Path | str, *, force: bool = False) -> list[Path]:
-    """Write the tables into ``out``; returns the paths written. CSV floats keep 10 digits."""
+def write_clusters(
+    result: ClusterResult, out: Path | str, *, force: bool = False, warning: str | None = None
+) -> list[Path]:
+    """Write the tables into ``out``; returns the paths written. CSV floats keep 10 digits.
+    ``warning`` (e.g. the values' view) becomes each CSV's ``# `` first line."""
     out = Path(out)
     targets = [out / name for name in OUTPUT_FILES]
     check_free(targets, force)
     written = []
     for path, frame in zip(targets, OUTPUT_FILES.values(), strict=True):
-        written.append(write_csv(result.frames[frame], path, index=frame == "transitions"))
+        written.append(
+            write_csv(result.frames[frame], path, index=frame == "transitions", warning=warning)
+        )
     return written

@@ -286,6 +286,9 @@ def small_multiples(
         )
     for o in outs:
         with atomic_path(o) as tmp:
-            fig.savefig(tmp, format=o.suffix.lstrip("."), dpi=png_dpi if o.suffix == ".png" else 72)
+            fmt = o.suffix.lstrip(".")
+            # no creation date in PDF/SVG: the same inputs give byte-identical files
+            meta = {"pdf": {"CreationDate": None}, "svg": {"Date": None}}.get(fmt)
+            fig.savefig(tmp, format=fmt, dpi=png_dpi if fmt == "png" else 72, metadata=meta)
     fig.clear()
     return outs
