@@ -17,7 +17,7 @@ from mapdrift.brief.pictures import noun_for
 from mapdrift.brief.slides import Slide
 from mapdrift.brief.whatsnew import previous_name
 from mapdrift.config import BriefSpec
-from mapdrift.findings import examples, units_of
+from mapdrift.findings import examples, plural, units_of
 
 if TYPE_CHECKING:
     from pathlib import Path
