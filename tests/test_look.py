@@ -264,3 +264,23 @@ def test_deck_text_has_no_hard_line_breaks_and_autofits(tmp_path):
                     )
                     is not None
                 )
+
+
+def test_units_layer_style_is_valid_sld_with_the_cluster_look(tmp_path):
+    # OGC SLD 1.0 structure (namespaces from the OGC SLD 1.0.0 schema)
+    import xml.etree.ElementTree as ET
+
+    from mapdrift.brief.pictures import write_cluster_style
+
+    path = write_cluster_style(tmp_path / "units_clusters.sld", "cluster_2024")
+    ns = {"sld": "http://www.opengis.net/sld", "ogc": "http://www.opengis.net/ogc"}
+    root = ET.parse(path).getroot()
+    rules = root.findall(".//sld:Rule", ns)
+    assert [r.find("sld:Name", ns).text for r in rules] == list(palettes.CLUSTER_LOOK)
+    for rule in rules:
+        label = rule.find("sld:Name", ns).text
+        fill, mark, _ = palettes.CLUSTER_LOOK[label]
+        assert rule.find(".//ogc:PropertyName", ns).text == "cluster_2024"
+        assert rule.find(".//ogc:Literal", ns).text == label
+        assert rule.find(".//sld:PolygonSymbolizer//sld:CssParameter", ns).text == fill
+        assert (rule.find(".//sld:PointSymbolizer", ns) is not None) == bool(mark)

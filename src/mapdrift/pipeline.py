@@ -457,10 +457,17 @@ def _step_units(state: RunState) -> str:
     state.results["units"] = df
     write_csv(df, state.path("units.csv"), warning=state.csv_note)
     formats = state.section(BriefSpec, "brief").formats
+    style = ""
     if "gpkg" in formats:
         write_units_gpkg(df, state.panel.geometry, state.path("units.gpkg"))
+        last = f"cluster_{state.panel.period_labels[-1]}"
+        if last in df.columns:  # the cluster look for the units layer, as an OGC SLD
+            from mapdrift.brief.pictures import write_cluster_style
+
+            write_cluster_style(state.path("units_clusters.sld"), last)
+            style = ", units_clusters.sld"
     return f"{len(df)} units x {len(df.columns)} columns (units.csv" + (
-        ", units.gpkg)" if "gpkg" in formats else ")"
+        f", units.gpkg{style})" if "gpkg" in formats else ")"
     )
 
 

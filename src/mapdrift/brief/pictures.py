@@ -30,6 +30,7 @@ __all__ = [
     "cluster_pictures",
     "multiples_pages",
     "noun_for",
+    "write_cluster_style",
 ]
 
 #: Legend words for the first four cluster labels on a map of change (high-high, low-low,
@@ -434,3 +435,63 @@ def multiples_pages(
         img.save(path, format="PNG")
         out.append((path, tuple(str(period_labels[j]) for j in js)))
     return out
+
+
+def write_cluster_style(path: Path, column: str, *, title: str = "") -> Path:
+    """Write an OGC Styled Layer Descriptor (SLD 1.0) giving the units layer the cluster look.
+
+    One rule per cluster label on ``column`` (e.g. ``cluster_2024`` of ``units.gpkg``): cores
+    filled, outliers as a triangle mark on the blank fill, units without neighbours as a ring,
+    no data grey; the rule titles are the legend's words. Any GIS that reads SLD applies it.
+    """
+    from xml.sax.saxutils import escape
+
+    from mapdrift.atomic import atomic_path
+    from mapdrift.palettes import CLUSTER_LOOK, CLUSTER_WORDS
+    from mapdrift.render.layout import GREY_BOUNDARY, TEXT
+
+    def css(name: str, value: str) -> str:
+        return f'<CssParameter name="{name}">{escape(value)}</CssParameter>'
+
+    rules = []
+    for label, (fill, mark, mark_colour) in CLUSTER_LOOK.items():
+        words = CLUSTER_WORDS.get(label, label).replace("\n", " (") + (
+            ")" if "\n" in CLUSTER_WORDS.get(label, "") else ""
+        )
+        sym = (
+            "<PolygonSymbolizer><Fill>" + css("fill", fill) + "</Fill><Stroke>"
+            + css("stroke", GREY_BOUNDARY) + css("stroke-width", "0.5")
+            + "</Stroke></PolygonSymbolizer>"
+        )  # fmt: skip
+        if mark:
+            shape = "circle" if mark == "ring" else "triangle"
+            inside = (
+                "<Stroke>" + css("stroke", mark_colour) + css("stroke-width", "2") + "</Stroke>"
+                if mark == "ring"
+                else "<Fill>" + css("fill", mark_colour) + "</Fill><Stroke>"
+                + css("stroke", TEXT) + css("stroke-width", "1") + "</Stroke>"
+            )  # fmt: skip
+            rotation = "<Rotation>180</Rotation>" if mark == "down" else ""
+            sym += (
+                f"<PointSymbolizer><Graphic><Mark><WellKnownName>{shape}</WellKnownName>"
+                f"{inside}</Mark><Size>13</Size>{rotation}</Graphic></PointSymbolizer>"
+            )
+        rules.append(
+            f"<Rule><Name>{escape(label)}</Name><Title>{escape(words)}</Title>"
+            "<ogc:Filter><ogc:PropertyIsEqualTo>"
+            f"<ogc:PropertyName>{escape(column)}</ogc:PropertyName>"
+            f"<ogc:Literal>{escape(label)}</ogc:Literal>"
+            f"</ogc:PropertyIsEqualTo></ogc:Filter>{sym}</Rule>"
+        )
+    xml = (
+        '<?xml version="1.0" encoding="UTF-8"?>\n'
+        '<StyledLayerDescriptor version="1.0.0" xmlns="http://www.opengis.net/sld" '
+        'xmlns:ogc="http://www.opengis.net/ogc">'
+        "<NamedLayer><Name>units</Name><UserStyle>"
+        f"<Title>{escape(title or 'local clusters, ' + column)}</Title><FeatureTypeStyle>"
+        + "".join(rules)
+        + "</FeatureTypeStyle></UserStyle></NamedLayer></StyledLayerDescriptor>\n"
+    )
+    with atomic_path(path) as tmp:
+        Path(tmp).write_text(xml, encoding="utf-8")
+    return path
