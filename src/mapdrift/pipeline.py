@@ -286,6 +286,8 @@ def _step_classify(state: RunState) -> str:
 
 
 def _text(state: RunState) -> dict[str, Any]:
+    from mapdrift.brief.pictures import REPORT_TEXT_PX
+
     p = state.panel
     brief = state.section(BriefSpec, "brief")
     title = brief.title or p.meta.variable
@@ -296,6 +298,7 @@ def _text(state: RunState) -> dict[str, Any]:
         "caption": brief.source or p.meta.source,
         "notice": state.notice,
         "unit_noun": brief.unit_noun,
+        "min_text_px": REPORT_TEXT_PX,
     }
 
 
