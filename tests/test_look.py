@@ -284,3 +284,37 @@ def test_units_layer_style_is_valid_sld_with_the_cluster_look(tmp_path):
         assert rule.find(".//ogc:Literal", ns).text == label
         assert rule.find(".//sld:PolygonSymbolizer//sld:CssParameter", ns).text == fill
         assert (rule.find(".//sld:PointSymbolizer", ns) is not None) == bool(mark)
+
+
+def test_slide_text_never_below_the_floor_and_pictures_fill_the_box(tmp_path, monkeypatch):
+    import pandas as pd
+    from PIL import Image
+
+    from mapdrift.brief import slides as sl
+    from mapdrift.brief import textfit
+
+    sizes: list[int] = []
+    real = textfit._font
+
+    def spy(size_px, bold):
+        sizes.append(size_px)
+        return real(size_px, bold)
+
+    monkeypatch.setattr(sl, "_font", spy)
+    pic = tmp_path / "p.png"
+    Image.new("RGB", sl.PICTURE_BOX, "white").save(pic)
+    long = "A long sentence that must wrap inside its box on the slide; " * 12
+    table = pd.DataFrame({"unit": ["07038"] * 12, "name": ["Quorlan Landing"] * 12, "n": [1208] * 12})
+    for slide in (
+        sl.Slide("title", long, subtitle=long, bullets=("a", "b")),
+        sl.Slide("answer", "The answer " * 8, bullets=(long,) * 8),
+        sl.Slide("movers", "Top", table=table, bullets=(long,)),
+        sl.Slide("map", "A takeaway title", images=(pic,), notice="Classes differ by period"),
+    ):
+        sl.draw_slide(slide, 1, 4, footer="source")
+    assert min(sizes) >= sl.MIN_TEXT_PX
+    # a picture-only slide's box is the size its pictures are drawn at: they fill it
+    r = sl.layout(sl.Slide("map", "t", images=(pic,)))
+    x0, y0, x1, y1 = r.images[0]
+    assert (x1 - x0, y1 - y0) == sl.PICTURE_BOX
+    assert (x1 - x0) / sl.W >= 0.9

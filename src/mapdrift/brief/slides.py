@@ -201,7 +201,7 @@ def _cell(v: object) -> str:
 def table_geometry(cells: list[list[str]], box: Box) -> tuple[float, list[float]]:
     """Font size and column widths so the table fits ``box`` (widths sum to the box width)."""
     bw, bh = box[2] - box[0], box[3] - box[1]
-    size = min(30.0, bh / (len(cells) * 1.5))
+    size = max(min(30.0, bh / (len(cells) * 1.5)), MIN_TEXT_PX)
     while True:
         need = [
             max(text_width(r[j], size, i == 0) for i, r in enumerate(cells)) + 24
@@ -209,7 +209,7 @@ def table_geometry(cells: list[list[str]], box: Box) -> tuple[float, list[float]
         ]
         if sum(need) <= bw or size <= MIN_TEXT_PX:
             break
-        size *= 0.92
+        size = max(size * 0.92, MIN_TEXT_PX)
     extra = (bw - sum(need)) / len(need) if sum(need) < bw else 0
     return size, [n + extra for n in need]
 
