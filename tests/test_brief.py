@@ -33,6 +33,21 @@ def test_defuse_formula_cells(tmp_path):
     assert text.splitlines()[1] == '"\'=HYPERLINK(""x"")",-1'  # quoted text, number left alone
 
 
+def test_write_csv_defuses_every_cell_like_the_per_cell_rule(tmp_path):
+    # Reference: the per-cell rule (defuse applied to every cell with pandas' own to_csv).
+    df = pd.DataFrame(
+        {
+            "label": pd.Series(["high-high", "=cmd", None, "=cmd", "-x", "ok"], dtype=object),
+            "mixed": [1, "@a", 2.5, None, "b", "+c"],
+            "cat": pd.Categorical(["=a", "b", "=a", "b", "b", None]),
+            "n": [1, -2, 3, -4, 5, 6],
+        }
+    )
+    p = write_csv(df, tmp_path / "t.csv", warning="note")
+    ref = df.astype(object).map(defuse).to_csv(index=False, lineterminator="\n")
+    assert p.read_text() == "# note\n" + ref
+
+
 @pytest.fixture(scope="module")
 def tiny_run(tmp_path_factory):
     """A full run on a 5 x 5 grid whose unit names are hostile (escaping and defusing)."""

@@ -193,3 +193,41 @@ def test_fixed_palette_matches_kdtree_nearest_and_keeps_exact_colours():
     dist, _ = cKDTree(pal.colours.astype(float)).query(centre)
     got = np.sqrt(((centre - pal.colours[idx.ravel()[~exact]].astype(float)) ** 2).sum(axis=1))
     assert np.allclose(got, dist)  # same distance (ties may pick either entry)
+
+
+def test_mp4_without_tween_encodes_one_frame_per_period_and_keeps_the_timing(tmp_path):
+    # Timing from ffprobe-style metadata read back by imageio-ffmpeg (an outside reader):
+    # 3 periods at 1 s each, the last held 3 s -> 2 + 3 encoded frames at 1 fps, 5 s long.
+    imageio_ffmpeg = pytest.importorskip("imageio_ffmpeg")
+    g, r = _renderer(3)
+    path = write_mp4(r, tmp_path / "a.mp4", seconds_per_period=1.0, hold_last=3.0)
+    reader = imageio_ffmpeg.read_frames(str(path))
+    meta = reader.__next__()
+    frames = sum(1 for _ in reader)
+    assert frames == 5
+    assert meta["duration"] == pytest.approx(5.0, abs=0.05)
+    # half a second per period, hold 2 s: tick 0.5 s -> 1 frame per period, 4 for the hold
+    path = write_mp4(r, tmp_path / "b.mp4", seconds_per_period=0.5, hold_last=2.0)
+    reader = imageio_ffmpeg.read_frames(str(path))
+    meta = reader.__next__()
+    assert sum(1 for _ in reader) == 2 + 4
+    assert meta["duration"] == pytest.approx(3.0, abs=0.05)
+    r.close()
+
+
+def test_renderers_of_one_geometry_share_the_label_raster():
+    from mapdrift.render.raster import LabelRaster, fit_transform
+
+    g = _layer()
+    a = FrameRenderer(g, _codes(len(g), 2), sequential(4), list("abcd"), ["1", "2"], size=SIZE)
+    b = FrameRenderer(g, _codes(len(g), 2, 1), sequential(4), list("abcd"), ["1", "2"], size=SIZE)
+    assert a.raster.label is b.raster.label  # built once, shared
+    assert not np.array_equal(a.frame(0), b.frame(0))  # each renderer keeps its own codes
+    # another geometry object (even with equal shapes) is rasterised anew
+    c = FrameRenderer(
+        _layer(), _codes(len(g), 2), sequential(4), list("abcd"), ["1", "2"], size=SIZE
+    )
+    assert c.raster.label is not a.raster.label
+    np.testing.assert_array_equal(c.raster.label, a.raster.label)
+    tr = fit_transform(tuple(g.total_bounds), 100, 60)
+    assert LabelRaster.build(g, tr, cache=False).label is not LabelRaster.build(g, tr).label

@@ -122,3 +122,28 @@ def test_animate_command_on_demo_data(runner, tmp_path):
         app, ["animate", "--config", str(DEMO / "demo.toml"), "--out", str(tmp_path / "x.avi")]
     )
     assert res.exit_code == 2 and ".gif, .mp4" in res.output
+
+
+def test_small_multiples_panels_show_the_class_colours_from_the_label_raster(tmp_path):
+    # Our own check (common practice, no source): every panel of the PNG shows, at each unit's
+    # interior point, exactly that period's class colour.
+    from PIL import Image
+
+    from mapdrift.colour import hex_to_rgb8
+
+    g = _layer()
+    codes = np.random.default_rng(4).integers(0, 4, size=(len(g), 3))
+    cols = sequential(4)
+    png, _ = small_multiples(
+        g, codes, cols, list("abcd"), ["2010", "2011", "2012"], tmp_path / "sm", title="Grid"
+    )
+    img = np.asarray(Image.open(png).convert("RGB"))
+    hits = {tuple(hex_to_rgb8(c)): 0 for c in cols}
+    flat = img.reshape(-1, 3)
+    for rgb in hits:
+        hits[rgb] = int((flat == rgb).all(axis=1).sum())
+    want = np.bincount(codes.ravel(), minlength=4)
+    # each class's pixel count follows its unit count across the three panels
+    got = np.array(list(hits.values()), dtype=float)
+    assert (got > 0).all() == (want > 0).all()
+    assert np.corrcoef(got, want)[0, 1] > 0.95

@@ -1,8 +1,18 @@
-"""``load_panel``'s work: read the layer and table, reshape, match IDs, validate, build the Panel.
+"""``load_panel``'s work, as a one-way chain of small stages.
 
-Kept apart from :mod:`mapdrift.panel` (the data model) so that importing the model stays light.
-Every step returns findings; error-level findings raise :class:`~mapdrift.errors.InputError`
-with the first error's message.
+::
+
+    read (layer; table with its dialect sniffed once) -> long frame (id, period text, value | counts)
+      -> ids (normalise, pad: vectorised, one pass)  -> periods (parsed once per distinct label)
+      -> numbers (markers, sentinels, decimal marks) -> duplicates -> crosswalk -> match to layer
+      -> rates (counts, bases, small-base flags)     -> Panel (aligned arrays, findings)
+
+Each stage is a function from one plain value to the next that appends its findings to one list;
+none calls back up the chain, and none loops in Python over table rows or units (pandas/numpy
+column operations and hash joins only), so loading is O(n log n) in the number of rows.
+:func:`load` enters the chain from files; :func:`load_frames` (``Panel.from_frames``) enters it at
+the long-frame stage from a GeoDataFrame and a DataFrame. Error-level findings raise
+:class:`~mapdrift.errors.InputError` with the first error's message.
 """
 
 from __future__ import annotations
@@ -11,43 +21,94 @@ import logging
 import re
 import warnings
 from collections.abc import Sequence
+from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from mapdrift.cells import read_table, to_numbers
+from mapdrift.cells import decide_decimal, decimal_evidence, distinct, read_table, to_numbers
 from mapdrift.errors import ConfigError, InputError
 from mapdrift.findings import Finding, examples, plural, raise_errors
 from mapdrift.geo import prepare_geometry, read_layer
-from mapdrift.ids import closest, normalise_ids, pad_ids
+from mapdrift.ids import closest, locate, normalise, pad_ids, zfill
 from mapdrift.panel import InputSpec, Panel, PanelMeta
-from mapdrift.periods import find_year, missing_periods, parse_periods
+from mapdrift.periods import find_year, read_periods, spacing
 
 if TYPE_CHECKING:
+    import geopandas as gpd
     import pandas as pd
 
-__all__ = ["detect_zero_block", "load"]
+__all__ = ["detect_zero_block", "load", "load_frames"]
 
 log = logging.getLogger(__name__)
 _ID_GUESSES = ("unit_id", "id", "geoid", "fid_code", "code")
 _NAME_GUESSES = ("name", "unit_name", "label")
+_ROLES = ("value", "num", "den")
 
 
 def _units_with(mask: np.ndarray, units: Sequence[str]) -> tuple[str, ...]:
     """IDs of the units with any True cell in a ``[units, periods]`` mask (for findings)."""
-    return tuple(units[i] for i in np.flatnonzero(mask.any(axis=1)))
+    return tuple(np.asarray(units, dtype=object)[mask.any(axis=1)].tolist())
 
 
-def _column(df: pd.DataFrame, col: str, where: Path, flag: str) -> str:
+# -- the values handed from stage to stage ----------------------------------------------------
+@dataclass(frozen=True)
+class Layer:
+    """The polygon layer read: geometry (map CRS), normalised IDs, names, where it came from."""
+
+    gdf: gpd.GeoDataFrame
+    ids: np.ndarray
+    names: tuple[str, ...]
+    id_col: str
+    where: str
+
+
+@dataclass(frozen=True)
+class Table:
+    """The values as read: a frame of text (or typed) cells and the name findings use for it."""
+
+    df: pd.DataFrame
+    where: str
+    path: Path | None
+    id_col: str
+    sep: str = ","
+    from_layer: bool = False
+    wide_append: bool = False  # wide tables side by side: drop the blank fill rows (drop_fill)
+
+
+@dataclass(frozen=True)
+class Long:
+    """One row per (unit, period): ``id``, ``period_text`` and value columns ``roles``.
+
+    After the ids stage the frame holds ``uid`` (each row's position in ``ids``, the distinct
+    normalised IDs) instead of ``id``: string work is done once per distinct ID, not per row.
+    After the periods stage, ``period`` holds each row's column in ``periods``.
+    """
+
+    frame: pd.DataFrame
+    roles: tuple[str, ...]
+    columns: dict[str, str]  # period text -> the wide column it came from (for messages)
+    periods: tuple[Any, ...] = ()
+    labels: tuple[str, ...] = ()
+    ids: np.ndarray | None = None
+    period_column: str | None = None  # long tables: the period column (for messages)
+
+    def row_ids(self) -> np.ndarray:
+        """Each row's ID (object array)."""
+        assert self.ids is not None
+        return self.ids[self.frame["uid"].to_numpy()]
+
+
+def _column(df: pd.DataFrame, col: str, where: Any, flag: str) -> str:
     if col in df.columns:
         return col
-    lower = {c.lower(): c for c in df.columns}
+    lower = {str(c).lower(): c for c in df.columns}
     if col.lower() in lower:
         return lower[col.lower()]
     import difflib
 
-    hint = difflib.get_close_matches(col, list(df.columns), n=1)
+    hint = difflib.get_close_matches(col, [str(c) for c in df.columns], n=1)
     cols = examples([c for c in df.columns if c != "geometry"], 8)
     raise InputError(
         f"{where}: no column {col!r} ({flag}); "
@@ -57,63 +118,112 @@ def _column(df: pd.DataFrame, col: str, where: Path, flag: str) -> str:
 
 
 def _guess(df: pd.DataFrame, guesses: tuple[str, ...]) -> str | None:
-    lower = {c.lower(): c for c in df.columns}
+    lower = {str(c).lower(): c for c in df.columns}
     for g in guesses:
         if g in lower:
             return lower[g]
     return None
 
 
-def _wide_columns(df: pd.DataFrame, pattern: str, where: Path, flag: str) -> dict[str, str]:
-    """Columns matching a glob pattern -> the period text (the part matched by ``*``)."""
-    if "*" not in pattern:
-        raise ConfigError(f"{flag} {pattern!r} must contain '*' where the period is, e.g. 'rate_*'")
-    rx = re.compile("^" + re.escape(pattern).replace(r"\*", "(.+)") + "$")
-    out = {}
-    for c in df.columns:
-        m = rx.match(c)
-        if m:
-            out[c] = m.group(1)
-    if not out:
-        raise InputError(
-            f"{where}: no column matches {flag} {pattern!r}; columns are {examples(list(df.columns), 8)}"
-        )
-    return out
-
-
-def _auto_year_columns(df: pd.DataFrame, skip: set[str], where: Path) -> dict[str, str]:
-    cols = {c: find_year(c) for c in df.columns if c not in skip}
-    cols = {c: y for c, y in cols.items() if y is not None}
-    if not cols:
-        raise InputError(
-            f"{where}: found no period columns; pass --period COL --value COL for a long table or "
-            "--columns 'PATTERN_*' for a wide one"
-        )
-    stems = {c.replace(y, "*") for c, y in cols.items()}
-    if len(stems) > 1:
-        raise InputError(
-            f"{where}: columns carrying a year have several patterns ({examples(sorted(stems))}); "
-            "choose one with --columns, or --numerator/--denominator patterns for counts"
-        )
-    return cols
-
-
-def _long_from_wide(
-    df: pd.DataFrame, id_col: str, patterns: dict[str, str], where: Path, flags: dict[str, str]
-) -> pd.DataFrame:
-    """Stack wide columns into long rows: id, period_text, one column per role."""
+def _matching_column(df: pd.DataFrame, ids: np.ndarray, skip: set[str]) -> tuple[str, float] | None:
+    """The column of ``df`` whose distinct values best match ``ids`` (share of them found)."""
     import pandas as pd
 
-    parts = {}
-    for role, pattern in patterns.items():
-        cols = _wide_columns(df, pattern, where, flags[role]) if pattern != "__auto__" else None
-        if cols is None:
-            cols = _auto_year_columns(df, {id_col}, where)
-        m = df[[id_col, *cols]].melt(id_vars=id_col, var_name="_col", value_name=role)
-        m["period_text"] = m["_col"].map(cols)
-        parts[role] = m.drop(columns="_col").set_index([id_col, "period_text"])
-    out = pd.concat(parts.values(), axis=1, join="outer").reset_index()
-    return out.rename(columns={id_col: "id"}).fillna("")
+    best: tuple[str, float] | None = None
+    target = pd.Index(pd.unique(ids))
+    for c in df.columns:
+        if c in skip or c == "geometry":
+            continue
+        vals = pd.unique(normalise(df[c]))
+        if not len(vals):
+            continue
+        share = float((target.get_indexer(vals) >= 0).mean())
+        if share >= 0.5 and (best is None or share > best[1]):
+            best = (str(c), share)
+    return best
+
+
+# -- stage 1: read ------------------------------------------------------------------------------
+def layer_stage(
+    gdf: gpd.GeoDataFrame, spec: InputSpec, where: Any, findings: list[Finding]
+) -> Layer:
+    """IDs (normalised, unique, non-blank), names, and the geometry checked and projected."""
+    import pandas as pd
+
+    id_col = spec.id or _guess(gdf, _ID_GUESSES)
+    if id_col is None:
+        raise InputError(
+            f"{where}: which column holds the unit IDs? pass --id; columns are "
+            f"{examples([c for c in gdf.columns if c != 'geometry'], 8)}"
+        )
+    id_col = _column(gdf, id_col, where, "--id")
+    ids = normalise(gdf[id_col])
+    if spec.id_width:
+        digit = pd.Series(ids, dtype=object).str.fullmatch(r"\d+").fillna(False).to_numpy(bool)
+        ids[digit] = zfill(ids[digit], spec.id_width)
+    blank = np.flatnonzero(ids == "")
+    if blank.size:
+        raise InputError(
+            f"{where}: {len(blank)} features have no ID in {id_col!r} (rows {examples(blank.tolist())}); "
+            "every polygon needs an ID"
+        )
+    dup = pd.Series(ids).duplicated(keep=False).to_numpy()
+    if dup.any():
+        dups = pd.unique(ids[dup]).tolist()
+        raise InputError(
+            f"{where}: {len(dups)} IDs in {id_col!r} occur more than once (e.g. {examples(dups)}); "
+            "each polygon needs its own ID (dissolve or renumber the duplicates)"
+        )
+    name_col = spec.name or _guess(gdf, _NAME_GUESSES)
+    if name_col is not None:
+        name_col = _column(gdf, name_col, where, "--name")
+        raw = gdf[name_col]
+        text = raw.astype(object).where(raw.notna(), "").astype(str).to_numpy(dtype=object)
+        text = np.where((text == "") | (text == "nan"), ids, text)
+        names = tuple(text.tolist())
+    else:
+        names = tuple(ids.tolist())
+    path = where if isinstance(where, Path) else Path(str(where))
+    gdf, geo_findings = prepare_geometry(
+        gdf, ids.tolist(), path, crs=spec.crs, map_crs=spec.map_crs
+    )
+    findings += geo_findings
+    return Layer(gdf, ids, names, id_col, str(where))
+
+
+def table_stage(spec: InputSpec, layer: Layer, path: Path | None) -> Table:
+    """The values table read from ``path`` (plus appended tables), or the layer's own columns."""
+    if path is None:
+        df = layer.gdf.drop(columns=layer.gdf.geometry.name)
+        df[layer.id_col] = layer.ids
+        return Table(df, Path(layer.where).name, None, layer.id_col, from_layer=True)
+    df = read_table(path)
+    sep = df.attrs.get("sep", ",")
+    wide_id = None
+    if spec.append:
+        if not spec.period:  # wide: a new release may hold only the new periods' columns
+            wide_id = _table_id(df, spec, layer, path)
+        df = _append_tables(df, path, spec.append, wide_id=wide_id)
+    where = " + ".join(p.name for p in (path, *spec.append))
+    t_id = _table_id(df, spec, layer, path)
+    return Table(df, where, path, t_id, sep, wide_append=wide_id is not None)
+
+
+def _table_id(df: pd.DataFrame, spec: InputSpec, layer: Layer, where: Any) -> str:
+    """The table's ID column; when it is missing, suggest the column whose values match."""
+    want = spec.table_id or layer.id_col
+    flag = "--table-id" if spec.table_id else "--id"
+    try:
+        return _column(df, want, where, flag)
+    except InputError as exc:
+        found = _matching_column(df, layer.ids, set())
+        if found is None:
+            raise
+        col, share = found
+        raise InputError(
+            f"{where}: no column {want!r} ({flag}); column {col!r} holds the layer's IDs "
+            f"({share:.0%} of its values match); pass --table-id {col}"
+        ) from exc
 
 
 def _append_tables(
@@ -124,7 +234,7 @@ def _append_tables(
     Long tables need the same columns. Wide tables (``wide_id``, the ID column, given) may hold
     only the ID and the new periods' columns, as a new release usually does: they are stacked
     with the union of columns, and the blank cells that only fill the other tables' columns are
-    dropped once the rows are long (:func:`_drop_fill`).
+    dropped once the rows are long (:func:`drop_fill`).
     """
     import pandas as pd
 
@@ -145,16 +255,598 @@ def _append_tables(
             )
         parts.append(extra[list(df.columns)])
     out = pd.concat(parts, ignore_index=True)
-    return out.fillna("") if wide_id is not None else out
+    if wide_id is not None:
+        out = out.fillna("")
+    out.attrs["sep"] = df.attrs.get("sep", ",")
+    return out
 
 
-def _drop_fill(long: pd.DataFrame, roles: list[str]) -> pd.DataFrame:
+def drop_fill(long: Long) -> Long:
     """Rows of side-by-side wide tables whose cells are all blank only because another table
     holds that (unit, period): dropped, keeping a blank row where no table has a value."""
-    blank = (long[roles] == "").all(axis=1)
-    key = long[["id", "period_text"]].assign(_blank=blank).sort_values("_blank", kind="stable")
-    filler = key["_blank"] & key.duplicated(["id", "period_text"], keep="first")
-    return long.drop(index=key.index[filler.to_numpy()])
+    f = long.frame
+    blank = (f[list(long.roles)] == "").all(axis=1)
+    key = f[["uid", "period_text"]].assign(_blank=blank).sort_values("_blank", kind="stable")
+    filler = key["_blank"] & key.duplicated(["uid", "period_text"], keep="first")
+    return replace(long, frame=f.drop(index=key.index[filler.to_numpy()]))
+
+
+# -- stage 2: long frame ------------------------------------------------------------------------
+def _roles(spec: InputSpec) -> dict[str, str]:
+    if spec.numerator or spec.denominator:
+        if not (spec.numerator and spec.denominator):
+            raise ConfigError("rates need both --numerator and --denominator")
+        if spec.value:
+            raise ConfigError("give either --value or --numerator/--denominator, not both")
+        return {"num": spec.numerator, "den": spec.denominator}
+    return {}
+
+
+_FLAGS = {"value": "--columns", "num": "--numerator", "den": "--denominator"}
+
+
+def _pattern(pattern: str, flag: str) -> re.Pattern[str]:
+    """A ``--columns`` pattern: a regex with one capture group (``PO(\\d+)``) or a glob (``rate_*``)."""
+    if "(" in pattern:
+        try:
+            rx = re.compile(pattern)
+        except re.error as exc:
+            raise ConfigError(
+                f"{flag} {pattern!r} is not a valid regular expression ({exc})"
+            ) from None
+        if rx.groups != 1:
+            raise ConfigError(
+                f"{flag} {pattern!r} needs exactly one capture group around the period, e.g. 'PO(\\d+)'"
+            )
+        return rx
+    if "*" not in pattern:
+        raise ConfigError(
+            f"{flag} {pattern!r} must contain '*' where the period is (e.g. 'rate_*'), or a regex "
+            "capture group (e.g. 'rate_(\\d{4})')"
+        )
+    return re.compile(re.escape(pattern).replace(r"\*", "(.+)"))
+
+
+def _wide_columns(df: pd.DataFrame, pattern: str, where: str, flag: str) -> dict[str, str]:
+    """Columns matching a pattern -> the period text (the captured part)."""
+    rx = _pattern(pattern, flag)
+    out = {}
+    for c in df.columns:
+        m = rx.fullmatch(str(c))
+        if m:
+            out[str(c)] = m.group(1)
+    if not out:
+        raise InputError(
+            f"{where}: no column matches {flag} {pattern!r}; columns are {examples(list(df.columns), 8)}"
+        )
+    return out
+
+
+def _auto_year_columns(df: pd.DataFrame, skip: set[str], where: str) -> dict[str, str]:
+    cols = {str(c): find_year(str(c)) for c in df.columns if c not in skip and c != "geometry"}
+    found = {c: y for c, y in cols.items() if y is not None}
+    if not found:
+        raise InputError(
+            f"{where}: found no period columns; pass --period COL --value COL for a long table or "
+            "--columns 'PATTERN_*' (or a regex such as 'PO(\\d+)') for a wide one"
+        )
+    stems = {c.replace(y, "*") for c, y in found.items()}
+    if len(stems) > 1:
+        raise InputError(
+            f"{where}: columns carrying a year have several patterns ({examples(sorted(stems))}); "
+            "choose one with --columns, or --numerator/--denominator patterns for counts"
+        )
+    return found
+
+
+def long_stage(table: Table, spec: InputSpec) -> Long:
+    """The table as long rows: ``id``, ``period_text`` and one column per value role."""
+    import pandas as pd
+
+    df, where = table.df, table.where
+    roles = _roles(spec)
+    if spec.period:
+        if not roles and not spec.value:
+            raise ConfigError(
+                "a long table needs --value COL (or --numerator and --denominator) with --period"
+            )
+        p_col = _column(df, spec.period, where, "--period")
+        cols = {"value": spec.value} if spec.value else roles
+        cols = {
+            r: _column(df, c, where, "--value" if r == "value" else _FLAGS[r])
+            for r, c in cols.items()
+        }
+        long = df[[table.id_col, p_col, *cols.values()]].set_axis(
+            ["id", "period_text", *cols.keys()], axis=1
+        )
+        return Long(long.reset_index(drop=True), tuple(cols), {}, period_column=str(p_col))
+    patterns = {"value": spec.columns} if spec.columns else (dict(roles) or {"value": ""})
+    parts = []
+    col_of: dict[str, str] = {}
+    for role, pattern in patterns.items():
+        if pattern:
+            cols = _wide_columns(df, pattern, where, _FLAGS[role])
+        else:
+            cols = _auto_year_columns(df, {table.id_col}, where)
+        for c, t in cols.items():
+            col_of.setdefault(t, c)
+        n = len(df)
+        block = pd.DataFrame(
+            {
+                "id": pd.concat([df[table.id_col]] * len(cols), ignore_index=True),
+                "period_text": np.repeat(np.array(list(cols.values()), dtype=object), n),
+                role: pd.concat([df[c] for c in cols], ignore_index=True),
+            }
+        )
+        parts.append(block.set_index(["id", "period_text"]) if len(patterns) > 1 else block)
+    if len(parts) == 1:
+        long = parts[0]
+    else:
+        long = pd.concat(parts, axis=1, join="outer").reset_index()
+        for r in patterns:
+            long[r] = long[r].where(long[r].notna(), "")
+    return Long(long, tuple(patterns), col_of)
+
+
+# -- stage 3: ids -------------------------------------------------------------------------------
+def ids_stage(
+    long: Long, layer: Layer, spec: InputSpec, where: str, pad: bool, findings: list[Finding]
+) -> Long:
+    """Normalise the table's IDs, count rows without one, zero-pad to the layer's width.
+
+    The work is done once per distinct ID; rows keep an integer code (``uid``).
+    """
+    import pandas as pd
+
+    f = long.frame
+    codes, uniq = pd.factorize(f["id"], use_na_sentinel=True)
+    ids = normalise(pd.Series(np.asarray(uniq, dtype=object)))
+    if pad:
+        ids, pad_findings = pad_ids(ids, layer.ids, width=spec.id_width, where=where)
+        findings += pad_findings
+    # IDs equal after normalising ("6019", "6019.0") share one code
+    codes2, distinct = pd.factorize(pd.Series(np.append(ids, ""), dtype=object))
+    uid = np.where(codes >= 0, codes2[np.maximum(codes, 0)], codes2[-1])
+    distinct = np.asarray(distinct, dtype=object)
+    blank = distinct[uid] == ""
+    if blank.any():  # rows that cannot be placed are counted, never dropped silently
+        findings.append(
+            Finding(
+                "warning",
+                "ids-blank-rows",
+                f"{where}: {plural(int(blank.sum()), 'row')} with no unit ID left out",
+            )
+        )
+        f, uid = f[~blank], uid[~blank]
+    f = f.drop(columns="id").assign(uid=uid)
+    return replace(long, frame=f, ids=distinct)
+
+
+# -- stage 4: periods ---------------------------------------------------------------------------
+def periods_stage(long: Long, spec: InputSpec, where: str, findings: list[Finding]) -> Long:
+    """Parse each distinct period label once; sort the periods; report gaps on the one rule."""
+    import pandas as pd
+
+    f = long.frame
+    codes, uniq = pd.factorize(f["period_text"], use_na_sentinel=True)
+    text = pd.Series(np.asarray(uniq, dtype=object)).astype(str).str.strip().to_numpy(dtype=object)
+    blank = np.append(text == "", True)[codes]  # code -1 (a missing cell) is blank too
+    if blank.any():
+        findings.append(
+            Finding(
+                "warning",
+                "periods-blank-rows",
+                f"{where}: {plural(int(blank.sum()), 'row')} with no period left out",
+            )
+        )
+        f, codes = f[~blank], codes[~blank]
+    hint = None
+    if spec.columns and "(" not in spec.columns and "*" in spec.columns:
+        head, _, tail = spec.columns.partition("*")
+        hint = head + r"(\d+)" + tail
+    label = f"{where} column {long.period_column!r}" if long.period_column else f"{where} periods"
+    parsed = read_periods(
+        [t for t in text if t != ""], where=label, columns=long.columns or None, hint=hint
+    )
+    findings += parsed.findings
+    periods = tuple(sorted(set(parsed.mapping.values())))
+    pos = {p: j for j, p in enumerate(periods)}
+    col_of_uniq = np.array(
+        [pos[parsed.mapping[t]] if t != "" else -1 for t in text], dtype=np.int64
+    )
+    f = f.assign(period=col_of_uniq[codes])
+    labels = tuple(parsed.labels.get(p, str(p)) for p in periods)
+    sp = spacing(periods)
+    if sp.gaps:
+        findings.append(
+            Finding(
+                "warning",
+                "periods-gap",
+                f"{where}: the series has gaps: no data for {examples(sp.gaps)}; changes across a gap "
+                "are not bridged unless asked",
+            )
+        )
+    elif not sp.regular and len(periods) >= 3:
+        findings.append(
+            Finding(
+                "note",
+                "periods-irregular",
+                f"{where}: periods are unevenly spaced ({examples(labels)}); each consecutive pair "
+                "counts as one step",
+            )
+        )
+    return replace(long, frame=f, periods=periods, labels=labels)
+
+
+# -- stage 5: numbers ---------------------------------------------------------------------------
+def numbers_stage(long: Long, spec: InputSpec, table: Table, findings: list[Finding]) -> Long:
+    """Cells to floats with one decimal mark for the whole file (decided from its cells)."""
+    f = long.frame
+    label = {
+        "value": spec.value or spec.columns or "value",
+        "num": spec.numerator,
+        "den": spec.denominator,
+    }
+    factorised = {r: distinct(f[r]) for r in long.roles}  # each column factorised once
+    evidence = decimal_evidence({str(label[r]): factorised[r] for r in long.roles})
+    decimal = decide_decimal(evidence, where=table.where, sep=table.sep, given=spec.decimal)
+    if decimal == "," and spec.decimal is None:
+        findings.append(
+            Finding(
+                "note",
+                "values-decimal-comma",
+                f"{table.where}: numbers are written with decimal commas (e.g. "
+                f"{examples((evidence.first('comma_decimal') or evidence.first('point_thousands') or ('', []))[1], 3, total=False)}); "
+                "read as 5,4 = 5.4 (pass --decimal . if that is wrong)",
+            )
+        )
+    ids = long.row_ids()
+    new = {}
+    for r in long.roles:
+        nums, fs = to_numbers(
+            factorised[r],
+            where=table.where,
+            column=str(label[r]),
+            missing_codes=spec.missing,
+            ids=ids,
+            decimal=decimal,
+            raw=f[r],
+        )
+        new[r] = nums
+        findings += fs
+    return replace(long, frame=f.assign(**new))
+
+
+# -- stage 6: duplicates ------------------------------------------------------------------------
+def duplicates_stage(long: Long, spec: InputSpec, table: Table, findings: list[Finding]) -> Long:
+    """Exact repeats of a row are dropped and counted; conflicting rows stop the run unless
+    ``--duplicates`` says how to combine them."""
+    import pandas as pd
+
+    f = long.frame
+    key = f["uid"].to_numpy().astype(np.int64) * max(len(long.periods), 1) + f["period"].to_numpy()
+    if not pd.Series(key).duplicated().any():
+        return long
+    keyed = pd.DataFrame({"key": key, **{r: f[r].to_numpy() for r in long.roles}})
+    exact = keyed.duplicated(keep="first").to_numpy()
+    if exact.any():
+        ex = examples(
+            [
+                f"{a}/{long.labels[b]}"
+                for a, b in zip(long.row_ids()[exact][:5], f["period"].to_numpy()[exact][:5])
+            ],
+            total=False,
+        )
+        findings.append(
+            Finding(
+                "note",
+                "values-duplicate-rows",
+                f"{table.where}: {plural(int(exact.sum()), 'row')} repeated exactly (same unit, period and "
+                f"values; e.g. {ex}) counted once",
+            )
+        )
+        f, key = f[~exact], key[~exact]
+    dup = pd.Series(key).duplicated(keep=False).to_numpy()
+    if not dup.any():
+        return replace(long, frame=f)
+    pairs = f.loc[dup, ["uid", "period"]].drop_duplicates()
+    pairs = pairs.assign(id=long.ids[pairs["uid"].to_numpy()])[["id", "period"]]
+    shown = [f"{a}/{long.labels[b]}" for a, b in pairs.head(5).itertuples(index=False)]
+    ex = examples(shown, total=False) + (f", ... ({len(pairs)} in all)" if len(pairs) > 5 else "")
+    if spec.duplicates == "error":
+        raise InputError(
+            f"{table.path or table.where}: {plural(len(pairs), '(unit, period) pair')} with more than one row (e.g. {ex}); "
+            "fix the table or pass --duplicates first|mean|sum"
+        )
+    if spec.duplicates not in ("first", "mean", "sum"):
+        raise ConfigError(
+            f"--duplicates {spec.duplicates!r} must be one of error, first, mean, sum"
+        )
+    agg = {r: spec.duplicates for r in long.roles}
+    g = f.groupby(["uid", "period"], as_index=False, sort=False).agg(agg | {"period_text": "first"})
+    findings.append(
+        Finding(
+            "warning",
+            "values-duplicates-combined",
+            f"{table.where}: {len(pairs)} (unit, period) pairs had several conflicting rows (e.g. {ex}); "
+            f"combined by {spec.duplicates} (--duplicates)",
+            tuple(pd.unique(pairs["id"].to_numpy()).tolist()),
+        )
+    )
+    return replace(long, frame=g)
+
+
+# -- stage 7: crosswalk (optional) ----------------------------------------------------------------
+def crosswalk_stage(
+    long: Long, layer: Layer, spec: InputSpec, counts: bool, findings: list[Finding]
+) -> Long:
+    """Move the rows onto the layer's boundary vintage (see :mod:`mapdrift.crosswalk`)."""
+    if spec.crosswalk is None:
+        return long
+    import pandas as pd
+
+    from mapdrift.crosswalk import apply_crosswalk, read_crosswalk
+
+    xw = read_crosswalk(spec.crosswalk)
+    assert long.ids is not None
+    xw["from"], f_from = pad_ids(
+        xw["from"].to_numpy(object), long.ids, width=None, where=spec.crosswalk.name
+    )
+    xw["to"], f_to = pad_ids(
+        xw["to"].to_numpy(object), layer.ids, width=spec.id_width, where=spec.crosswalk.name
+    )
+    frame = long.frame.assign(id=long.row_ids()).drop(columns="uid")
+    f, xf = apply_crosswalk(frame, xw, list(long.roles), counts=counts, where=spec.crosswalk.name)
+    findings += f_from + f_to + xf
+    uid, ids = pd.factorize(f["id"].to_numpy(object))
+    return replace(
+        long, frame=f.drop(columns="id").assign(uid=uid), ids=np.asarray(ids, dtype=object)
+    )
+
+
+# -- stage 8: match to the layer ----------------------------------------------------------------
+def match_stage(
+    long: Long, layer: Layer, table: Table, findings: list[Finding]
+) -> tuple[np.ndarray, np.ndarray, Long]:
+    """Row of each table row in the layer (one hash join); unmatched rows and units reported."""
+
+    f = long.frame
+    assert long.ids is not None
+    uid = f["uid"].to_numpy()
+    present = np.zeros(len(long.ids), dtype=bool)
+    present[uid] = True  # distinct IDs that still have rows
+    where_in_layer = locate(long.ids, layer.ids)
+    rows = where_in_layer[uid]
+    n = len(layer.ids)
+    matched = np.zeros(n, dtype=bool)
+    matched[where_in_layer[present & (where_in_layer >= 0)]] = True
+    n_matched = int(matched.sum())
+    table_ids = long.ids[present]
+    only_mask = rows < 0
+    table_only = long.ids[present & (where_in_layer < 0)].tolist()
+    if not table.from_layer and n_matched < 0.5 * n:
+        hints = closest(table_only, layer.ids.tolist())
+        hint = (
+            "; closest layer IDs: " + ", ".join(f"{a} -> {b}?" for a, b in hints.items())
+            if hints
+            else ""
+        )
+        other = _matching_column(table.df, layer.ids, {table.id_col})
+        if other is not None:
+            hint += f"; column {other[0]!r} of the table matches {other[1]:.0%}: pass --table-id {other[0]}"
+        raise InputError(
+            f"{table.path or table.where}: only {n_matched} of {n} layer units match a table ID (column "
+            f"{table.id_col!r}: e.g. {examples(table_ids[:5].tolist())}; layer {layer.id_col!r}: e.g. "
+            f"{examples(layer.ids[:5].tolist())}){hint}; check --id/--table-id, or --id-width if leading zeros were lost"
+        )
+    if table_only:
+        unmatched_layer = layer.ids[~matched]
+        hints = closest(
+            table_only, (unmatched_layer if len(unmatched_layer) else layer.ids).tolist(), n=5
+        )
+        hint = (
+            " (closest layer IDs: " + ", ".join(f"{a} -> {b}?" for a, b in hints.items()) + ")"
+            if hints
+            else ""
+        )
+        findings.append(
+            Finding(
+                "warning",
+                "ids-table-only",
+                f"{table.where}: {plural(len(table_only), 'table ID')} ({plural(int(only_mask.sum()), 'row')}) with no "
+                f"polygon, not mapped: {examples(table_only, total=False)}{hint}; check for a "
+                "boundary vintage change or typos",
+                tuple(str(u) for u in table_only),
+            )
+        )
+        f, rows = f[~only_mask], rows[~only_mask]
+    no_rows = layer.ids[~matched]
+    if len(no_rows):
+        findings.append(
+            Finding(
+                "warning",
+                "units-no-values",
+                f"{len(no_rows) / n:.0%} of layer units have no row in the table ({plural(len(no_rows), 'unit')} "
+                f"of {n:,}, e.g. {examples(no_rows.tolist(), total=False)}); they are kept and shown as no data",
+                tuple(no_rows.tolist()),
+            )
+        )
+    return rows, f["period"].to_numpy(), replace(long, frame=f)
+
+
+# -- stage 9: arrays, rates, value checks, Panel ------------------------------------------------
+def _grid(shape: tuple[int, int], rows: np.ndarray, cols: np.ndarray, x: np.ndarray) -> np.ndarray:
+    g = np.full(shape, np.nan)
+    g[rows, cols] = np.asarray(x, dtype=np.float64)
+    return g
+
+
+def _value_checks(
+    values: np.ndarray,
+    units: np.ndarray,
+    labels: tuple[str, ...],
+    denominator: np.ndarray | None,
+    spec: InputSpec,
+    findings: list[Finding],
+) -> None:
+    neg = values < 0
+    if neg.any():
+        units_neg = _units_with(neg, units)
+        findings.append(
+            Finding(
+                "warning",
+                "values-negative",
+                f"{int(neg.sum())} values are negative (units {examples(units_neg)}); rates should not be",
+                units_neg,
+            )
+        )
+    zf = detect_zero_block(
+        values, tuple(units.tolist()), labels, denominator=denominator, per=spec.per
+    )
+    if zf is not None:
+        findings.append(zf)
+    present = np.isfinite(values)
+    partial = present.any(axis=1) & ~present.all(axis=1)
+    if partial.any():
+        units_p = tuple(units[partial].tolist())
+        findings.append(
+            Finding(
+                "note",
+                "values-missing",
+                f"{len(units_p)} units miss values in some periods ({int((~present[partial]).sum())} "
+                f"unit-periods, e.g. {examples(units_p)}); they are shown as no data there",
+                units_p,
+            )
+        )
+    all_missing = [labels[j] for j in np.flatnonzero(~present.any(axis=0))]
+    if all_missing:
+        findings.append(
+            Finding(
+                "warning", "periods-empty", f"periods with no value at all: {examples(all_missing)}"
+            )
+        )
+
+
+class _Clock:
+    """Stage timings for the debug log (the run's own step timings cover the whole load)."""
+
+    def __init__(self) -> None:
+        import time
+
+        self._now = time.perf_counter
+        self._t = self._now()
+
+    def lap(self, stage: str, value: Any) -> Any:
+        t = self._now()
+        log.debug("load stage %s: %.3f s", stage, t - self._t)
+        self._t = t
+        return value
+
+
+def _words(col: str | None) -> str:
+    """Column names (or patterns) read as words in titles: ``rate_*`` -> ``rate``,
+    ``HR(\\d+)`` -> ``HR``."""
+    text = re.sub(r"\(.*?\)", "", str(col)) if "(" in str(col) else str(col)
+    return text.replace("_", " ").replace("*", "").strip() or str(col)
+
+
+def _chain(
+    layer: Layer, table: Table, spec: InputSpec, findings: list[Finding], inputs: tuple[Path, ...]
+) -> Panel:
+    """Everything after reading: long frame -> ids -> periods -> numbers -> ... -> Panel.
+
+    Each stage's time is logged at DEBUG level (``mapdrift -v``-style logging shows them).
+    """
+    clock = _Clock()
+    long = clock.lap("long frame", long_stage(table, spec))
+    long = clock.lap(
+        "ids", ids_stage(long, layer, spec, table.where, not table.from_layer, findings)
+    )
+    if table.wide_append:
+        long = drop_fill(long)
+    long = clock.lap("periods", periods_stage(long, spec, table.where, findings))
+    long = clock.lap("numbers", numbers_stage(long, spec, table, findings))
+    long = clock.lap("duplicates", duplicates_stage(long, spec, table, findings))
+    counts = "num" in long.roles
+    long = clock.lap("crosswalk", crosswalk_stage(long, layer, spec, counts, findings))
+    rows, cols, long = clock.lap("match", match_stage(long, layer, table, findings))
+
+    shape = (len(layer.ids), len(long.periods))
+    numerator = denominator = None
+    if counts:
+        numerator = _grid(shape, rows, cols, long.frame["num"].to_numpy())
+        denominator = _grid(shape, rows, cols, long.frame["den"].to_numpy())
+        values, rate_findings = _rates(numerator, denominator, spec, layer.ids)
+        findings += rate_findings
+    else:
+        values = _grid(shape, rows, cols, long.frame["value"].to_numpy())
+    _value_checks(values, layer.ids, long.labels, denominator, spec, findings)
+    if not np.isfinite(values).any():
+        what = "rates" if counts else f"column {str(spec.value or spec.columns or 'value')!r}"
+        raise InputError(
+            f"{table.path or table.where}: no usable number in {what}: every cell is missing or "
+            "text (see the values-not-numeric counts with `mapdrift check --json`); check "
+            "--value/--columns (and --decimal if the file writes 5,3)"
+        )
+    raise_errors(findings, InputError)
+
+    variable = spec.variable or (
+        f"{_words(spec.numerator)} rate"
+        if counts
+        else _words(spec.value or spec.columns or "value")
+    )
+    unit_label = spec.unit_label or (
+        f"{_words(spec.numerator)} per {spec.per:,g} {_words(spec.denominator)}" if counts else ""
+    )
+    log.info("loaded %d units x %d periods from %s", shape[0], shape[1], examples(inputs))
+    labels = long.labels if any(lab != str(p) for lab, p in zip(long.labels, long.periods)) else ()
+    return Panel(
+        units=tuple(layer.ids.tolist()),
+        periods=long.periods,
+        values=values,
+        geometry=layer.gdf.geometry.reset_index(drop=True),
+        names=layer.names,
+        findings=tuple(findings),
+        meta=PanelMeta(variable=variable, unit_label=unit_label, source=spec.source or ""),
+        numerator=numerator,
+        denominator=denominator,
+        inputs=inputs,
+        labels=labels,
+    )
+
+
+def load(spec: InputSpec) -> Panel:
+    """Read, align and validate a panel from files; see :func:`mapdrift.panel.load_panel`."""
+    findings: list[Finding] = []
+    layer = layer_stage(read_layer(spec.geometry, spec.layer), spec, spec.geometry, findings)
+    table = table_stage(spec, layer, spec.table)
+    inputs = tuple(
+        p for p in (spec.geometry, spec.table, *spec.append, spec.crosswalk) if p is not None
+    )
+    return _chain(layer, table, spec, findings, inputs)
+
+
+def load_frames(gdf: gpd.GeoDataFrame, df: pd.DataFrame | None, spec: InputSpec) -> Panel:
+    """Enter the chain at the long-frame stage from in-memory frames (``Panel.from_frames``)."""
+    import geopandas as gpd
+
+    if not isinstance(gdf, gpd.GeoDataFrame):
+        raise InputError("from_frames needs a GeoDataFrame of polygons as its first argument")
+    if len(gdf) == 0:
+        raise InputError("the GeoDataFrame has no features")
+    findings: list[Finding] = []
+    layer = layer_stage(gdf.reset_index(drop=True), spec, "GeoDataFrame", findings)
+    if df is None:
+        table = table_stage(spec, layer, None)
+        table = replace(table, where="GeoDataFrame")
+    else:
+        if len(df) == 0:
+            raise InputError("DataFrame: the table has no rows")
+        df = df.reset_index(drop=True)
+        df.columns = [str(c).strip() for c in df.columns]
+        t_id = _table_id(df, spec, layer, "DataFrame")
+        table = Table(df, "DataFrame", None, t_id)
+    return _chain(layer, table, spec, findings, ())
 
 
 def detect_zero_block(
@@ -193,11 +885,11 @@ def detect_zero_block(
         others = np.where(zeros | ~np.isfinite(values), np.nan, values)
         with np.errstate(all="ignore"), warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
-            unit_med = (
-                np.nanmedian(others, axis=1)
-                if np.isfinite(others).any()
-                else np.full(len(values), np.nan)
-            )
+            # the median is needed only for units with a zero (a partition of those rows only)
+            unit_med = np.full(len(values), np.nan)
+            rows = zeros.any(axis=1) & np.isfinite(others).any(axis=1)
+            if rows.any():
+                unit_med[rows] = np.nanmedian(others[rows], axis=1)
             unit_min = np.nanmin(np.where(np.isfinite(others), others, np.inf), axis=1)
         n_other = np.isfinite(others).sum(axis=1)
         if denominator is not None:
@@ -231,336 +923,8 @@ def detect_zero_block(
     )
 
 
-def load(spec: InputSpec) -> Panel:
-    """Read, align and validate a panel; see :func:`mapdrift.panel.load_panel`."""
-    findings: list[Finding] = []
-    gpath = spec.geometry
-    gdf = read_layer(gpath, spec.layer)
-    id_col = spec.id or _guess(gdf, _ID_GUESSES)
-    if id_col is None:
-        raise InputError(
-            f"{gpath}: which column holds the unit IDs? pass --id; columns are "
-            f"{examples([c for c in gdf.columns if c != 'geometry'], 8)}"
-        )
-    id_col = _column(gdf, id_col, gpath, "--id")
-    layer_ids = normalise_ids(gdf[id_col].tolist())
-    if spec.id_width:
-        layer_ids = [i.zfill(spec.id_width) if i.isdigit() else i for i in layer_ids]
-    blank = [i for i, u in enumerate(layer_ids) if u == ""]
-    if blank:
-        raise InputError(
-            f"{gpath}: {len(blank)} features have no ID in {id_col!r} (rows {examples(blank)}); "
-            "every polygon needs an ID"
-        )
-    seen: dict[str, int] = {}
-    for u in layer_ids:
-        seen[u] = seen.get(u, 0) + 1
-    dups = [u for u, c in seen.items() if c > 1]
-    if dups:
-        raise InputError(
-            f"{gpath}: {len(dups)} IDs in {id_col!r} occur more than once (e.g. {examples(dups)}); "
-            "each polygon needs its own ID (dissolve or renumber the duplicates)"
-        )
-    name_col = spec.name or _guess(gdf, _NAME_GUESSES)
-    if name_col is not None:
-        name_col = _column(gdf, name_col, gpath, "--name")
-        names = tuple(
-            str(n) if n is not None and str(n) not in ("", "nan") else u
-            for n, u in zip(gdf[name_col].tolist(), layer_ids)
-        )
-    else:
-        names = tuple(layer_ids)
-
-    gdf, geo_findings = prepare_geometry(gdf, layer_ids, gpath, crs=spec.crs, map_crs=spec.map_crs)
-    findings += geo_findings
-
-    # -- the values table, as long rows of text ------------------------------------------
-    if spec.table is not None:
-        tpath = spec.table
-        df = read_table(tpath)
-        if spec.append:
-            wide_id = None
-            if not spec.period:  # wide: a new release may hold only the new periods' columns
-                flag = "--table-id" if spec.table_id else "--id"
-                wide_id = _column(df, spec.table_id or id_col, tpath, flag)
-            df = _append_tables(df, tpath, spec.append, wide_id=wide_id)
-        t_id = _column(
-            df, spec.table_id or id_col, tpath, "--table-id" if spec.table_id else "--id"
-        )
-    else:
-        tpath = gpath
-        df = gdf.drop(columns=gdf.geometry.name).copy()
-        df = df.astype(object).where(df.notna(), "")
-        df[id_col] = layer_ids
-        t_id = id_col
-    # the name findings use for the values' source: the table and any appended tables
-    tname = " + ".join(p.name for p in (tpath, *(spec.append if spec.table is not None else ())))
-    roles: dict[str, str] = {}
-    if spec.numerator or spec.denominator:
-        if not (spec.numerator and spec.denominator):
-            raise ConfigError("rates need both --numerator and --denominator")
-        roles = {"num": spec.numerator, "den": spec.denominator}
-        if spec.value:
-            raise ConfigError("give either --value or --numerator/--denominator, not both")
-    flags = {"value": "--columns", "num": "--numerator", "den": "--denominator"}
-    if spec.period:
-        if not roles and not spec.value:
-            raise ConfigError(
-                "a long table needs --value COL (or --numerator and --denominator) with --period"
-            )
-        p_col = _column(df, spec.period, tpath, "--period")
-        cols = {"value": spec.value} if spec.value else roles
-        cols = {
-            r: _column(df, c, tpath, flags.get(r, "--value") if r != "value" else "--value")
-            for r, c in cols.items()
-        }
-        long = df[[t_id, p_col, *cols.values()]].copy()
-        long.columns = ["id", "period_text", *cols.keys()]
-    else:
-        if spec.columns:
-            patterns = {"value": spec.columns}
-        elif roles:
-            patterns = dict(roles)
-        else:
-            patterns = {"value": "__auto__"}
-        long = _long_from_wide(df, t_id, patterns, tpath, flags)
-    long["id"] = normalise_ids(long["id"].tolist())
-    long["period_text"] = [str(p).strip() for p in long["period_text"]]
-
-    for col, code, what in (
-        ("id", "ids-blank-rows", "unit ID"),
-        ("period_text", "periods-blank-rows", "period"),
-    ):
-        blank = long[col] == ""
-        if blank.any():  # rows that cannot be placed are counted, never dropped silently
-            msg = f"{tname}: {plural(int(blank.sum()), 'row')} with no {what} left out"
-            findings.append(Finding("warning", code, msg))
-            long = long[~blank]
-    if spec.table is not None:
-        padded, pad_findings = pad_ids(
-            long["id"].tolist(), layer_ids, width=spec.id_width, where=tname
-        )
-        long["id"] = padded
-        findings += pad_findings
-        if spec.append and not spec.period:
-            long = _drop_fill(long, [c for c in ("value", "num", "den") if c in long.columns])
-
-    # -- numbers --------------------------------------------------------------------------
-    ids_arr = long["id"].to_numpy()
-    num_cols = [c for c in ("value", "num", "den") if c in long.columns]
-    label = {
-        "value": spec.value or spec.columns or "value",
-        "num": spec.numerator,
-        "den": spec.denominator,
-    }
-    for c in num_cols:
-        nums, f = to_numbers(
-            long[c], where=tname, column=str(label[c]), missing_codes=spec.missing, ids=ids_arr
-        )
-        long[c] = nums
-        findings += f
-
-    # -- periods --------------------------------------------------------------------------
-    mapping = parse_periods(long["period_text"].tolist(), where=f"{tname} periods")
-    long["period"] = long["period_text"].map(mapping)
-    periods = tuple(sorted(set(mapping.values())))
-    gaps = missing_periods(periods)
-    if gaps:
-        findings.append(
-            Finding(
-                "warning",
-                "periods-gap",
-                f"{tname}: the series has gaps: no data for {examples(gaps)}; changes across a gap "
-                "are not bridged unless asked",
-            )
-        )
-
-    # -- duplicates -----------------------------------------------------------------------
-    dup = long.duplicated(["id", "period"], keep=False)
-    if dup.any():
-        pairs = long.loc[dup, ["id", "period_text"]].drop_duplicates()
-        ex = examples([f"{a}/{b}" for a, b in pairs.itertuples(index=False)])
-        if spec.duplicates == "error":
-            raise InputError(
-                f"{tpath}: {plural(len(pairs), '(unit, period) pair')} with more than one row (e.g. {ex}); "
-                "fix the table or pass --duplicates first|mean|sum"
-            )
-        if spec.duplicates not in ("first", "mean", "sum"):
-            raise ConfigError(
-                f"--duplicates {spec.duplicates!r} must be one of error, first, mean, sum"
-            )
-        agg = {c: spec.duplicates for c in num_cols}
-        long = long.groupby(["id", "period"], as_index=False, sort=False).agg(
-            agg | {"period_text": "first"}
-        )
-        findings.append(
-            Finding(
-                "warning",
-                "values-duplicates-combined",
-                f"{tname}: {len(pairs)} (unit, period) pairs had several rows (e.g. {ex}); "
-                f"combined by {spec.duplicates} (--duplicates)",
-                tuple(pairs["id"].unique()),
-            )
-        )
-
-    # -- boundary vintage -----------------------------------------------------------------
-    if spec.crosswalk is not None:
-        from mapdrift.crosswalk import apply_crosswalk, read_crosswalk
-
-        xw = read_crosswalk(spec.crosswalk)
-        xw["from"], f_from = pad_ids(
-            xw["from"].tolist(), long["id"].tolist(), width=None, where=spec.crosswalk.name
-        )
-        xw["to"], f_to = pad_ids(
-            xw["to"].tolist(), layer_ids, width=spec.id_width, where=spec.crosswalk.name
-        )
-        long, xf = apply_crosswalk(
-            long, xw, num_cols, counts=bool(roles), where=spec.crosswalk.name
-        )
-        findings += f_from + f_to + xf
-
-    # -- match IDs ------------------------------------------------------------------------
-    layer_set = set(layer_ids)
-    table_ids = list(dict.fromkeys(long["id"]))
-    table_only = [u for u in table_ids if u not in layer_set]
-    matched = [u for u in layer_ids if u in set(table_ids)]
-    if spec.table is not None and len(matched) < 0.5 * len(layer_ids):
-        hints = closest(table_only, layer_ids)
-        hint = (
-            "; closest layer IDs: " + ", ".join(f"{a} -> {b}?" for a, b in hints.items())
-            if hints
-            else ""
-        )
-        raise InputError(
-            f"{tpath}: only {len(matched)} of {len(layer_ids)} layer units match a table ID (column "
-            f"{t_id!r}: e.g. {examples(table_ids[:5])}; layer {id_col!r}: e.g. {examples(layer_ids[:5])})"
-            f"{hint}; check --id/--table-id, or --id-width if leading zeros were lost"
-        )
-    if table_only:
-        hints = closest(table_only, [u for u in layer_ids if u not in set(table_ids)] or layer_ids)
-        hint = (
-            " (closest layer IDs: " + ", ".join(f"{a} -> {b}?" for a, b in hints.items()) + ")"
-            if hints
-            else ""
-        )
-        rows = int(long["id"].isin(table_only).sum())
-        findings.append(
-            Finding(
-                "warning",
-                "ids-table-only",
-                f"{tname}: {plural(len(table_only), 'table ID')} ({plural(rows, 'row')}) with no "
-                f"polygon, not mapped: {examples(table_only, total=False)}{hint}; check for a "
-                "boundary vintage change or typos",
-                tuple(table_only),
-            )
-        )
-        long = long[~long["id"].isin(table_only)]
-    no_rows = [u for u in layer_ids if u not in set(table_ids)]
-    if no_rows:
-        findings.append(
-            Finding(
-                "warning",
-                "units-no-values",
-                f"layer units with no row in the table, kept and shown as no data: {examples(no_rows)} "
-                f"({plural(len(no_rows), 'unit')})",
-                tuple(no_rows),
-            )
-        )
-
-    # -- to arrays ------------------------------------------------------------------------
-    uidx = {u: i for i, u in enumerate(layer_ids)}
-    pidx = {p: j for j, p in enumerate(periods)}
-    rows = long["id"].map(uidx).to_numpy()
-    cols = long["period"].map(pidx).to_numpy()
-    shape = (len(layer_ids), len(periods))
-
-    def grid(col: str) -> np.ndarray:
-        g = np.full(shape, np.nan)
-        g[rows, cols] = long[col].to_numpy(dtype=np.float64)
-        return g
-
-    numerator = denominator = None
-    if roles:
-        numerator, denominator = grid("num"), grid("den")
-        values, rate_findings = _rates(numerator, denominator, spec, layer_ids)
-        findings += rate_findings
-    else:
-        values = grid("value")
-
-    # -- value checks ---------------------------------------------------------------------
-    labels = tuple(str(p) for p in periods)
-    neg = values < 0
-    if neg.any():
-        units_neg = _units_with(neg, layer_ids)
-        findings.append(
-            Finding(
-                "warning",
-                "values-negative",
-                f"{int(neg.sum())} values are negative (units {examples(units_neg)}); rates should not be",
-                units_neg,
-            )
-        )
-    zf = detect_zero_block(values, tuple(layer_ids), labels, denominator=denominator, per=spec.per)
-    if zf is not None:
-        findings.append(zf)
-    present = np.isfinite(values)
-    partial = np.flatnonzero(present.any(axis=1) & ~present.all(axis=1))
-    if partial.size:
-        units_p = tuple(layer_ids[i] for i in partial)
-        findings.append(
-            Finding(
-                "note",
-                "values-missing",
-                f"{len(units_p)} units miss values in some periods ({int((~present[partial]).sum())} "
-                f"unit-periods, e.g. {examples(units_p)}); they are shown as no data there",
-                units_p,
-            )
-        )
-    all_missing = [labels[j] for j in np.flatnonzero(~present.any(axis=0))]
-    if all_missing:
-        findings.append(
-            Finding(
-                "warning", "periods-empty", f"periods with no value at all: {examples(all_missing)}"
-            )
-        )
-
-    if not np.isfinite(values).any():
-        what = "rates" if roles else f"column {str(label['value'])!r}"
-        raise InputError(
-            f"{tpath}: no usable number in {what}: every cell is missing or text (see the "
-            "values-not-numeric counts with `mapdrift check --json`); check --value/--columns, "
-            "and write decimals with a point (5.3, not 5,3)"
-        )
-    raise_errors(findings, InputError)
-
-    def words(col: str | None) -> str:  # column names read as words in titles
-        return str(col).replace("_", " ").replace("*", "").strip()
-
-    variable = spec.variable or (
-        f"{words(spec.numerator)} rate" if roles else words(spec.value or spec.columns or "value")
-    )
-    unit_label = spec.unit_label or (
-        f"{words(spec.numerator)} per {spec.per:,g} {words(spec.denominator)}" if roles else ""
-    )
-    geometry = gdf.geometry.reset_index(drop=True)
-    inputs = tuple(p for p in (gpath, spec.table, *spec.append, spec.crosswalk) if p is not None)
-    log.info("loaded %d units x %d periods from %s", len(layer_ids), len(periods), examples(inputs))
-    return Panel(
-        units=tuple(layer_ids),
-        periods=periods,
-        values=values,
-        geometry=geometry,
-        names=names,
-        findings=tuple(findings),
-        meta=PanelMeta(variable=variable, unit_label=unit_label, source=spec.source or ""),
-        numerator=numerator,
-        denominator=denominator,
-        inputs=inputs,
-    )
-
-
 def _rates(
-    num: np.ndarray, den: np.ndarray, spec: InputSpec, units: list[str]
+    num: np.ndarray, den: np.ndarray, spec: InputSpec, units: np.ndarray
 ) -> tuple[np.ndarray, list[Finding]]:
     """Counts to rates per ``spec.per``; zero bases -> missing, small bases flagged."""
     findings: list[Finding] = []

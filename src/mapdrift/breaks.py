@@ -596,7 +596,7 @@ def classify(
             variable=variable,
         )
         if kind == "pooled":
-            span = f"{panel.period_labels[0]}-{panel.period_labels[-1]}"
+            span = panel.period_span
             all_b = (replace(fit_breaks(vals, basis="pooled", **kw), fitted_on=span),)
         elif kind == "per-period":
             bs = []

@@ -103,6 +103,7 @@ SECTIONS: dict[str, str] = {
     "changes": "mapdrift.changes:ChangeOptions",
     "clusters": "mapdrift.clusters:ClusterOptions",
     "brief": "mapdrift.config:BriefSpec",
+    "compute": "mapdrift.compute:ComputeSpec",
 }
 
 

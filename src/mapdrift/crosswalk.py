@@ -14,10 +14,10 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from mapdrift.cells import read_table, to_numbers
+from mapdrift.cells import decide_decimal, decimal_evidence, read_table, to_numbers
 from mapdrift.errors import InputError
 from mapdrift.findings import Finding, examples, plural
-from mapdrift.ids import normalise_ids
+from mapdrift.ids import normalise
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -37,10 +37,12 @@ def read_crosswalk(path: Path) -> pd.DataFrame:
         )
     out = df[[cols["from"], cols["to"]]].copy()
     out.columns = ["from", "to"]
-    out["from"] = normalise_ids(out["from"].tolist())
-    out["to"] = normalise_ids(out["to"].tolist())
+    out["from"] = normalise(out["from"])
+    out["to"] = normalise(out["to"])
     if "weight" in cols:
-        w, findings = to_numbers(df[cols["weight"]], where=path.name, column="weight")
+        ev = decimal_evidence({"weight": df[cols["weight"]]})
+        mark = decide_decimal(ev, where=path.name, sep=df.attrs.get("sep", ","), given=None)
+        w, findings = to_numbers(df[cols["weight"]], where=path.name, column="weight", decimal=mark)
         if findings or np.isnan(w).any():
             raise InputError(
                 f"{path}: every crosswalk weight must be a number; found blanks or text"

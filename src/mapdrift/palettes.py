@@ -97,6 +97,7 @@ FLAG_COLOURS: tuple[str, ...] = (
     "#3b6fb6",  # jump down
     "#1b7837",  # stayed in top class
     "#a6dba0",  # stayed in bottom class
+    "#e3d9c6",  # moves within count noise (a pale sand, apart from no flag and no data)
     "#f4f4f4",  # no flag
 )
 

@@ -22,6 +22,8 @@ if TYPE_CHECKING:
     import geopandas as gpd
     import pandas as pd
 
+    from mapdrift.periods import Spacing
+
 __all__ = ["InputSpec", "Panel", "PanelMeta", "load_panel", "period_label"]
 
 
@@ -52,7 +54,9 @@ class Panel:
     ``geometry`` is a GeoSeries aligned to ``units`` in the map CRS (projected, metres when the
     input was geographic). ``numerator``/``denominator`` hold the counts when the values are rates
     computed from counts (same shape; used by rate smoothing), else ``None``.
-    ``inputs`` lists the files read (the manifest hashes them).
+    ``inputs`` lists the files read (the manifest hashes them). ``labels`` are the periods as
+    written when they differ from ``str(period)`` (multi-year periods such as ``1979-1984`` are
+    placed at their end year, ``1984``); empty means ``str(period)``.
     """
 
     units: tuple[str, ...]
@@ -65,6 +69,7 @@ class Panel:
     numerator: np.ndarray | None = None
     denominator: np.ndarray | None = None
     inputs: tuple[Path, ...] = ()
+    labels: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         values = np.array(self.values, dtype=np.float64)  # copy: the caller's array stays theirs
@@ -87,6 +92,8 @@ class Panel:
             raise ValueError("names must have one entry per unit")
         if len(self.geometry) != len(self.units):
             raise ValueError("geometry must have one entry per unit")
+        if self.labels and len(self.labels) != len(self.periods):
+            raise ValueError("labels must have one entry per period")
 
     # -- shape -----------------------------------------------------------------------------
     @property
@@ -99,12 +106,43 @@ class Panel:
 
     @property
     def period_labels(self) -> tuple[str, ...]:
-        return tuple(period_label(p) for p in self.periods)
+        """The periods as written, for display (``'2019'``, ``'2020Q1'``, ``'1979-1984'``)."""
+        return self.labels or tuple(period_label(p) for p in self.periods)
+
+    @property
+    def period_span(self) -> str:
+        """First to last period for texts: ``'2012-2024'``, or ``'1979-1984 to 1988-1993'``
+        when the labels are ranges themselves."""
+        labels = self.period_labels
+        if not labels:
+            return ""
+        a, b = labels[0], labels[-1]
+        if a == b:
+            return a
+        return f"{a} to {b}" if "-" in a + b else f"{a}-{b}"
+
+    @property
+    def spacing(self) -> Spacing:
+        """The series' step and gaps on the one rule of :func:`mapdrift.periods.spacing`
+        (decadal data step by 10 years; unevenly spaced periods step by one period)."""
+        from mapdrift.periods import spacing
+
+        return spacing(self.periods)
+
+    @property
+    def step_label(self) -> str:
+        """Words for one step between consecutive periods, for sentences such as
+        ``f"jumped 2+ classes in {panel.step_label}"``: ``'one year'``, ``'one quarter'``,
+        ``'one step (10 years)'`` or ``'one step'``."""
+        return self.spacing.step_label
 
     def period_index(self, period: Any) -> int:
-        """Column of ``period`` (accepts the period itself or its text, e.g. ``'2019'``)."""
+        """Column of ``period`` (the period itself, its text ``'2019'`` or its label ``'1979-1984'``)."""
         labels = self.period_labels
         key = period_label(period)
+        plain = tuple(period_label(p) for p in self.periods)
+        if key not in labels and key in plain:
+            return plain.index(key)
         if key not in labels:
             from mapdrift.errors import ConfigError
             from mapdrift.findings import examples
@@ -178,6 +216,60 @@ class Panel:
         geometry = geometry.reset_index(drop=True)
         return cls(units=units, periods=periods, values=values, geometry=geometry, **kwargs)
 
+    @classmethod
+    def from_frames(
+        cls,
+        geodataframe: gpd.GeoDataFrame,
+        dataframe: pd.DataFrame | None = None,
+        *,
+        id: str | None = None,
+        period: str | None = None,
+        value: str | None = None,
+        columns: str | None = None,
+        numerator: str | None = None,
+        denominator: str | None = None,
+        **options: Any,
+    ) -> Panel:
+        """A Panel from a GeoDataFrame of polygons and a DataFrame of values, for notebooks.
+
+        The frames enter the same loading chain as files (at the long-frame stage), so IDs,
+        periods and numbers are checked the same way and the same findings are attached.
+        ``dataframe`` is long (``period`` and ``value``, or ``numerator``/``denominator``) or wide
+        (``columns`` pattern such as ``'rate_*'`` or ``'PO(\\d+)'``); without it the values are
+        columns of the GeoDataFrame. ``options`` are the other :class:`InputSpec` fields
+        (``table_id``, ``name``, ``per``, ``min_base``, ``duplicates``, ``missing``, ``crs``,
+        ``map_crs``, ``id_width``, ``decimal``, ``variable``, ``unit_label``, ``source``).
+
+        Examples
+        --------
+        >>> import geopandas as gpd, pandas as pd
+        >>> from shapely.geometry import box
+        >>> gdf = gpd.GeoDataFrame({"tract": ["01", "02"]},
+        ...                        geometry=[box(0, 0, 1000, 1000), box(1000, 0, 2000, 1000)],
+        ...                        crs="EPSG:32616")
+        >>> df = pd.DataFrame({"tract": ["1", "02", "01", "02"], "year": [2019, 2019, 2020, 2020],
+        ...                    "rate": ["5.5", "(D)", "6.0", "7.25"]})
+        >>> panel = Panel.from_frames(gdf, df, id="tract", period="year", value="rate")
+        >>> panel.periods, panel.values.tolist()
+        ((2019, 2020), [[5.5, 6.0], [nan, 7.25]])
+        >>> sorted(f.code for f in panel.findings)
+        ['ids-zero-padded', 'values-missing', 'values-not-numeric']
+        """
+        from mapdrift._loader import load_frames
+
+        spec = InputSpec(
+            geometry=Path("GeoDataFrame"),
+            table=None,
+            id=id,
+            period=period,
+            value=value,
+            columns=columns,
+            numerator=numerator,
+            denominator=denominator,
+            **options,
+        )
+        return load_frames(geodataframe, dataframe, spec)
+
 
 @dataclass(frozen=True)
 class InputSpec:
@@ -192,6 +284,9 @@ class InputSpec:
     columns; wide tables may hold only the new periods' columns besides the ID. ``view``
     (``relative-median``, ``index:2015``, ``deflate:cpi.csv``...) rescales the values after
     loading; the loader ignores it, :func:`mapdrift.views.apply_view` applies it.
+    ``columns`` may also be a regular expression with one capture group around the period
+    (``PO(\\d+)``, so that ``POLY_ID`` is not caught). ``decimal`` (``","`` or ``"."``) settles the
+    decimal mark when a file's cells read either way (``1,234``).
     """
 
     geometry: Path
@@ -218,14 +313,32 @@ class InputSpec:
     crosswalk: Path | None = None
     append: tuple[Path, ...] = ()
     view: str | None = None
+    decimal: str | None = None
 
     def __post_init__(self) -> None:
+        from mapdrift.errors import ConfigError
+
+        if not self.per > 0:
+            raise ConfigError(
+                f"per = {self.per:g}: rates are per so many of the base and need a positive "
+                "number, e.g. --per 1000 ([inputs] per = 1000)"
+            )
+        if self.min_base < 0:
+            raise ConfigError(f"min_base = {self.min_base:g} must not be negative")
+        if self.decimal is not None and self.decimal not in (",", "."):
+            raise ConfigError(
+                f"decimal = {self.decimal!r} must be ',' (decimal comma) or '.' (decimal point)"
+            )
         object.__setattr__(self, "append", tuple(Path(p) for p in self.append))
         object.__setattr__(self, "geometry", Path(self.geometry))
         for name in ("table", "crosswalk"):
             if getattr(self, name) is not None:
                 object.__setattr__(self, name, Path(getattr(self, name)))
         object.__setattr__(self, "missing", tuple(float(x) for x in self.missing))
+        if self.view is not None:  # a bad view stops when the config is read
+            from mapdrift.views import parse_view
+
+            parse_view(self.view)
 
 
 def load_panel(spec: InputSpec) -> Panel:

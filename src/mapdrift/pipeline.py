@@ -188,6 +188,14 @@ def _weights(state: RunState) -> Any:
 
 
 def _step_smooth(state: RunState) -> str:
+    """Rate smoothing, then the view (smoothing works on counts, so it comes first); one step,
+    so the steps up to the classes stay load, smooth, classify."""
+    done = _smooth(state)
+    view = _view(state)
+    return f"{done}; {view}" if view else done
+
+
+def _smooth(state: RunState) -> str:
     from mapdrift.clusters import ClusterOptions
 
     opt = state.section(ClusterOptions, "clusters")
@@ -202,12 +210,12 @@ def _step_smooth(state: RunState) -> str:
     return f"{opt.smooth} smoothing applied to maps and statistics"
 
 
-def _step_view(state: RunState) -> str:
+def _view(state: RunState) -> str:
     from mapdrift.views import apply_view, parse_view
 
     view = parse_view(state.inputs.view)
     if view.is_raw:
-        return "values as read (no view)"
+        return ""
     state.panel = apply_view(state.panel, view, spec=state.inputs)
     state.findings.append(state.panel.findings[-1])
     return state.panel.meta.view
@@ -225,6 +233,22 @@ def _previous_breaks(state: RunState) -> Path | None:
     return path
 
 
+def _same_view(state: RunState, breaks: Path) -> None:
+    """Stop when last year's breaks were fitted on values seen through another view (their
+    numbers would mean something else), unless the breaks are refitted."""
+    manifest = breaks.parent / "manifest.json"
+    if state.run.rebreak or not manifest.exists():
+        return
+    before = json.loads(manifest.read_text(encoding="utf-8")).get("parameters", {}).get("view")
+    now = state.view or "values as read"
+    if before is not None and before != now:
+        raise ConfigError(
+            f"previous = {state.run.previous}: its breaks are for {before.removeprefix('view: ')}, "
+            f"but this run's values are {now.removeprefix('view: ')}; use the same view "
+            "([inputs] view / --view) or refit the breaks with --rebreak"
+        )
+
+
 def _step_classify(state: RunState) -> str:
     from mapdrift.atomic import write_text
     from mapdrift.breaks import classify_spec, describe
@@ -235,6 +259,7 @@ def _step_classify(state: RunState) -> str:
     reused_from = None
     prev = _previous_breaks(state)
     if prev is not None and breaks_file is None:
+        _same_view(state, prev)
         if state.run.rebreak:
             state.notices.append(REBREAK_NOTICE)
             state.findings.append(Finding("warning", "breaks-refitted", REBREAK_NOTICE))
@@ -319,10 +344,12 @@ def _step_animate(state: RunState) -> str:
     if ch is not None and len(ch.jumps):  # outline the units that jumped into each period
         index = {u: i for i, u in enumerate(p.units)}
         landed = {label: [] for label in p.period_labels}
-        for unit, to in zip(ch.jumps["unit"], ch.jumps["to_period"].astype(str)):
+        counted = ch.jumps["credible"] != "false"  # moves within count noise are not outlined
+        for unit, to in zip(ch.jumps["unit"][counted], ch.jumps["to_period"][counted].astype(str)):
             landed[to].append(index[unit])
         text["outlines"] = [landed[label] for label in p.period_labels]
-        text["outline_label"] = f"jumped {ch.options.jump}+ classes since the previous period"
+        what = "credibly jumped" if ch.tested else "jumped"
+        text["outline_label"] = f"{what} {ch.options.jump}+ classes since the previous period"
     done = []
     for fmt in ("gif", "mp4"):
         if fmt in formats:
@@ -382,8 +409,16 @@ def _step_changes(state: RunState) -> str:
     from mapdrift.breaks import classify_spec
     from mapdrift.brief.pictures import change_pictures
     from mapdrift.changes import ChangeOptions, analyse_changes, relative_panel, write_changes
+    from mapdrift.clusters import ClusterOptions
 
     opt = state.section(ChangeOptions, "changes")
+    given = state.config.section("changes")
+    cl_opt = state.section(ClusterOptions, "clusters")  # the run's multiple-testing choice
+    opt = replace(
+        opt,
+        alpha=given.get("alpha", cl_opt.alpha),
+        correction=given.get("correction", cl_opt.correction),
+    )
     panel, classes = state.panel, state.classes
     if opt.persist > panel.n_periods:  # "the last 3 periods" with 2: all there are
         opt = replace(opt, persist=panel.n_periods)
@@ -399,14 +434,14 @@ def _step_changes(state: RunState) -> str:
                 f"changes use values relative to each period's {opt.relative}",
             )
         )
-    from mapdrift.clusters import ClusterOptions
-
-    same_weights = opt.weights == state.section(ClusterOptions, "clusters").weights
+    same_weights = opt.weights == cl_opt.weights
     result = analyse_changes(
         panel, classes, opt, weights=_weights(state) if opt.spatial and same_weights else None
     )
-    if state.view:  # every table says which view its values are in
-        result = replace(result, warning=" ".join(x for x in (result.warning, state.view) if x))
+    if panel.meta.view:  # every table says which view its values are in
+        result = replace(
+            result, warning=" ".join(x for x in (result.warning, panel.meta.view) if x)
+        )
     state.results["changes"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_changes(result, state.staging, units_table=False)
@@ -414,7 +449,16 @@ def _step_changes(state: RunState) -> str:
     n_jump = int(result.units["jump"].sum())
     up = int((result.net_change > 0).sum())
     down = int((result.net_change < 0).sum())
-    return f"{up} units up, {down} down first to last; {n_jump} units jumped {opt.jump}+ classes"
+    if not result.tested:
+        return (
+            f"{up} units up, {down} down first to last; {n_jump} units jumped {opt.jump}+ "
+            "classes (not tested against noise: no counts)"
+        )
+    noise = int(((result.units["n_noise_moves"] > 0) & ~result.units["jump"]).sum())
+    return (
+        f"{up} units up, {down} down first to last; {n_jump} units credibly jumped {opt.jump}+ "
+        f"classes ({noise} more moved within count noise)"
+    )
 
 
 def _step_clusters(state: RunState) -> str:
@@ -425,7 +469,12 @@ def _step_clusters(state: RunState) -> str:
     opt = replace(opt, smooth=None)  # smoothing, when asked, was applied to the panel already
     if opt.persist > state.panel.n_periods:  # "steady for 3 periods" with 2: all there are
         opt = replace(opt, persist=state.panel.n_periods)
-    result = analyse_clusters(state.panel, state.classes, opt, weights=_weights(state))
+    from mapdrift.compute import ComputeSpec, executor_for
+
+    with executor_for(state.section(ComputeSpec, "compute")) as executor:
+        result = analyse_clusters(
+            state.panel, state.classes, opt, weights=_weights(state), executor=executor
+        )
     state.results["clusters"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_clusters(result, state.staging, warning=state.view or None)
@@ -553,7 +602,6 @@ def _step_brief(state: RunState) -> str:
 STEPS: list[tuple[str, Callable[[RunState], str]]] = [
     ("load", _step_load),
     ("smooth", _step_smooth),
-    ("view", _step_view),
     ("classify", _step_classify),
     ("changes", _step_changes),
     ("clusters", _step_clusters),
@@ -584,6 +632,9 @@ def _manifest(state: RunState, replaces: str | None = None) -> None:
             weights=cl.weights.kind,
             islands=o.islands,
             permutations=o.permutations,
+            p_value=o.p_value,
+            standardise=o.standardise,
+            cluster_inputs=cl.inputs,
             alpha=o.alpha,
             correction=o.correction,
             seed=o.seed,

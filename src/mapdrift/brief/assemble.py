@@ -57,12 +57,29 @@ def headline(state: RunState) -> list[tuple[str, str]]:
         )
         spikes = int((ch.units["jump"] & ch.units["spike"]).sum())
         back = f" ({spikes:,} came straight back: check the data)" if spikes else ""
-        out.append(
-            (
-                f"{u} that jumped {ch.options.jump}+ classes in one year{back}",
-                f"{int(ch.units['jump'].sum()):,}",
+        if ch.tested:
+            noise = int(((ch.units["n_noise_moves"] > 0) & ~ch.units["jump"]).sum())
+            out.append(
+                (
+                    f"{u} that credibly jumped {ch.options.jump}+ classes in {p.step_label}{back}",
+                    f"{int(ch.units['jump'].sum()):,}",
+                )
             )
-        )
+            out.append(
+                (
+                    f"{u} whose {ch.options.jump}+ class moves are within count noise "
+                    "(listed in jumps.csv)",
+                    f"{noise:,}",
+                )
+            )
+        else:
+            out.append(
+                (
+                    f"{u} that jumped {ch.options.jump}+ classes in {p.step_label}{back} (not tested "
+                    "against noise: no counts given)",
+                    f"{int(ch.units['jump'].sum()):,}",
+                )
+            )
     cl = state.results.get("clusters")
     if cl is not None:
         joined = np.array([bool(v) for v in cl.changes["joined_high_cluster"]])
@@ -129,6 +146,7 @@ def method(state: RunState) -> list[tuple[str, str]]:
                 f"transitions between consecutive periods on the map's classes; jump = {o.jump}+ classes in one step; spike = back within {o.spike_window} periods; Markov summaries after Kemeny & Snell; homogeneity test after Anderson & Goodman (1957)",
             )
         )
+        rows.append(("Jumps and noise", ch.noise_text))
     cl = state.results.get("clusters")
     if cl is not None:
         o = cl.options
@@ -138,13 +156,13 @@ def method(state: RunState) -> list[tuple[str, str]]:
         rows.append(
             (
                 "Clusters",
-                f"{'local Moran (Anselin 1995)' if o.statistic == 'local-moran' else 'Getis-Ord Gi*'}, {o.permutations} conditional permutations, two-sided p-values, seed {o.seed}; {cl.significance}",
+                f"{'local Moran (Anselin 1995)' if o.statistic == 'local-moran' else 'Getis-Ord Gi*'} on {cl.inputs}, two-sided p-values by {o.p_text}; {cl.significance}",
             )
         )
         rows.append(
             (
                 "Trends",
-                f"Mann-Kendall test with Theil-Sen slope, {cl.significance.replace('per period', 'across units')}"
+                f"Mann-Kendall test with Theil-Sen slope on {cl.trend_input}, {cl.significance.replace('per period', 'across units')}"
                 if not state.trends_skipped
                 else f"not estimated: {plural(p.n_periods, 'period')} are too few for a trend",
             )
@@ -167,18 +185,22 @@ def top_movers(state: RunState, n: int = 10) -> pd.DataFrame | None:
         return None
     j = ch.jumps.copy()
     j["abs"] = j["size"].abs()
-    j = j.sort_values(["abs", "to_period", "unit"], ascending=[False, False, True]).head(n)
+    j["noise"] = j["credible"] == "false"  # credible moves first, then moves within noise
+    j = j.sort_values(
+        ["noise", "abs", "to_period", "unit"], ascending=[True, False, False, True]
+    ).head(n)
     small = units_of(state.findings, "rates-small-base")
     check = [
         "; ".join(
             x
             for x in (
+                "within count noise" if noisy else "",
                 "came back: check data" if s else "",
                 "small base: unstable" if u in small else "",
             )
             if x
         )
-        for u, s in zip(j["unit"], j["spike"])
+        for u, s, noisy in zip(j["unit"], j["spike"], j["noise"])
     ]
     return j.assign(
         step=[f"{a}→{b}" for a, b in zip(j["from_period"], j["to_period"])],
@@ -292,6 +314,7 @@ def build_brief(state: RunState) -> Brief:
                     f"{noun.capitalize()} that jumped",
                     paragraphs=(
                         f"Moves of {ch.options.jump} or more classes in one step, largest first. A jump that comes back soon after is often a data error: check it before reading it as change.",
+                        ch.noise_text,
                     ),
                     tables=(Table(movers, "Largest one-step jumps", csv_name="jumps.csv"),),
                 )
@@ -322,7 +345,7 @@ def build_brief(state: RunState) -> Brief:
                 "Where high and low values cluster",
                 paragraphs=(
                     f"Global Moran's I (each period tested on its own, permutation p <= {cl.options.alpha:g}, no correction across periods) shows significant clustering in {where_sig}.",
-                    f"Local clusters: {sig_text}. High-high: a high unit among high neighbours; low-low likewise; high-low and low-high are spatial outliers.",
+                    f"Local clusters on {cl.inputs}, {cl.options.p_text}: {sig_text}. High-high: a high unit among high neighbours; low-low likewise; high-low and low-high are spatial outliers.",
                 ),
                 figures=(
                     _fig(state, "global_moran.png", "Global Moran's I per period"),
@@ -609,6 +632,8 @@ def build_slides(state: RunState, brief: Brief, pictures: Path | None = None) ->
                 Slide(key, title, images=(pic(name),), notice=notice, notes=_notes(brief, note))
             )
     movers = top_movers(state, 10)
+    ch = state.results.get("changes")
+    ch_note = ch.noise_text if ch is not None else ""
     if movers is not None:
         slides.append(
             Slide(
@@ -617,6 +642,7 @@ def build_slides(state: RunState, brief: Brief, pictures: Path | None = None) ->
                 table=movers,
                 bullets=(
                     "A jump that came back soon after is often a data error; a small base makes rates unstable: check both first.",
+                    ch_note,
                 ),
                 notice=notice,
                 notes=_notes(brief, "Largest one-step jumps."),

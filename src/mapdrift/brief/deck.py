@@ -12,6 +12,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from pathlib import Path
+from typing import Any
 
 from mapdrift.atomic import atomic_path
 from mapdrift.brief.slides import (
@@ -91,7 +92,17 @@ def _picture(shapes, path: Path, box: Box):
     scale = min(bw / w, bh / h)
     pw, ph = w * scale, h * scale
     left, top = box[0] + (bw - pw) / 2, box[1] + (bh - ph) / 2
-    return shapes.add_picture(str(path), _emu(left), _emu(top), _emu(pw), _emu(ph)), (
+    source: Any = str(path)
+    if path.stat().st_size > 1_500_000:  # multi-MB pictures (national scale): slide resolution
+        import io
+
+        with Image.open(path) as im:
+            small = im.convert("RGB")
+            small.thumbnail((1600, 1600))
+            source = io.BytesIO()
+            small.save(source, format="PNG", compress_level=6)
+            source.seek(0)
+    return shapes.add_picture(source, _emu(left), _emu(top), _emu(pw), _emu(ph)), (
         left,
         top,
         left + pw,

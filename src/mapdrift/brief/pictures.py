@@ -190,9 +190,8 @@ def change_pictures(
                     f"of the last {opts.persist} periods"
                 ),
                 caption=(
-                    f"Each of the {noun} shows the first of its flags in the legend's order; all "
-                    "flags are in units.csv and every jump in jumps.csv."
-                    + (f" {source}" if source else "")
+                    f"{result.noise_short} First flag in the legend's order; all in units.csv "
+                    "and jumps.csv." + (f" {source}" if source else "")
                 ),
                 legend_title="flag",
                 nodata_label="no data",
@@ -233,9 +232,9 @@ def cluster_pictures(
     var = panel.meta.variable or "value"
     sig = result.significance
     stat_name = "Local Moran's I" if opt.statistic == "local-moran" else "Getis-Ord Gi*"
-    caption = (
-        f"{stat_name} with {result.weights.kind} weights, {opt.permutations:,} permutations "
-        f"(seed {opt.seed}); {sig}. {panel.meta.source}".strip()
+    caption = (  # the subtitle carries the significance sentence
+        f"{stat_name}, {result.weights.kind} weights, on {result.inputs}; {opt.p_text}. "
+        f"{panel.meta.source}".strip()
     )
     written: list[Path] = []
     g = result.global_moran
@@ -308,9 +307,9 @@ def cluster_pictures(
                    text=_text(look, title=f"Trend in {var}",
                               subtitle=f"Theil-Sen slope where the Mann-Kendall trend is "
                               f"{result.trend.correction and sig.replace('per period', 'across units')}",
-                              caption=f"Slopes are change per period in "
-                              f"{panel.meta.unit_label or 'the value'}; grey: no significant "
-                              f"trend. {panel.meta.source}".strip(),
+                              caption=f"Mann-Kendall and Theil-Sen on {result.trend_input}. Slopes "
+                              f"are change per period in {panel.meta.unit_label or 'the value'}; "
+                              f"grey: no significant trend. {panel.meta.source}".strip(),
                               legend_title="trend (Theil-Sen slope)"),
                    size=look.size, force=force)
     )  # fmt: skip

@@ -59,10 +59,23 @@ def _e(text: object) -> str:
     return html.escape(str(text), quote=True)
 
 
-def _img(fig: Figure) -> str:
+#: Pictures larger than this are linked (relative to the run folder), not embedded, so the
+#: report of a national-scale run stays small enough to open and to e-mail.
+EMBED_MAX_BYTES = 1_500_000
+
+
+def _img(fig: Figure, root: Path | None = None) -> str:
+    alt = _e(fig.alt or fig.caption)
+    size = fig.path.stat().st_size
+    if root is not None and size > EMBED_MAX_BYTES and fig.path.is_relative_to(root):
+        rel = fig.path.relative_to(root).as_posix()
+        return (
+            f'<figure><a href="{_e(rel)}"><img src="{_e(rel)}" alt="{alt}"></a>'
+            f"<figcaption>{_e(fig.caption)} ({_e(rel)}, {size / 1e6:.1f} MB, beside this "
+            "report)</figcaption></figure>"
+        )
     data = base64.b64encode(fig.path.read_bytes()).decode("ascii")
     mime = _MIME.get(fig.path.suffix.lower(), "application/octet-stream")
-    alt = _e(fig.alt or fig.caption)
     return (
         f'<figure><img src="data:{mime};base64,{data}" alt="{alt}">'
         f"<figcaption>{_e(fig.caption)}</figcaption></figure>"
@@ -106,19 +119,19 @@ def _table_html(t: Table) -> str:
     )
 
 
-def _section_html(s: Section) -> str:
+def _section_html(s: Section, root: Path | None = None) -> str:
     parts = [f'<section id="{_e(s.key)}"><h2>{_e(s.title)}</h2>']
     parts += [f"<p>{_e(p)}</p>" for p in s.paragraphs]
     if s.bullets:
         parts.append("<ul>" + "".join(f"<li>{_e(b)}</li>" for b in s.bullets) + "</ul>")
-    parts += [_img(f) for f in s.figures if f.path.exists()]
+    parts += [_img(f, root) for f in s.figures if f.path.exists()]
     parts += [_table_html(t) for t in s.tables]
     parts.append("</section>")
     return "\n".join(parts)
 
 
-def render_html(brief: Brief) -> str:
-    """The report as one HTML document with embedded images."""
+def render_html(brief: Brief, root: Path | None = None) -> str:
+    """The report as one HTML document with embedded images (large ones linked under ``root``)."""
     out = [
         "<!DOCTYPE html>",
         '<html lang="en"><head><meta charset="utf-8">',
@@ -138,7 +151,7 @@ def render_html(brief: Brief) -> str:
             label = phrase(k, v)[len(v) + 1 :]
             out.append(f'<div class="metric"><b>{_e(v)}</b><span>{_e(label)}</span></div>')
         out.append("</div></section>")
-    out += [_section_html(s) for s in brief.sections]
+    out += [_section_html(s, root) for s in brief.sections]
     if brief.method:
         out.append('<section id="method"><h2>Method</h2><dl class="method">')
         out += [f"<dt>{_e(k)}</dt><dd>{_e(v)}</dd>" for k, v in brief.method]
@@ -227,6 +240,6 @@ def render_markdown(brief: Brief, root: Path) -> str:
 
 def write_report(brief: Brief, html_path: Path, md_path: Path, *, root: Path) -> tuple[Path, Path]:
     """Write both report files atomically."""
-    write_text(html_path, render_html(brief))
+    write_text(html_path, render_html(brief, root))
     write_text(md_path, render_markdown(brief, root))
     return html_path, md_path

@@ -316,6 +316,6 @@ def write_slide_pngs(slides: list[Slide], folder: Path, *, footer: str = "") -> 
         img, _ = draw_slide(s, i, len(slides), footer)
         path = folder / f"{i:02d}-{s.key}.png"
         with atomic_path(path) as tmp:
-            img.save(tmp, format="PNG", optimize=True)
+            img.save(tmp, format="PNG", compress_level=6)  # optimize=True: 3 s, few % smaller
         out.append(path)
     return out

@@ -41,10 +41,14 @@ def units_table(
         c = classes.codes[:, j].astype(np.float64) + 1
         c[classes.codes[:, j] < 0] = np.nan
         data[f"class_{label}"] = pd.array(c, dtype="Int64")
-    df = pd.DataFrame(data)
     for name, col in (extra or {}).items():
-        df[name] = list(col) if not isinstance(col, pd.Series) else col.to_numpy()
-    return df
+        if isinstance(col, pd.Series):
+            data[name] = col.to_numpy()
+        elif isinstance(col, np.ndarray):
+            data[name] = col  # keeps its dtype (a list would make an object column)
+        else:
+            data[name] = list(col)
+    return pd.DataFrame(data)  # built in one go: no column-by-column inserts
 
 
 def write_units_gpkg(
@@ -53,10 +57,11 @@ def write_units_gpkg(
     """The units table with geometry as a GeoPackage layer (written atomically)."""
     import geopandas as gpd
 
-    gdf = gpd.GeoDataFrame(df.reset_index(drop=True), geometry=geometry.reset_index(drop=True))
-    for col in gdf.columns:
-        if str(gdf[col].dtype) == "Int64":
-            gdf[col] = gdf[col].astype("float64")
+    # nullable integers as floats (GDAL has no nullable int here), converted in one pass
+    plain = df.reset_index(drop=True).astype(
+        {c: "float64" for c in df.columns if str(df[c].dtype) == "Int64"}
+    )
+    gdf = gpd.GeoDataFrame(plain, geometry=geometry.reset_index(drop=True))
     with atomic_path(path) as tmp, _fixed_gdal_date():
         tmp.unlink()  # GDAL wants to create the file itself
         gdf.to_file(tmp, layer=layer, driver="GPKG", engine="pyogrio")

@@ -308,6 +308,8 @@ def compare_runs(
     prev_jumps = _read(previous, "jumps.csv")
     key = ["unit", "from_period", "to_period", "direction"]
     cur = jumps.astype({"unit": str, "from_period": str, "to_period": str}) if len(jumps) else jumps
+    if len(cur) and "credible" in cur.columns:  # moves within count noise are not news
+        cur = cur[cur["credible"].astype(str).str.lower() != "false"]
     if prev_jumps is not None and len(cur):
         seen = set(map(tuple, prev_jumps[key].astype(str).to_numpy()))
         mask = [tuple(map(str, r)) not in seen for r in cur[key].to_numpy()]

@@ -55,21 +55,20 @@ def period_positions(periods: Sequence[Any]) -> np.ndarray | None:
 def adjacent_steps(periods: Sequence[Any]) -> np.ndarray:
     """For each consecutive pair of periods, whether they are adjacent (no period between).
 
-    The regular step is the smallest difference between consecutive periods.
+    The regular step is inferred once by :func:`mapdrift.periods.spacing` (the smallest
+    difference when every difference is a multiple of it; unevenly spaced periods such as
+    1984, 1988, 1993 are all adjacent).
 
     >>> adjacent_steps([2015, 2016, 2018, 2019]).tolist()
     [True, False, True]
     >>> adjacent_steps([2010, 2012, 2014]).tolist()
     [True, True]
     """
-    n = len(periods)
-    if n < 2:
+    if len(periods) < 2:
         return np.zeros(0, dtype=bool)
-    pos = period_positions(periods)
-    if pos is None:
-        return np.ones(n - 1, dtype=bool)
-    d = np.diff(pos)
-    return d == d.min()
+    from mapdrift.periods import spacing  # the one spacing rule, shared with check and trends
+
+    return np.asarray(spacing(periods).adjacent, dtype=bool)
 
 
 def class_labels(classes: Classes) -> tuple[str, ...]:

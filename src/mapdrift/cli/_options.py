@@ -118,14 +118,20 @@ _INPUT_PARAMS = [
         "period",
         Optional[str],
         _opt(
-            None, "--period", help="Long table: the period column (years, 2020-03, 2020Q1, dates)."
+            None,
+            "--period",
+            help="Long table: the period column (years, 74, 2015-2019, 2020-03, 2020Q1, dates).",
         ),
     ),
     _param("value", Optional[str], _opt(None, "--value", help="Long table: the value column.")),
     _param(
         "columns",
         Optional[str],
-        _opt(None, "--columns", help="Wide table: value columns as a pattern, e.g. 'rate_*'."),
+        _opt(
+            None,
+            "--columns",
+            help="Wide table: value columns as a pattern, e.g. 'rate_*', or a regex whose group is the period, e.g. 'PO(\\d+)'.",
+        ),
     ),
     _param(
         "numerator",
@@ -160,6 +166,15 @@ _INPUT_PARAMS = [
         "missing",
         Optional[str],
         _opt(None, "--missing", help="Extra missing-value codes, e.g. '-999,-1'."),
+    ),
+    _param(
+        "decimal",
+        Optional[str],
+        _opt(
+            None,
+            "--decimal",
+            help="Decimal mark of the table's numbers, ',' or '.', when its cells read either way (1,234) [default: from the file].",
+        ),
     ),
     _param(
         "crs",

@@ -47,7 +47,7 @@ def map_text(panel: Any, cls: Any) -> dict[str, Any]:
     sub = f"{unit} · " if unit else ""
     sub += f"{k} {b0.scheme.replace('-', ' ')} classes, {basis}"
     if not cls.per_period and len(per) > 1:
-        sub += f" ({per[0]}-{per[-1]})"
+        sub += f" ({panel.period_span})"
     return {
         "title": panel.meta.variable or "value",
         "subtitle": sub,

@@ -36,9 +36,13 @@ def check(
 
     Exit code 0 when the data are usable (warnings allowed), 1 when a problem stops the job.
     """
-    from mapdrift.panel import load_panel
+    from mapdrift.cli._data import load_data
+    from mapdrift.views import common_trend
 
-    panel = load_panel(inputs)
+    panel = load_data(inputs)
+    trend = common_trend(panel, view=inputs.view)
+    if trend is not None:
+        panel = panel.with_findings([trend])
     if as_json:
         comp = panel.completeness()
         typer.echo(
@@ -46,6 +50,7 @@ def check(
                 {
                     "units": panel.n_units,
                     "periods": list(panel.period_labels),
+                    "view": panel.meta.view or "values as read",
                     "findings": [f.to_dict() for f in panel.findings],
                     "completeness": [
                         {"period": p, "with_value": int(n), "missing": int(m)}
@@ -65,6 +70,8 @@ def check(
         f"variable: {panel.meta.variable}"
         + (f" ({panel.meta.unit_label})" if panel.meta.unit_label else "")
     )
+    if panel.meta.view:
+        echo(panel.meta.view)
     echo()
     print_findings(panel.findings)
     echo()

@@ -9,7 +9,7 @@ import typer
 
 from mapdrift.cli._app import command, state
 from mapdrift.cli._options import SchemeChoice, parse_numbers
-from mapdrift.cli._print import echo
+from mapdrift.cli._print import echo, summarise_findings
 
 
 def _o(default: Any, *names: str, help: str) -> Any:
@@ -37,6 +37,7 @@ def run_config(config: Any, *, out: Path | None, force: bool) -> Any:
                 progress=lambda line: console.print(line, markup=False, highlight=False),
                 on_start=lambda name: status.update(f"running {name} ..."),
             )
+    summarise_findings(result.findings, "data findings:")
     n_warn = sum(f.level == "warning" for f in result.findings)
     echo(
         f"done: {len(result.outputs)} files in {result.out} ({n_warn} data warnings; see report.html)"

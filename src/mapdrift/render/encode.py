@@ -4,8 +4,9 @@ GIF: one fixed 256-colour palette for the whole animation, built from the colour
 exact (classes, no data, furniture) plus the first frame's antialiasing shades; every pixel is
 mapped to its palette entry without dithering, so a class colour in the file is the class colour
 (no quantisation noise). Frames after the first store only the changed rectangle, with unchanged
-pixels transparent. MP4: H.264, ``yuv420p``, ``+faststart`` through imageio-ffmpeg's ffmpeg; odd
-sizes are padded by one pixel of paper, never resized. A missing or failing encoder raises
+pixels transparent. MP4: H.264, ``yuv420p``, ``+faststart`` through imageio-ffmpeg's ffmpeg binary, one
+encoded frame per period unless tweening (the frame rate carries the timing); odd sizes are
+padded by one pixel of paper, never resized. A missing or failing encoder raises
 :class:`~mapdrift.errors.EncoderError`; we never switch format silently.
 """
 
@@ -123,16 +124,19 @@ class FixedPalette:
 def _nearest_to_cells(colours: np.ndarray) -> np.ndarray:
     """Index of the palette colour nearest (Euclidean RGB) each 5-bit cell centre, uint8.
 
-    Brute force in float64 (exact for these integer and half-integer values), in chunks.
+    Exact integer arithmetic: with ``x`` the cell centre (``8 i + 3.5``), ``|x - c|^2 - |x|^2 =
+    |c|^2 - (2 x) . c`` and ``2 x = 16 i + 7`` is an integer, so the argmin (first index on ties)
+    is the exact one, computed in small int32 blocks (about twice as fast as float64).
     """
-    centres = np.arange(32, dtype=np.float64) * 8 + 3.5
-    cell = np.stack(np.meshgrid(centres, centres, centres, indexing="ij"), -1).reshape(-1, 3)
-    c = colours.astype(np.float64)
+    c = colours.astype(np.int32)
     c2 = (c * c).sum(axis=1)
+    twice = np.arange(32, dtype=np.int32) * 16 + 7
+    cell = np.stack(np.meshgrid(twice, twice, twice, indexing="ij"), -1).reshape(-1, 3)
+    ct = np.ascontiguousarray(c.T)
     out = np.empty(len(cell), dtype=np.uint8)
-    step = 4096
+    step = 512
     for lo in range(0, len(cell), step):
-        d = c2[None, :] - 2.0 * (cell[lo : lo + step] @ c.T)
+        d = c2[None, :] - cell[lo : lo + step] @ ct
         out[lo : lo + step] = d.argmin(axis=1)
     return out
 
@@ -258,6 +262,28 @@ def pad_even(frame: np.ndarray, fill: Sequence[int] = (255, 255, 255)) -> np.nda
     return out
 
 
+#: x264 speed preset. Measured on our frames (10,000 units, 6 periods, 1280x720, CRF 18, decoded
+#: back and compared with the source frames): medium 5.4 s, 29.78 dB PSNR, 1.97 MB; veryfast
+#: 2.6 s, 29.65 dB, 2.00 MB; ultrafast 1.5 s, 29.77 dB but 2.39 MB. veryfast keeps the quality
+#: and the size at half the time (the PSNR is bounded by yuv420p chroma on fine class edges).
+X264_PRESET = "veryfast"
+
+
+def _frame_clock(seconds_per_period: float, hold_last: float) -> tuple[int, int, int]:
+    """``(tick_ms, frames_per_period, frames_held_last)`` for one encoded frame per tick.
+
+    The tick is the greatest common divisor of the period and hold durations (in 10 ms steps),
+    so with the defaults (1 s per period, 3 s hold) one frame per period is encoded and the last
+    frame three times, instead of ten identical frames per second.
+    """
+    import math
+
+    per_ms = max(10, int(round(seconds_per_period * 100)) * 10)
+    hold_ms = int(round(hold_last * 100)) * 10
+    tick = math.gcd(per_ms, hold_ms) if hold_ms > per_ms else per_ms
+    return tick, per_ms // tick, max(per_ms, hold_ms) // tick
+
+
 def write_mp4(
     frames: Iterable[np.ndarray],
     path: Path | str,
@@ -267,13 +293,16 @@ def write_mp4(
     hold_last: float = 3.0,
     tween: int = 0,
     crf: int = 18,
+    preset: str = X264_PRESET,
     pad_colour: Sequence[int] = (255, 255, 255),
     force: bool = False,
 ) -> Path:
     """Write an H.264 MP4 (yuv420p, +faststart) with each period shown ``seconds_per_period``.
 
-    ``tween`` > 0 cross-fades into the next period over that many frames (taken out of the
-    period's own time). Only two frames are held in memory at a time. Returns ``path``.
+    Without tweening each period is encoded once (the frame rate is set so that one frame
+    lasts one period; the last one is held ``hold_last`` seconds). ``tween`` > 0 cross-fades
+    into the next period over that many frames at ``fps`` (taken out of the period's own
+    time). Only two frames are held in memory at a time. Returns ``path``.
     """
     if fps < 1 or fps > 120:
         raise ConfigError(f"--fps {fps} is out of range; use 1 to 120")
@@ -285,9 +314,13 @@ def write_mp4(
             f"--tween {tween} frames do not fit in one period ({per} frames at --fps {fps} and "
             f"--seconds-per-period {seconds_per_period:g}); use --tween {max(per - 1, 0)} or less"
         )
+    if tween:
+        rate = f"{int(fps)}/1"
+        hold_end = max(per, int(round(hold_last * fps)))
+    else:
+        tick, per, hold_end = _frame_clock(seconds_per_period, hold_last)
+        rate = f"1000/{tick}"
     exe = _ffmpeg()
-    import imageio_ffmpeg
-
     path = _check_target(Path(path), force)
     it = iter(frames)
     try:
@@ -298,20 +331,18 @@ def write_mp4(
     n_out = 0
     n_in = 0
     with atomic_path(path) as tmp:
-        writer = imageio_ffmpeg.write_frames(
-            str(tmp),
-            (w, h),
-            fps=fps,
-            codec="libx264",
-            pix_fmt_in="rgb24",
-            pix_fmt_out="yuv420p",
-            quality=None,
-            macro_block_size=1,
-            ffmpeg_log_level="error",
-            output_params=["-crf", str(int(crf)), "-preset", "medium", "-movflags", "+faststart"],
-        )
+        cmd = [
+            exe, "-y", "-hide_banner", "-loglevel", "error",
+            "-f", "rawvideo", "-pix_fmt", "rgb24", "-s", f"{w}x{h}", "-framerate", rate,
+            "-i", "-",
+            "-an", "-c:v", "libx264", "-preset", preset, "-crf", str(int(crf)),
+            "-pix_fmt", "yuv420p", "-movflags", "+faststart", "-f", "mp4", str(tmp),
+        ]  # fmt: skip
+        import subprocess
+
+        proc = subprocess.Popen(cmd, stdin=subprocess.PIPE, stderr=subprocess.PIPE)
+        assert proc.stdin is not None
         try:
-            writer.send(None)
             while current is not None:
                 n_in += 1
                 try:
@@ -322,26 +353,37 @@ def write_mp4(
                     raise EncoderError(
                         "frames differ in size; every frame of an MP4 must be the same size"
                     )
-                hold = per - (tween if nxt is not None else 0)
-                if nxt is None:
-                    hold = max(per, int(round(hold_last * fps)))
+                hold = per - (tween if nxt is not None else 0) if nxt is not None else hold_end
                 data = current.tobytes()
                 for _ in range(hold):
-                    writer.send(data)
+                    proc.stdin.write(data)
                 n_out += hold
                 if nxt is not None and tween:
                     a = current.astype(np.float32)
                     b = nxt.astype(np.float32)
                     for t in range(1, tween + 1):
                         f = t / (tween + 1)
-                        writer.send(np.round(a * (1 - f) + b * f).astype(np.uint8).tobytes())
+                        proc.stdin.write(np.round(a * (1 - f) + b * f).astype(np.uint8).tobytes())
                     n_out += tween
                 current = nxt
-            writer.close()
-        except (OSError, RuntimeError) as exc:
-            if isinstance(exc, EncoderError):
-                raise
-            raise EncoderError(f"ffmpeg ({exe}) failed while writing {path}: {exc}") from None
+            proc.stdin.close()
+            err = proc.stderr.read().decode(errors="replace") if proc.stderr else ""
+            if proc.wait() != 0:
+                raise EncoderError(f"ffmpeg ({exe}) failed while writing {path}: {err.strip()}")
+        except OSError as exc:
+            proc.kill()
+            err = proc.stderr.read().decode(errors="replace") if proc.stderr else ""
+            proc.wait()
+            raise EncoderError(
+                f"ffmpeg ({exe}) failed while writing {path}: {err.strip() or exc}"
+            ) from None
+        except BaseException:
+            proc.kill()
+            proc.wait()
+            raise
+        finally:
+            if proc.stderr:
+                proc.stderr.close()
     size = path.stat().st_size
     log.info("wrote %s: %d periods, %d video frames, %.2f MB", path, n_in, n_out, size / 1e6)
     return path

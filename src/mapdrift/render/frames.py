@@ -19,6 +19,7 @@ to be present, so every frame shares one legend.
 
 from __future__ import annotations
 
+import functools
 import logging
 from collections.abc import Iterator, Sequence
 from typing import Any
@@ -32,12 +33,18 @@ from mapdrift.palettes import CLUSTER_BLANK, NODATA, NODATA_HATCH
 from mapdrift.render import furniture as fur
 from mapdrift.render import layout as lay
 from mapdrift.render.pixels import hatch_alpha, pack_rgb, unpack_rgb
-from mapdrift.render.raster import LabelRaster, metres_per_unit
+from mapdrift.render.raster import LabelRaster, ObjectCache, metres_per_unit
 from mapdrift.render.sprites import SpriteCache, composite
 
 __all__ = ["FrameRenderer", "pack_rgb", "render_frames", "unit_rings_px", "unpack_rgb"]
 
 log = logging.getLogger(__name__)
+
+#: Units drawn smaller than this many pixels are not outlined (see ``_dynamic_sprites``).
+OUTLINE_MIN_PX = 30.0
+
+_RINGS = ObjectCache(4)  # unit rings in frame pixels, per (geometry, map box)
+_STATIC = ObjectCache(6)  # base frame, overlay, hatch, dynamic figure and sprites, per map
 
 
 def unit_rings_px(geoms: Any, transform: Any) -> tuple[list[np.ndarray], np.ndarray]:
@@ -54,6 +61,14 @@ def unit_rings_px(geoms: Any, transform: Any) -> tuple[list[np.ndarray], np.ndar
     xy = np.column_stack([cx + transform.left, cy + transform.top])
     cuts = np.flatnonzero(np.diff(ring_of)) + 1
     return np.split(xy, cuts), part_of[ring_part]
+
+
+@functools.lru_cache(maxsize=4)
+def _hatch(h: int, w: int, spacing: float, width: float) -> np.ndarray:
+    """The no-data hatching alpha of a frame size (read-only, shared)."""
+    a = hatch_alpha(h, w, spacing=spacing, width=width)
+    a.setflags(write=False)
+    return a
 
 
 def _rgba(fig: Any) -> np.ndarray:
@@ -188,22 +203,44 @@ class FrameRenderer:
             )
         ]
         self.raster = LabelRaster.build(
-            geoms, tr, ss=supersample, min_unit_px=min_unit_px, unit_ids=ids, size_text=f"{w}x{h}"
+            geometry,
+            tr,
+            ss=supersample,
+            min_unit_px=min_unit_px,
+            unit_ids=ids,
+            size_text=f"{w}x{h}",
         )
         self.findings: tuple[Finding, ...] = self.raster.findings
         self._min_unit_px = float(min_unit_px)
-        self._rings, self._ring_unit = unit_rings_px(geoms, tr)
-        self._mark_xy = _mark_points(geoms, tr) if self.chrome.marks else None
-        self._ring_start = np.searchsorted(self._ring_unit, np.arange(n_units + 1))
-        self._ring_sorted = bool(np.all(np.diff(self._ring_unit) >= 0))
         self._class_rgb = np.array(
             [hex_to_rgb8(c) for c in self.colours] + [hex_to_rgb8(NODATA)], dtype=np.uint8
         )
         self._paper = np.array(hex_to_rgb8(lay.PAPER), dtype=np.uint8)
-        self._prepare_static()
-        self._fig, ax = lay.new_figure(self.layout, transparent=True)
-        self._dyn = fur.DynamicArtists(ax, self.layout, self.chrome)
-        self._sprites = SpriteCache(self._fig)
+        # what depends only on (geometry, layout, texts) is prepared once and shared by every
+        # renderer of the same map: the animation's GIF and MP4 and the poster of one run
+        rings_key = (id(geometry), repr(tr))
+        rings = _RINGS.get(rings_key, geometry)
+        if rings is None:
+            rings = unit_rings_px(geoms, tr)
+            _RINGS.put(rings_key, geometry, rings)
+        self._rings, self._ring_unit = rings
+        self._ring_start = np.searchsorted(self._ring_unit, np.arange(n_units + 1))
+        self._ring_sorted = bool(np.all(np.diff(self._ring_unit) >= 0))
+        self._mark_xy = _mark_points(geoms, tr) if self.chrome.marks else None
+        static_key = (id(geometry), repr(self.layout), repr(self.chrome), self._min_unit_px,
+                      int(supersample), n_units)  # fmt: skip
+        static = _STATIC.get(static_key, geometry)
+        if static is None:
+            static = self._prepare_static()
+            fig, ax = lay.new_figure(self.layout, transparent=True)
+            static["dynamic"] = (fig, fur.DynamicArtists(ax, self.layout, self.chrome))
+            static["sprites"] = SpriteCache(fig)
+            _STATIC.put(static_key, geometry, static)
+        for name, value in static.items():
+            if name not in ("dynamic", "sprites"):
+                setattr(self, name, value)
+        self._fig, self._dyn = static["dynamic"]
+        self._sprites = static["sprites"]
 
     # -- preparation -----------------------------------------------------------------------
     def _boundary_width(self) -> float | None:
@@ -223,7 +260,8 @@ class FrameRenderer:
         keep = np.flatnonzero(span.max(axis=1) >= 2.0)
         return [self._rings[i] for i in keep]
 
-    def _prepare_static(self) -> None:
+    def _prepare_static(self) -> dict[str, Any]:
+        """The base frame (paper, furniture) and the overlay and hatch pixels of the map box."""
         L, tr = self.layout, self.layout.transform
         fig, ax = lay.new_figure(L, transparent=True)
         bw = self._boundary_width()
@@ -237,13 +275,10 @@ class FrameRenderer:
             dots=self.raster.dot_centres,
             dot_px=self._min_unit_px,
         )
-        over = _rgba(fig).astype(np.float32) / 255.0
+        over8 = np.array(_rgba(fig))  # uint8 [H, W, 4]; float work only where it is drawn
         fig.clear()
-        _paint_edge(over, self.raster.label, tr)
-        alpha = over[..., 3:4]
-        hatch = hatch_alpha(
-            L.height, L.width, spacing=max(6.0 * L.s, 4.0), width=max(1.3 * L.s, 1.0)
-        )
+        _paint_edge(over8, self.raster.label, tr)
+        hatch = _hatch(L.height, L.width, max(6.0 * L.s, 4.0), max(1.3 * L.s, 1.0))
         # base frame: paper, the no-data swatch hatched exactly as on the map, furniture on top
         base = np.empty((L.height, L.width, 3), dtype=np.float32)
         base[:] = self._paper / 255.0
@@ -252,21 +287,33 @@ class FrameRenderer:
         hat = np.array(hex_to_rgb8(NODATA_HATCH), np.float32) / 255.0
         a = hatch[y : y + sh, x : x + sw, None]
         base[y : y + sh, x : x + sw] = nod * (1 - a) + hat * a
-        base = base * (1 - alpha) + over[..., :3] * alpha
-        self._base = np.round(base * 255).astype(np.uint8)
-        self._base_packed = pack_rgb(self._base)
+        flat8 = over8.reshape(-1, 4)
+        touched = np.flatnonzero(flat8[:, 3])
+        a_t = flat8[touched, 3:4].astype(np.float32) / 255.0
+        c_t = flat8[touched, :3].astype(np.float32) / 255.0
+        bflat = base.reshape(-1, 3)
+        bflat[touched] = bflat[touched] * (1 - a_t) + c_t * a_t
+        swatch = np.zeros((L.height, L.width), dtype=bool)
+        swatch[y : y + sh, x : x + sw] = True
+        work = np.union1d(touched, np.flatnonzero(swatch))
+        out: dict[str, Any] = {}
+        base8 = np.empty((L.height, L.width, 3), dtype=np.uint8)
+        base8[:] = self._paper  # = round(paper / 255 * 255) where nothing is drawn
+        base8.reshape(-1, 3)[work] = np.round(bflat[work] * 255).astype(np.uint8)
+        out["_base"] = base8
+        out["_base_packed"] = pack_rgb(base8)
         # over the map box: only pixels the overlay touches are composited per frame
         sl = (slice(tr.top, tr.top + tr.height), slice(tr.left, tr.left + tr.width))
-        a_map = alpha[sl][..., 0].ravel()
-        self._ov_idx = np.flatnonzero(a_map > 0)
-        a_sel = a_map[self._ov_idx, None]
-        c_sel = over[sl][..., :3].reshape(-1, 3)[self._ov_idx]
+        box8 = over8[sl].reshape(-1, 4)
+        out["_ov_idx"] = np.flatnonzero(box8[:, 3])
+        a_sel = box8[out["_ov_idx"], 3:4].astype(np.float32) / 255.0
+        c_sel = box8[out["_ov_idx"], :3].astype(np.float32) / 255.0
         # integer compositing: out = (px * (256 - a) + c * a) >> 8, a and c * a in 1/256 steps
         # (a fourth, zero channel so the packed pixels are blended as whole words)
-        self._ov_a = np.round(a_sel * 256).astype(np.uint16)
-        ov_c = np.zeros((len(self._ov_idx), 4), dtype=np.uint16)
+        out["_ov_a"] = np.round(a_sel * 256).astype(np.uint16)
+        ov_c = np.zeros((len(out["_ov_idx"]), 4), dtype=np.uint16)
         ov_c[:, :3] = np.round(c_sel * a_sel * 255 * 256).astype(np.uint16)
-        self._ov_c = ov_c
+        out["_ov_c"] = ov_c
         h_map = hatch[sl].ravel()
         hatch_idx = np.flatnonzero(h_map > 0)
         hatch_a = h_map[hatch_idx, None]
@@ -275,10 +322,11 @@ class FrameRenderer:
         # by slicing instead of testing every hatch pixel
         lab = self.raster.label.ravel()[hatch_idx]
         order = np.argsort(lab, kind="stable")
-        self._hatch_idx = hatch_idx[order]
-        self._hatch_packed = pack_rgb(hatch_rgb[order])
-        self._hatch_start = np.searchsorted(lab[order], np.arange(len(self.codes) + 1))
-        self._map_slice = sl
+        out["_hatch_idx"] = hatch_idx[order]
+        out["_hatch_packed"] = pack_rgb(hatch_rgb[order])
+        out["_hatch_start"] = np.searchsorted(lab[order], np.arange(len(self.codes) + 1))
+        out["_map_slice"] = sl
+        return out
 
     # -- frames ------------------------------------------------------------------------------
     @property
@@ -373,6 +421,10 @@ class FrameRenderer:
         if self.outlines is not None:
             units = np.unique(np.asarray(list(self.outlines[j]), dtype=np.int64))
             n_out = units.size
+            # outlines of units a few pixels across would only smear their fill colour (and at
+            # national scale thousands of them cost a vector pass per frame): only units of at
+            # least OUTLINE_MIN_PX pixels are outlined; the legend still counts every one
+            units = units[self.raster.area_px[units] >= OUTLINE_MIN_PX]
             segs = self._segments(units)
             if self.names is not None:
                 call = [self.names[u] for u in units]
@@ -402,8 +454,9 @@ class FrameRenderer:
             yield self.frame(j)
 
     def close(self) -> None:
-        """Release the matplotlib figure."""
-        self._fig.clear()
+        """Drop this renderer's references (the shared figure is freed with its cache entry)."""
+        self._sprites = None  # type: ignore[assignment]
+        self._dyn = None
 
 
 def _round_up_share(x: float) -> float:
@@ -441,18 +494,17 @@ def _mark_points(geoms: Any, transform: Any) -> np.ndarray:
     return out
 
 
-def _paint_edge(over: np.ndarray, label: np.ndarray, tr: Any) -> None:
+def _paint_edge(over8: np.ndarray, label: np.ndarray, tr: Any) -> None:
     """Paint the edge of the mapped area (mapped pixels next to outside ones) into the overlay
-    ``over`` ([H, W, 4] float, straight alpha), so pale classes stay visible against the paper."""
+    ``over8`` ([H, W, 4] uint8, straight alpha), so pale classes stay visible on the paper."""
     inside = label >= 0
     if not inside.any():
         return
     pad = np.pad(inside, 1, constant_values=False)
     core = pad[:-2, 1:-1] & pad[2:, 1:-1] & pad[1:-1, :-2] & pad[1:-1, 2:]
     edge = inside & ~core
-    rgb = np.array(hex_to_rgb8(lay.COAST), np.float32) / 255.0
-    sub = over[tr.top : tr.top + tr.height, tr.left : tr.left + tr.width]
-    sub[edge] = (*rgb, 0.85)
+    sub = over8[tr.top : tr.top + tr.height, tr.left : tr.left + tr.width]
+    sub[edge] = (*hex_to_rgb8(lay.COAST), 217)
 
 
 def _labels_per_period(labels: Any, k: int, n_periods: int) -> tuple[tuple[str, ...], ...]:

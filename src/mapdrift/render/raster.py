@@ -214,43 +214,36 @@ class LabelRaster:
         min_unit_px: float = 0.0,
         unit_ids: Any = None,
         size_text: str = "",
+        cache: bool = True,
     ) -> LabelRaster:
         """Rasterise ``geometry`` (map CRS, order = unit order) into ``transform``'s box.
 
         Units drawn smaller than one pixel become a finding; with ``min_unit_px`` > 0 every unit
         drawn smaller than a ``min_unit_px`` square is stamped as a disc of that diameter at its
         representative point, so it keeps its class colour.
-        """
-        import shapely
 
-        geoms = np.asarray(getattr(geometry, "values", geometry), dtype=object)
-        n = len(geoms)
-        fine = scanline_fill(geoms, transform, ss)
-        counts = np.bincount(fine.ravel() + 1, minlength=n + 1)[1:]
-        area_px = counts / float(ss * ss)
+        With ``cache`` (the default) the raster is kept for the same ``geometry`` object and
+        box (its size, extent and resolution; the box's place on the frame does not matter),
+        so the animation, the poster and the static maps of one run rasterise once. The
+        geometry must not be changed in place between calls (a Panel's never is).
+        """
+        key = (id(geometry), transform.x0, transform.y1, transform.res, transform.width,
+               transform.height, int(ss), float(min_unit_px))  # fmt: skip
+        core = _CACHE.get(key, geometry) if cache else None
+        if core is None:
+            core = _rasterise(geometry, transform, ss, min_unit_px)
+            if cache:
+                _CACHE.put(key, geometry, core)
+        fields, small, gone = core
+        n = len(fields["area_px"])
         ids = list(unit_ids) if unit_ids is not None else [str(i) for i in range(n)]
         findings: list[Finding] = []
-        empty = shapely.is_empty(geoms) | shapely.is_missing(geoms)
-        small = np.flatnonzero((area_px < 1.0) & ~empty)
-        dots = np.zeros(0, dtype=np.int64)
-        centres = np.zeros((0, 2))
-        if min_unit_px > 0:
-            dots = np.flatnonzero((area_px < min_unit_px**2) & ~empty)
-        if dots.size:
-            pts = shapely.point_on_surface(geoms[dots])
-            xy = shapely.get_coordinates(pts)
-            cx, cy = transform.to_pixels(xy[:, 0], xy[:, 1], ss)
-            centres = np.column_stack(transform.to_pixels(xy[:, 0], xy[:, 1], 1))
-            _stamp_discs(fine, cx, cy, min_unit_px * ss / 2.0, dots)
-            counts = np.bincount(fine.ravel() + 1, minlength=n + 1)[1:]
-            area_px = counts / float(ss * ss)
         if small.size:
             fix = (
                 f"they are drawn as {min_unit_px:g}-pixel dots"
                 if min_unit_px > 0
                 else "pass --min-unit-px 3 to draw them as dots, or a larger --size"
             )
-            gone = int((counts[small] == 0).sum()) if not dots.size else 0
             findings.append(
                 Finding(
                     "warning" if min_unit_px <= 0 else "note",
@@ -261,7 +254,7 @@ class LabelRaster:
                     tuple(ids[i] for i in small),
                 )
             )
-        tiny = np.setdiff1d(dots, small)
+        tiny = np.setdiff1d(fields["dots"], small)
         if tiny.size:
             findings.append(
                 Finding(
@@ -274,27 +267,7 @@ class LabelRaster:
                     tuple(ids[i] for i in tiny),
                 )
             )
-        hh, ww = transform.height, transform.width
-        sub = fine.reshape(hh, ss, ww, ss).transpose(0, 2, 1, 3).reshape(hh * ww, ss * ss)
-        first = sub[:, 0]
-        pure = (sub == first[:, None]).all(axis=1)
-        mixed = np.flatnonzero(~pure)
-        a, b, wa = _two_labels(sub[mixed])
-        label = first.copy()
-        label[mixed] = a
-        return cls(
-            transform=transform,
-            ss=ss,
-            label=label.reshape(hh, ww),
-            mixed=mixed,
-            mixed_a=a,
-            mixed_b=b,
-            mixed_w=wa,
-            area_px=area_px,
-            dots=dots,
-            dot_centres=centres,
-            findings=tuple(findings),
-        )
+        return cls(transform=transform, ss=ss, findings=tuple(findings), **fields)
 
     def colourise(self, unit_rgb: np.ndarray, outside: Any) -> np.ndarray:
         """RGB image ``[height, width, 3]`` uint8 from a colour per unit ``[n_units, 3]`` uint8.
@@ -355,3 +328,85 @@ def _stamp_discs(
     ok = (cols >= 0) & (cols < w) & (rows >= 0) & (rows < h)
     vals = np.broadcast_to(units[:, None], cols.shape)
     fine[rows[ok], cols[ok]] = vals[ok]
+
+
+def _rasterise(
+    geometry: Any, transform: MapTransform, ss: int, min_unit_px: float
+) -> tuple[dict[str, np.ndarray], np.ndarray, int]:
+    """The arrays of a :class:`LabelRaster`, the sub-pixel units and how many vanish."""
+    import shapely
+
+    geoms = np.asarray(getattr(geometry, "values", geometry), dtype=object)
+    n = len(geoms)
+    fine = scanline_fill(geoms, transform, ss)
+    counts = np.bincount(fine.ravel() + 1, minlength=n + 1)[1:]
+    area_px = counts / float(ss * ss)
+    empty = shapely.is_empty(geoms) | shapely.is_missing(geoms)
+    small = np.flatnonzero((area_px < 1.0) & ~empty)
+    dots = np.zeros(0, dtype=np.int64)
+    centres = np.zeros((0, 2))
+    if min_unit_px > 0:
+        dots = np.flatnonzero((area_px < min_unit_px**2) & ~empty)
+    if dots.size:
+        pts = shapely.point_on_surface(geoms[dots])
+        xy = shapely.get_coordinates(pts)
+        cx, cy = transform.to_pixels(xy[:, 0], xy[:, 1], ss)
+        centres = np.column_stack(transform.to_pixels(xy[:, 0], xy[:, 1], 1))
+        _stamp_discs(fine, cx, cy, min_unit_px * ss / 2.0, dots)
+        counts = np.bincount(fine.ravel() + 1, minlength=n + 1)[1:]
+        area_px = counts / float(ss * ss)
+    gone = int((counts[small] == 0).sum()) if not dots.size else 0
+    hh, ww = transform.height, transform.width
+    sub = fine.reshape(hh, ss, ww, ss).transpose(0, 2, 1, 3).reshape(hh * ww, ss * ss)
+    first = sub[:, 0]
+    pure = (sub == first[:, None]).all(axis=1)
+    mixed = np.flatnonzero(~pure)
+    a, b, wa = _two_labels(sub[mixed])
+    label = first.copy()
+    label[mixed] = a
+    fields = {
+        "label": label.reshape(hh, ww),
+        "mixed": mixed,
+        "mixed_a": a,
+        "mixed_b": b,
+        "mixed_w": wa,
+        "area_px": area_px,
+        "dots": dots,
+        "dot_centres": centres,
+    }
+    for v in fields.values():
+        v.setflags(write=False)  # shared between renderers through the cache
+    return fields, small, gone
+
+
+class ObjectCache:
+    """A small least-recently-used cache keyed by a tuple that starts with ``id(owner)``.
+
+    The entry keeps a reference to ``owner`` and is returned only for that very object, so
+    an id reused by a new object after the old one was freed can never hit.
+    """
+
+    def __init__(self, size: int = 4) -> None:
+        from collections import OrderedDict
+
+        self.size = size
+        self._d: OrderedDict[tuple[Any, ...], tuple[Any, Any]] = OrderedDict()
+
+    def get(self, key: tuple[Any, ...], owner: Any) -> Any:
+        hit = self._d.get(key)
+        if hit is None or hit[0] is not owner:
+            return None
+        self._d.move_to_end(key)
+        return hit[1]
+
+    def put(self, key: tuple[Any, ...], owner: Any, value: Any) -> None:
+        self._d[key] = (owner, value)
+        self._d.move_to_end(key)
+        while len(self._d) > self.size:
+            self._d.popitem(last=False)
+
+    def clear(self) -> None:
+        self._d.clear()
+
+
+_CACHE = ObjectCache(4)

@@ -7,9 +7,9 @@ alone into the figure's renderer, cropped to the pixels it touched, and kept und
 captures its state (its text, or the period for the timeline). A frame composites the cached
 sprites over its rectangles with the same integer "over" formula as before, so the pixels are
 unchanged; groups occupy disjoint places on the frame, so compositing them one by one equals
-compositing the whole layer at once. Plain one-line texts are laid out once (for the box and
-the drawing) and drawn from cached glyph bitmaps (:mod:`mapdrift.render.glyphs`), with the
-pixels ``Text.draw`` makes.
+compositing the whole layer at once. Only matplotlib's public API is used (``Artist.draw``,
+``get_window_extent``, the Agg renderer's ``clear`` and ``buffer_rgba``): each distinct text is
+drawn once per animation, so a frame pays for compositing only.
 """
 
 from __future__ import annotations
@@ -19,8 +19,6 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-
-from mapdrift.render.glyphs import GlyphAtlas, TextPlan
 
 __all__ = ["Sprite", "SpriteCache", "composite"]
 
@@ -64,7 +62,6 @@ class SpriteCache:
         self._height = int(round(fig.bbox.height))
         self._width = int(round(fig.bbox.width))
         self._cache: dict[Hashable, Sprite | None] = {}
-        self._atlas = GlyphAtlas(self._renderer)
 
     def __len__(self) -> int:
         return len(self._cache)
@@ -95,11 +92,8 @@ class SpriteCache:
             return out
         # groups whose (padded) boxes are disjoint share one pass over the renderer
         passes: list[list[tuple[int, list[Any], tuple[int, int, int, int]]]] = []
-        plans: dict[int, TextPlan | None] = {}
         for i, vis in todo:
-            for a in vis:
-                plans[id(a)] = self._atlas.plan(a)
-            box = self._box(vis, plans)
+            box = self._box(vis)
             for group in passes:
                 if all(_disjoint(box, other) for _, _, other in group):
                     group.append((i, vis, box))
@@ -110,11 +104,7 @@ class SpriteCache:
         for group in passes:
             r.clear()
             for a in sorted((a for _, vis, _ in group for a in vis), key=lambda a: a.get_zorder()):
-                plan = plans.get(id(a))
-                if plan is not None:
-                    self._atlas.draw(plan)
-                else:
-                    a.draw(r)
+                a.draw(r)
             buf = np.asarray(r.buffer_rgba())
             for i, _vis, box in group:
                 sprite = _crop(buf, box)
@@ -124,20 +114,14 @@ class SpriteCache:
                     self._cache[key] = sprite
         return out
 
-    def _box(
-        self, artists: Sequence[Any], plans: dict[int, TextPlan | None] | None = None
-    ) -> tuple[int, int, int, int]:
+    def _box(self, artists: Sequence[Any]) -> tuple[int, int, int, int]:
         """Rows and columns ``(r0, r1, c0, c1)`` the artists may touch, padded and clipped."""
         r = self._renderer
         H, W = self._height, self._width
         r0, r1, c0, c1 = H, 0, W, 0
         for a in artists:
-            plan = plans.get(id(a)) if plans else None
-            if plan is not None:
-                x0, y0, x1, y1 = plan.extent
-            else:
-                bb = a.get_window_extent(r)
-                x0, y0, x1, y1 = bb.x0, bb.y0, bb.x1, bb.y1
+            bb = a.get_window_extent(r)
+            x0, y0, x1, y1 = bb.x0, bb.y0, bb.x1, bb.y1
             if not np.all(np.isfinite([x0, x1, y0, y1])):
                 return 0, H, 0, W
             r0 = min(r0, int(np.floor(H - y1)) - _PAD)
