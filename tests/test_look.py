@@ -83,7 +83,7 @@ def _texts_of_a_frame(size, min_text_px=0.0, n_p=13, **kw):
         subtitle="filings per 1,000 mortgaged parcels",
         caption="Source: an invented county, long source line " * 4,
         legend_title="filings per 1,000 mortgaged parcels",
-        outline_label="jumped 2+ classes since the previous period",
+        outline_label="credibly jumped 2+ classes since the previous period",
         unit_noun="tracts",
         min_text_px=min_text_px,
     )
@@ -304,7 +304,9 @@ def test_slide_text_never_below_the_floor_and_pictures_fill_the_box(tmp_path, mo
     pic = tmp_path / "p.png"
     Image.new("RGB", sl.PICTURE_BOX, "white").save(pic)
     long = "A long sentence that must wrap inside its box on the slide; " * 12
-    table = pd.DataFrame({"unit": ["07038"] * 12, "name": ["Quorlan Landing"] * 12, "n": [1208] * 12})
+    table = pd.DataFrame(
+        {"unit": ["07038"] * 12, "name": ["Quorlan Landing"] * 12, "n": [1208] * 12}
+    )
     for slide in (
         sl.Slide("title", long, subtitle=long, bullets=("a", "b")),
         sl.Slide("answer", "The answer " * 8, bullets=(long,) * 8),

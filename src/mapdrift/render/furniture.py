@@ -33,6 +33,7 @@ from mapdrift.render.layout import (
     TEXT,
     Chrome,
     Layout,
+    _text_width,
     _wrap_px,
     fit_font,
     nodata_row,
@@ -84,13 +85,24 @@ def draw_mark(
     return [halo, mark]
 
 
-def _label(ax: Any, layout: Layout, x: float, y: float, label: str, *, width: float) -> list[Any]:
-    """A legend label: one line, or words on the first line and a muted second line."""
+def _label(
+    ax: Any, layout: Layout, x: float, y: float, label: str, *, width: float, colour: str = TEXT
+) -> list[Any]:
+    """A legend label: one line (wrapped in two when it does not fit at the text floor), or
+    words on the first line and a muted second line."""
     kw = {"family": FONT, "va": "center"}
     first, _, second = label.partition("\n")
     size = fit_font(first, layout.body, width, min_size=layout.small)
     if not second:
-        return [ax.text(x, y, first, fontsize=size, color=TEXT, **kw)]
+        lines = [first]
+        if _text_width(first, size) > width:  # too long even at the floor: two lines
+            lines = _wrap_px(first, layout.small, width)
+            size = layout.small
+            if len(lines) > 2:
+                lines = [lines[0], " ".join(lines[1:])]
+        return [
+            ax.text(x, y, "\n".join(lines), fontsize=size, color=colour, linespacing=1.05, **kw)
+        ]
     dy = layout.row_h * 0.2
     small = fit_font(second, layout.small, width, min_size=layout.small)
     return [
@@ -104,8 +116,6 @@ def header_width(layout: Layout, chrome: Chrome) -> float:
     noun = chrome.text.unit_noun
     longest = max(chrome.period_labels, key=len, default="")
     head = f"{noun} in {longest}" if layout.strip is not None else noun
-    from mapdrift.render.layout import _text_width
-
     return max(_text_width(head, layout.small) + 10 * layout.t, 60 * layout.t)
 
 
@@ -245,15 +255,8 @@ def draw_static(
                 (x, y), bw, bh, facecolor=NODATA, edgecolor=NODATA_HATCH, hatch="////", linewidth=0
             )
         )
-    ax.text(
-        x + bw + 10 * t,
-        y + bh / 2,
-        chrome.nodata_label,
-        fontsize=fit_font(chrome.nodata_label, layout.body, label_w, min_size=layout.small),
-        color=MUTED,
-        va="center",
-        **kw,
-    )
+    _label(ax, layout, x + bw + 10 * t, y + bh / 2, chrome.nodata_label, width=label_w,
+           colour=MUTED)  # fmt: skip
     if len(chrome.labels) == 1:
         for i, label in enumerate(chrome.labels[0]):
             x, y, bw, bh = swatch_box(layout, i)
@@ -269,17 +272,7 @@ def draw_static(
                 )
             )  # fmt: skip
         ax.add_patch(Rectangle((x, y), bw, bh, facecolor="none", edgecolor=RULE, linewidth=0.6))
-        ax.text(
-            x + bw + 10 * t,
-            y + bh / 2,
-            chrome.outline_label,
-            fontsize=fit_font(
-                chrome.outline_label, layout.body, pw - 44 * t, min_size=layout.small
-            ),
-            color=TEXT,
-            va="center",
-            **kw,
-        )
+        _label(ax, layout, x + bw + 10 * t, y + bh / 2, chrome.outline_label, width=pw - 44 * t)
     if chrome.strip_note:
         row = nodata_row(chrome) + 1 + (1 if chrome.outline_label else 0)
         x, y, bw, bh = swatch_box(layout, row)
@@ -553,8 +546,9 @@ class DynamicArtists:
             shown = list(callouts[: max(min(room, 8), 0)])
             more = max(n_outlined, len(callouts)) - len(shown)
             head = chrome.outline_label or "outlined"
+            head = "\n".join(_wrap_px(f"{head}:", layout.small, layout.panel_w))
             text = (
-                f"{head}:\n"
+                f"{head}\n"
                 + "\n".join(f"  {c}" for c in shown)
                 + (f"\n  and {more:,} more" if more > 0 else "")
             )
