@@ -342,14 +342,9 @@ def _step_animate(state: RunState) -> str:
     text["legend_title"] = p.meta.unit_label or p.meta.variable
     ch = state.results.get("changes")
     if ch is not None and len(ch.jumps):  # outline the units that jumped into each period
-        index = {u: i for i, u in enumerate(p.units)}
-        landed = {label: [] for label in p.period_labels}
-        counted = ch.jumps["credible"] != "false"  # moves within count noise are not outlined
-        for unit, to in zip(ch.jumps["unit"][counted], ch.jumps["to_period"][counted].astype(str)):
-            landed[to].append(index[unit])
-        text["outlines"] = [landed[label] for label in p.period_labels]
-        what = "credibly jumped" if ch.tested else "jumped"
-        text["outline_label"] = f"{what} {ch.options.jump}+ classes since the previous period"
+        from mapdrift.brief.pictures import jump_outlines
+
+        text["outlines"], text["outline_label"] = jump_outlines(ch, p)
     done = []
     for fmt in ("gif", "mp4"):
         if fmt in formats:

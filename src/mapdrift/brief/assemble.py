@@ -453,7 +453,13 @@ def _slide_pictures(state: RunState, folder: Path) -> dict[str, Path]:
     least 18 px: the poster frame, the change and cluster pictures, and the small multiples
     split into pages. Returns ``{name: path}`` (multiples as ``multiples-1.png`` ...)."""
     from mapdrift import palettes
-    from mapdrift.brief.pictures import Look, change_pictures, cluster_pictures, multiples_pages
+    from mapdrift.brief.pictures import (
+        Look,
+        change_pictures,
+        cluster_pictures,
+        jump_outlines,
+        multiples_pages,
+    )
     from mapdrift.brief.slides import MIN_TEXT_PX, PICTURE_BOX
     from mapdrift.render.frames import FrameRenderer
     from mapdrift.render.layout import MapText
@@ -467,14 +473,7 @@ def _slide_pictures(state: RunState, folder: Path) -> dict[str, Path]:
     labels = [b.labels for b in c.breaks] if c.per_period else list(c.breaks[0].labels)
     legend = p.meta.unit_label or p.meta.variable
     ch = state.results.get("changes")
-    outlines, outline_label = None, ""
-    if ch is not None and len(ch.jumps):
-        index = {u: i for i, u in enumerate(p.units)}
-        landed: dict[str, list[int]] = {label: [] for label in p.period_labels}
-        for unit, to in zip(ch.jumps["unit"], ch.jumps["to_period"].astype(str)):
-            landed[to].append(index[unit])
-        outlines = [landed[label] for label in p.period_labels]
-        outline_label = f"jumped {ch.options.jump}+ classes since the previous period"
+    outlines, outline_label = jump_outlines(ch, p)
     text = MapText(
         title=spec.title or p.meta.variable,
         subtitle=spec.subtitle or p.meta.unit_label or "",

@@ -28,6 +28,7 @@ __all__ = [
     "change_pictures",
     "cluster_look",
     "cluster_pictures",
+    "jump_outlines",
     "multiples_pages",
     "noun_for",
     "write_cluster_style",
@@ -85,6 +86,25 @@ def _text(look: Look, **words: Any) -> Any:
     from mapdrift.render.layout import MapText
 
     return MapText(unit_noun=look.unit_noun, min_text_px=look.min_text_px, **words)
+
+
+def jump_outlines(changes: Any, panel: Any) -> tuple[list[list[int]] | None, str]:
+    """Per period, the units that jumped into it (credible jumps only when tested against
+    count noise), and the legend's words for them; ``(None, "")`` without jumps."""
+    if changes is None or not len(changes.jumps):
+        return None, ""
+    index = {u: i for i, u in enumerate(panel.units)}
+    landed: dict[str, list[int]] = {label: [] for label in panel.period_labels}
+    counted = changes.jumps["credible"] != "false"  # moves within count noise are not outlined
+    for unit, to in zip(
+        changes.jumps["unit"][counted], changes.jumps["to_period"][counted].astype(str)
+    ):
+        landed[to].append(index[unit])
+    what = "credibly jumped" if changes.tested else "jumped"
+    return (
+        [landed[label] for label in panel.period_labels],
+        f"{what} {changes.options.jump}+ classes since the previous period",
+    )
 
 
 def cluster_look(labels: Sequence[str]) -> tuple[list[str], list[str | None], list[str]]:

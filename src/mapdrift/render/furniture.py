@@ -100,9 +100,8 @@ def _label(
             size = layout.small
             if len(lines) > 2:
                 lines = [lines[0], " ".join(lines[1:])]
-        return [
-            ax.text(x, y, "\n".join(lines), fontsize=size, color=colour, linespacing=1.05, **kw)
-        ]
+        spacing = {"linespacing": 1.05} if len(lines) > 1 else {}
+        return [ax.text(x, y, "\n".join(lines), fontsize=size, color=colour, **spacing, **kw)]
     dy = layout.row_h * 0.2
     small = fit_font(second, layout.small, width, min_size=layout.small)
     return [
