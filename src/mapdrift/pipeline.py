@@ -538,6 +538,16 @@ def _step_units(state: RunState) -> str:
     )
 
 
+def _step_explorer(state: RunState) -> str:
+    formats = state.section(BriefSpec, "brief").formats
+    if "html" not in formats and "explorer" not in formats:
+        return 'not asked for ([brief] formats has neither "html" nor "explorer")'
+    from mapdrift.brief.explorer import payload_from_state, write_explorer
+
+    path = write_explorer(payload_from_state(state), state.path("explorer.html"))
+    return f"explorer.html ({path.stat().st_size / 1e6:.2f} MB)"
+
+
 def _step_whatsnew(state: RunState) -> str:
     if state.run.previous is None:
         return "no previous run given"
@@ -622,6 +632,7 @@ STEPS: list[tuple[str, Callable[[RunState], str]]] = [
     ("clusters", _step_clusters),
     ("animate", _step_animate),
     ("units", _step_units),
+    ("explorer", _step_explorer),
     ("whats-new", _step_whatsnew),
     ("findings", _step_findings),
     ("brief", _step_brief),
