@@ -108,8 +108,9 @@ class BriefSpec:
             )
 
 
-#: The briefing's output formats (``[brief] formats``).
-FORMATS: tuple[str, ...] = ("gif", "mp4", "png", "pptx", "html", "gpkg")
+#: The briefing's output formats (``[brief] formats``); ``explorer.html`` is written for
+#: ``html`` too, ``explorer`` asks for it alone.
+FORMATS: tuple[str, ...] = ("gif", "mp4", "png", "pptx", "html", "gpkg", "explorer")
 
 
 #: Section name -> "module:Class" of its dataclass (imported when a file uses the section).
