@@ -89,6 +89,8 @@ class BriefSpec:
     source: str | None = None
     date: str | None = None
     formats: tuple[str, ...] = ("gif", "mp4", "png", "pptx", "html", "gpkg")
+    #: What the units are called in titles and sentences ("tracts", "neighbourhoods").
+    unit_noun: str = "units"
 
     def __post_init__(self) -> None:
         from mapdrift.safetext import clean

@@ -70,6 +70,7 @@ class Panel:
     denominator: np.ndarray | None = None
     inputs: tuple[Path, ...] = ()
     labels: tuple[str, ...] = ()
+    moe: np.ndarray | None = None  # 90 % margins of error of the values (``--moe``), if given
 
     def __post_init__(self) -> None:
         values = np.array(self.values, dtype=np.float64)  # copy: the caller's array stays theirs
@@ -80,7 +81,7 @@ class Panel:
             )
         values.flags.writeable = False
         object.__setattr__(self, "values", values)
-        for name in ("numerator", "denominator"):
+        for name in ("numerator", "denominator", "moe"):
             arr = getattr(self, name)
             if arr is not None:
                 arr = np.array(arr, dtype=np.float64)
@@ -359,6 +360,7 @@ class InputSpec:
     columns: str | None = None
     numerator: str | None = None
     denominator: str | None = None
+    moe: str | None = None
     per: float = 1000.0
     min_base: float = 20.0
     duplicates: str = "error"

@@ -319,6 +319,8 @@ def _step_classify(state: RunState) -> str:
 
 
 def _text(state: RunState) -> dict[str, Any]:
+    from mapdrift.brief.pictures import REPORT_TEXT_PX
+
     p = state.panel
     brief = state.section(BriefSpec, "brief")
     title = brief.title or p.meta.variable
@@ -328,6 +330,8 @@ def _text(state: RunState) -> dict[str, Any]:
         "subtitle": sub,
         "caption": brief.source or p.meta.source,
         "notice": state.notice,
+        "unit_noun": brief.unit_noun,
+        "min_text_px": REPORT_TEXT_PX,
     }
 
 
@@ -346,14 +350,9 @@ def _step_animate(state: RunState) -> str:
     text["legend_title"] = p.meta.unit_label or p.meta.variable
     ch = state.results.get("changes")
     if ch is not None and len(ch.jumps):  # outline the units that jumped into each period
-        index = {u: i for i, u in enumerate(p.units)}
-        landed = {label: [] for label in p.period_labels}
-        counted = ch.jumps["credible"] != "false"  # moves within count noise are not outlined
-        for unit, to in zip(ch.jumps["unit"][counted], ch.jumps["to_period"][counted].astype(str)):
-            landed[to].append(index[unit])
-        text["outlines"] = [landed[label] for label in p.period_labels]
-        what = "credibly jumped" if ch.tested else "jumped"
-        text["outline_label"] = f"{what} {ch.options.jump}+ classes since the previous period"
+        from mapdrift.brief.pictures import jump_outlines
+
+        text["outlines"], text["outline_label"] = jump_outlines(ch, p)
     done = []
     for fmt in ("gif", "mp4"):
         if fmt in formats:
@@ -449,7 +448,7 @@ def _step_changes(state: RunState) -> str:
     state.results["changes"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_changes(result, state.staging, units_table=False)
-    change_pictures(result, panel, state.staging)
+    change_pictures(result, panel, state.staging, look=_look(state))
     n_jump = int(result.units["jump"].sum())
     up = int((result.net_change > 0).sum())
     down = int((result.net_change < 0).sum())
@@ -482,7 +481,9 @@ def _step_clusters(state: RunState) -> str:
     state.results["clusters"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_clusters(result, state.staging, warning=state.view or None)
-    cluster_pictures(result, state.panel, state.staging, trends=not state.trends_skipped)
+    cluster_pictures(
+        result, state.panel, state.staging, trends=not state.trends_skipped, look=_look(state)
+    )
     last = result.period_labels[-1]
     hh = int((result.codes[:, -1] == 0).sum())
     if state.trends_skipped:
@@ -511,6 +512,7 @@ def _step_units(state: RunState) -> str:
     state.results["units"] = df
     write_csv(df, state.path("units.csv"), warning=state.csv_note)
     formats = state.section(BriefSpec, "brief").formats
+    style = ""
     if "gpkg" in formats:
         p = state.panel
         if write_units_gpkg(
@@ -525,9 +527,25 @@ def _step_units(state: RunState) -> str:
                     "units_by_period (one row per unit and period)",
                 )
             )
+        last = f"cluster_{state.panel.period_labels[-1]}"
+        if last in df.columns:  # the cluster look for the units layer, as an OGC SLD
+            from mapdrift.brief.pictures import write_cluster_style
+
+            write_cluster_style(state.path("units_clusters.sld"), last)
+            style = ", units_clusters.sld"
     return f"{len(df)} units x {len(df.columns)} columns (units.csv" + (
-        ", units.gpkg)" if "gpkg" in formats else ")"
+        f", units.gpkg{style})" if "gpkg" in formats else ")"
     )
+
+
+def _step_explorer(state: RunState) -> str:
+    formats = state.section(BriefSpec, "brief").formats
+    if "html" not in formats and "explorer" not in formats:
+        return 'not asked for ([brief] formats has neither "html" nor "explorer")'
+    from mapdrift.brief.explorer import payload_from_state, write_explorer
+
+    path = write_explorer(payload_from_state(state), state.path("explorer.html"))
+    return f"explorer.html ({path.stat().st_size / 1e6:.2f} MB)"
 
 
 def _step_whatsnew(state: RunState) -> str:
@@ -568,6 +586,12 @@ def _step_findings(state: RunState) -> str:
     return f"{plural(n['warning'], 'warning')}, {plural(n['note'], 'note')}"
 
 
+def _look(state: RunState) -> Any:
+    from mapdrift.brief.pictures import Look
+
+    return Look(unit_noun=state.section(BriefSpec, "brief").unit_noun)
+
+
 def _step_brief(state: RunState) -> str:
     from mapdrift.brief.assemble import build_brief, build_slides
     from mapdrift.brief.report import write_report
@@ -579,18 +603,23 @@ def _step_brief(state: RunState) -> str:
         write_report(brief, state.path("report.html"), state.path("report.md"), root=state.staging)
         done.append("report.html, report.md")
     if "png" in formats or "pptx" in formats:
+        import tempfile
+
         from mapdrift.brief.slides import write_slide_pngs
 
-        slides = build_slides(state, brief)
-        footer = brief.source
-        if "png" in formats:
-            write_slide_pngs(slides, state.path("slides"), footer=footer)
-            done.append(f"{len(slides)} slides")
-        if "pptx" in formats:
-            from mapdrift.brief.deck import write_deck
+        # the slides' own pictures (drawn at the slide's size, text >= 18 px) live only until
+        # the slides and the deck are written
+        with tempfile.TemporaryDirectory(prefix="mapdrift-slides-") as parts:
+            slides = build_slides(state, brief, pictures=Path(parts))
+            footer = brief.source
+            if "png" in formats:
+                write_slide_pngs(slides, state.path("slides"), footer=footer)
+                done.append(f"{len(slides)} slides")
+            if "pptx" in formats:
+                from mapdrift.brief.deck import write_deck
 
-            write_deck(slides, state.path("brief.pptx"), footer=footer)
-            done.append("brief.pptx")
+                write_deck(slides, state.path("brief.pptx"), footer=footer)
+                done.append("brief.pptx")
     return ", ".join(done) or "no briefing formats asked for"
 
 
@@ -603,6 +632,7 @@ STEPS: list[tuple[str, Callable[[RunState], str]]] = [
     ("clusters", _step_clusters),
     ("animate", _step_animate),
     ("units", _step_units),
+    ("explorer", _step_explorer),
     ("whats-new", _step_whatsnew),
     ("findings", _step_findings),
     ("brief", _step_brief),

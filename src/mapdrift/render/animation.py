@@ -56,7 +56,7 @@ class AnimateOptions:
     fps: int = 10
     tween: int = 0
     max_mb: float | None = None
-    min_unit_px: float = 0.0
+    min_unit_px: float = 3.0
     north_arrow: bool = False
     scale_units: str = "km"
     loop: int = 0
