@@ -109,7 +109,7 @@ class BriefSpec:
 
 
 #: The briefing's output formats (``[brief] formats``).
-FORMATS: tuple[str, ...] = ("gif", "mp4", "png", "pptx", "html", "gpkg")
+FORMATS: tuple[str, ...] = ("gif", "mp4", "png", "pptx", "html", "gpkg", "explorer")
 
 
 #: Section name -> "module:Class" of its dataclass (imported when a file uses the section).
