@@ -126,7 +126,8 @@ def _guess(df: pd.DataFrame, guesses: tuple[str, ...]) -> str | None:
 
 
 def _matching_column(df: pd.DataFrame, ids: np.ndarray, skip: set[str]) -> tuple[str, float] | None:
-    """The column of ``df`` whose distinct values best match ``ids`` (share of them found)."""
+    """The column of ``df`` whose distinct values best match ``ids`` (share of them found),
+    when they also cover at least half of ``ids``."""
     import pandas as pd
 
     best: tuple[str, float] | None = None
@@ -137,8 +138,10 @@ def _matching_column(df: pd.DataFrame, ids: np.ndarray, skip: set[str]) -> tuple
         vals = pd.unique(normalise(df[c]))
         if not len(vals):
             continue
-        share = float((target.get_indexer(vals) >= 0).mean())
-        if share >= 0.5 and (best is None or share > best[1]):
+        found = target.get_indexer(vals) >= 0
+        share = float(found.mean())
+        covers = found.sum() / len(target)  # a column of a few small codes matches by chance
+        if share >= 0.5 and covers >= 0.5 and (best is None or share > best[1]):
             best = (str(c), share)
     return best
 
@@ -412,7 +415,7 @@ def ids_stage(
     codes2, distinct = pd.factorize(pd.Series(np.append(ids, ""), dtype=object))
     uid = np.where(codes >= 0, codes2[np.maximum(codes, 0)], codes2[-1])
     distinct = np.asarray(distinct, dtype=object)
-    blank = distinct[uid] == ""
+    blank = uid == codes2[-1]  # the code of "" (appended last above): rows without an ID
     if blank.any():  # rows that cannot be placed are counted, never dropped silently
         findings.append(
             Finding(
@@ -639,6 +642,12 @@ def match_stage(
         other = _matching_column(table.df, layer.ids, {table.id_col})
         if other is not None:
             hint += f"; column {other[0]!r} of the table matches {other[1]:.0%}: pass --table-id {other[0]}"
+        mine = _matching_column(layer.gdf, table_ids, {layer.id_col})
+        if mine is not None:
+            hint += (
+                f"; the layer's column {mine[0]!r} holds {mine[1]:.0%} of the table's IDs: "
+                f"pass --id {mine[0]}"
+            )
         raise InputError(
             f"{table.path or table.where}: only {n_matched} of {n} layer units match a table ID (column "
             f"{table.id_col!r}: e.g. {examples(table_ids[:5].tolist())}; layer {layer.id_col!r}: e.g. "

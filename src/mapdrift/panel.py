@@ -91,10 +91,42 @@ class Panel:
             object.__setattr__(self, "names", tuple(self.units))
         if len(self.names) != len(self.units):
             raise ValueError("names must have one entry per unit")
+        self._clean_texts()
         if len(self.geometry) != len(self.units):
             raise ValueError("geometry must have one entry per unit")
         if self.labels and len(self.labels) != len(self.periods):
             raise ValueError("labels must have one entry per period")
+
+    def _clean_texts(self) -> None:
+        """Control characters in names and labels become spaces (they would break slides and
+        inject Markdown headings), said once in a ``names-control-characters`` finding."""
+        from mapdrift.findings import examples, plural
+        from mapdrift.safetext import clean, clean_all
+
+        names, changed = clean_all(self.names)
+        if changed:
+            object.__setattr__(self, "names", names)
+            if not any(f.code == "names-control-characters" for f in self.findings):
+                units = [self.units[i] for i in changed]
+                msg = (
+                    f"{plural(len(changed), 'unit name')} held line breaks, tabs or other control "
+                    f"characters (e.g. units {examples(units, 3, total=False)}); shown with "
+                    "spaces instead in every map, table and report"
+                )
+                object.__setattr__(
+                    self,
+                    "findings",
+                    (
+                        *self.findings,
+                        Finding("warning", "names-control-characters", msg, tuple(units)),
+                    ),
+                )
+        m = self.meta
+        meta = replace(
+            m, variable=clean(m.variable), unit_label=clean(m.unit_label), source=clean(m.source)
+        )
+        if meta != m:
+            object.__setattr__(self, "meta", meta)
 
     # -- shape -----------------------------------------------------------------------------
     @property
