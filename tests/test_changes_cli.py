@@ -71,7 +71,10 @@ def test_tables_agree_with_trajectories(demo_run):
     assert by_pair["count"].sum() == matrix.sum()
     jumps = read_csv(out / "jumps.csv")
     assert (jumps["size"].abs() >= 2).all()
-    assert set(jumps["unit"]) == set(units.loc[units["jump"], "unit"])
+    credible = jumps["credible"].astype(str).str.lower() == "true"
+    assert set(jumps.loc[credible, "unit"]) == set(units.loc[units["jump"], "unit"])
+    noisy = units["n_noise_moves"] > 0
+    assert set(jumps.loc[~credible, "unit"]) == set(units.loc[noisy, "unit"])
     assert isinstance(pd.read_json(out / "markov.json", typ="series")["markov"], dict)
 
 

@@ -39,8 +39,9 @@ def test_same_seed_identical_files(tmp_path):
 
 def test_other_seed_changes_p_within_monte_carlo_error():
     p = _grid_panel()
-    a = analyse_clusters(p, None, ClusterOptions(permutations=999, seed=1))
-    b = analyse_clusters(p, None, ClusterOptions(permutations=999, seed=2))
+    perm = {"p_value": "permutation", "permutations": 999}
+    a = analyse_clusters(p, None, ClusterOptions(seed=1, **perm))
+    b = analyse_clusters(p, None, ClusterOptions(seed=2, **perm))
     np.testing.assert_array_equal(a.local.stat, b.local.stat)
     pa, pb = a.local.p, b.local.p
     assert not np.array_equal(pa, pb)
@@ -143,7 +144,9 @@ def test_command_on_a_grid(runner, layer_file, table_file, tmp_path):
 def test_permutation_floor_is_reported():
     # With 99 permutations the smallest two-sided p is 0.02 > 0.05/100: Bonferroni can't reject.
     r = analyse_clusters(
-        _grid_panel(), None, ClusterOptions(permutations=99, correction="bonferroni")
+        _grid_panel(),
+        None,
+        ClusterOptions(permutations=99, correction="bonferroni", p_value="permutation"),
     )
     assert any(f.code == "clusters-permutation-floor" for f in r.findings)
     assert (r.codes[:, :] != 0).all()

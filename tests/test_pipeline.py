@@ -121,3 +121,39 @@ def test_annual_rerun_reuses_breaks_and_reports_new_jumper(demo_run, tmp_path):
     html = (new.out / "report.html").read_text()
     assert 'id="whats-new"' in html and jumper in html
     assert "2025" in json.loads((new.out / "manifest.json").read_text())["parameters"]["periods"]
+
+
+def _story(prefix: str) -> list[str]:
+    text = (DEMO / "README.md").read_text()
+    row = next(line for line in text.splitlines() if line.startswith(f"| {prefix}"))
+    return re.findall(r"\b0\d{4}\b", row.split("|")[2])
+
+
+def test_demo_stories_found_and_noise_named(demo_run):
+    # the demo's planted stories (its README, written by the generator) survive the noise tests:
+    # planted jumps and the spike are credible, the small-base units' moves are noise, and the
+    # emerging hot cluster is high-high in its last years
+    from mapdrift.outputs import read_csv
+
+    out = demo_run.out
+    jumps = read_csv(out / "jumps.csv", dtype={"unit": str})
+    credible = jumps["credible"].astype(str).str.lower() == "true"
+    for prefix in (
+        "Jump that stays up (~5 to ~60 per 1,000 in 2019)",
+        "Jump that stays up (~5 to ~60 per 1,000 in 2021)",
+    ):
+        (unit,) = _story(prefix)
+        assert credible[jumps["unit"] == unit].any(), unit
+    (spike,) = _story("One-year spike")
+    assert jumps.loc[jumps["unit"] == spike, "spike"].astype(str).str.lower().eq("true").any()
+    small = set(_story("Small base"))
+    assert not credible[jumps["unit"].isin(small)].any()
+    clusters = read_csv(out / "clusters.csv", dtype={"unit": str, "period": str})
+    hot = set(_story("Emerging hot cluster"))
+    for year in ("2022", "2023", "2024"):
+        hh = set(
+            clusters.loc[(clusters["period"] == year) & (clusters["label"] == "high-high"), "unit"]
+        )
+        assert len(hh & hot) >= 0.6 * len(hot), (year, sorted(hh & hot))
+    report = (out / "report.md").read_text()
+    assert "credibly jumped" in report and "within count noise" in report

@@ -137,8 +137,10 @@ def test_scale_bar_spans_stated_distance_within_one_pixel():
     f = r.frame(0).astype(int)
     # measure pixels per metre from the image: the grid's 20 km width in the fill colour
     tr = r.layout.transform
-    mid = tr.top + tr.height // 2
-    blue = np.flatnonzero(np.abs(f[mid] - hex_to_rgb8("#2166ac")).sum(axis=1) == 0)
+    mid = tr.top + tr.height // 2 + tr.height // 12  # the middle of a row of cells
+    # the mapped area: fill and its grey edge (everything in the map box that is not paper)
+    band = f[mid, tr.left : tr.left + tr.width]
+    blue = np.flatnonzero(np.abs(band - 255).sum(axis=1) > 0)
     px_per_m = (blue[-1] - blue[0] + 1) / (10 * size)
     sb = r.layout.scale_bar
     row = f[sb.y - 1]
@@ -171,7 +173,9 @@ def test_sub_pixel_units_are_reported_and_drawn_as_dots():
     codes = np.zeros((len(geo), 1), dtype=np.int16)
     codes[-1] = 1
     ids = [f"u{i}" for i in range(len(geo))]
-    r = FrameRenderer(geo, codes, ["#dddddd", "#13266f"], ["a", "b"], ["x"], units=ids, title="t")
+    r = FrameRenderer(
+        geo, codes, ["#dddddd", "#13266f"], ["a", "b"], ["x"], units=ids, title="t", min_unit_px=0
+    )
     assert [f.code for f in r.findings] == ["units-below-pixel"]
     assert r.findings[0].units == ("u60",) and "--min-unit-px" in r.findings[0].message
     r.close()

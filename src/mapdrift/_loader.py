@@ -126,7 +126,8 @@ def _guess(df: pd.DataFrame, guesses: tuple[str, ...]) -> str | None:
 
 
 def _matching_column(df: pd.DataFrame, ids: np.ndarray, skip: set[str]) -> tuple[str, float] | None:
-    """The column of ``df`` whose distinct values best match ``ids`` (share of them found)."""
+    """The column of ``df`` whose distinct values best match ``ids`` (share of them found),
+    when they also cover at least half of ``ids``."""
     import pandas as pd
 
     best: tuple[str, float] | None = None
@@ -137,8 +138,10 @@ def _matching_column(df: pd.DataFrame, ids: np.ndarray, skip: set[str]) -> tuple
         vals = pd.unique(normalise(df[c]))
         if not len(vals):
             continue
-        share = float((target.get_indexer(vals) >= 0).mean())
-        if share >= 0.5 and (best is None or share > best[1]):
+        found = target.get_indexer(vals) >= 0
+        share = float(found.mean())
+        covers = found.sum() / len(target)  # a column of a few small codes matches by chance
+        if share >= 0.5 and covers >= 0.5 and (best is None or share > best[1]):
             best = (str(c), share)
     return best
 
@@ -282,7 +285,7 @@ def _roles(spec: InputSpec) -> dict[str, str]:
     return {}
 
 
-_FLAGS = {"value": "--columns", "num": "--numerator", "den": "--denominator"}
+_FLAGS = {"value": "--columns", "num": "--numerator", "den": "--denominator", "moe": "--moe"}
 
 
 def _pattern(pattern: str, flag: str) -> re.Pattern[str]:
@@ -352,6 +355,8 @@ def long_stage(table: Table, spec: InputSpec) -> Long:
             )
         p_col = _column(df, spec.period, where, "--period")
         cols = {"value": spec.value} if spec.value else roles
+        if spec.moe:  # margins of error beside the values (rates only)
+            cols = {**cols, "moe": spec.moe}
         cols = {
             r: _column(df, c, where, "--value" if r == "value" else _FLAGS[r])
             for r, c in cols.items()
@@ -361,6 +366,8 @@ def long_stage(table: Table, spec: InputSpec) -> Long:
         )
         return Long(long.reset_index(drop=True), tuple(cols), {}, period_column=str(p_col))
     patterns = {"value": spec.columns} if spec.columns else (dict(roles) or {"value": ""})
+    if spec.moe:
+        patterns["moe"] = spec.moe
     parts = []
     col_of: dict[str, str] = {}
     for role, pattern in patterns.items():
@@ -408,7 +415,7 @@ def ids_stage(
     codes2, distinct = pd.factorize(pd.Series(np.append(ids, ""), dtype=object))
     uid = np.where(codes >= 0, codes2[np.maximum(codes, 0)], codes2[-1])
     distinct = np.asarray(distinct, dtype=object)
-    blank = distinct[uid] == ""
+    blank = uid == codes2[-1]  # the code of "" (appended last above): rows without an ID
     if blank.any():  # rows that cannot be placed are counted, never dropped silently
         findings.append(
             Finding(
@@ -430,8 +437,7 @@ def periods_stage(long: Long, spec: InputSpec, where: str, findings: list[Findin
     f = long.frame
     codes, uniq = pd.factorize(f["period_text"], use_na_sentinel=True)
     text = pd.Series(np.asarray(uniq, dtype=object)).astype(str).str.strip().to_numpy(dtype=object)
-    blank_u = text == ""
-    blank = (codes < 0) | blank_u[np.maximum(codes, 0)]
+    blank = np.append(text == "", True)[codes]  # code -1 (a missing cell) is blank too
     if blank.any():
         findings.append(
             Finding(
@@ -487,6 +493,7 @@ def numbers_stage(long: Long, spec: InputSpec, table: Table, findings: list[Find
         "value": spec.value or spec.columns or "value",
         "num": spec.numerator,
         "den": spec.denominator,
+        "moe": spec.moe,
     }
     factorised = {r: distinct(f[r]) for r in long.roles}  # each column factorised once
     evidence = decimal_evidence({str(label[r]): factorised[r] for r in long.roles})
@@ -635,6 +642,12 @@ def match_stage(
         other = _matching_column(table.df, layer.ids, {table.id_col})
         if other is not None:
             hint += f"; column {other[0]!r} of the table matches {other[1]:.0%}: pass --table-id {other[0]}"
+        mine = _matching_column(layer.gdf, table_ids, {layer.id_col})
+        if mine is not None:
+            hint += (
+                f"; the layer's column {mine[0]!r} holds {mine[1]:.0%} of the table's IDs: "
+                f"pass --id {mine[0]}"
+            )
         raise InputError(
             f"{table.path or table.where}: only {n_matched} of {n} layer units match a table ID (column "
             f"{table.id_col!r}: e.g. {examples(table_ids[:5].tolist())}; layer {layer.id_col!r}: e.g. "
@@ -728,6 +741,22 @@ def _value_checks(
         )
 
 
+class _Clock:
+    """Stage timings for the debug log (the run's own step timings cover the whole load)."""
+
+    def __init__(self) -> None:
+        import time
+
+        self._now = time.perf_counter
+        self._t = self._now()
+
+    def lap(self, stage: str, value: Any) -> Any:
+        t = self._now()
+        log.debug("load stage %s: %.3f s", stage, t - self._t)
+        self._t = t
+        return value
+
+
 def _words(col: str | None) -> str:
     """Column names (or patterns) read as words in titles: ``rate_*`` -> ``rate``,
     ``HR(\\d+)`` -> ``HR``."""
@@ -738,17 +767,23 @@ def _words(col: str | None) -> str:
 def _chain(
     layer: Layer, table: Table, spec: InputSpec, findings: list[Finding], inputs: tuple[Path, ...]
 ) -> Panel:
-    """Everything after reading: long frame -> ids -> periods -> numbers -> ... -> Panel."""
-    long = long_stage(table, spec)
-    long = ids_stage(long, layer, spec, table.where, not table.from_layer, findings)
+    """Everything after reading: long frame -> ids -> periods -> numbers -> ... -> Panel.
+
+    Each stage's time is logged at DEBUG level (``mapdrift -v``-style logging shows them).
+    """
+    clock = _Clock()
+    long = clock.lap("long frame", long_stage(table, spec))
+    long = clock.lap(
+        "ids", ids_stage(long, layer, spec, table.where, not table.from_layer, findings)
+    )
     if table.wide_append:
         long = drop_fill(long)
-    long = periods_stage(long, spec, table.where, findings)
-    long = numbers_stage(long, spec, table, findings)
-    long = duplicates_stage(long, spec, table, findings)
+    long = clock.lap("periods", periods_stage(long, spec, table.where, findings))
+    long = clock.lap("numbers", numbers_stage(long, spec, table, findings))
+    long = clock.lap("duplicates", duplicates_stage(long, spec, table, findings))
     counts = "num" in long.roles
-    long = crosswalk_stage(long, layer, spec, counts, findings)
-    rows, cols, long = match_stage(long, layer, table, findings)
+    long = clock.lap("crosswalk", crosswalk_stage(long, layer, spec, counts, findings))
+    rows, cols, long = clock.lap("match", match_stage(long, layer, table, findings))
 
     shape = (len(layer.ids), len(long.periods))
     numerator = denominator = None
@@ -759,6 +794,7 @@ def _chain(
         findings += rate_findings
     else:
         values = _grid(shape, rows, cols, long.frame["value"].to_numpy())
+    moe = _grid(shape, rows, cols, long.frame["moe"].to_numpy()) if "moe" in long.roles else None
     _value_checks(values, layer.ids, long.labels, denominator, spec, findings)
     if not np.isfinite(values).any():
         what = "rates" if counts else f"column {str(spec.value or spec.columns or 'value')!r}"
@@ -791,6 +827,7 @@ def _chain(
         denominator=denominator,
         inputs=inputs,
         labels=labels,
+        moe=moe,
     )
 
 

@@ -18,7 +18,7 @@ import numpy as np
 from mapdrift.findings import Finding, examples, plural
 
 if TYPE_CHECKING:
-    pass
+    import pandas as pd
 
 __all__ = ["closest", "locate", "normalise", "normalise_ids", "pad_ids", "zfill"]
 
@@ -47,10 +47,26 @@ def normalise(values: Any) -> np.ndarray:
         text = s.astype(str)
     else:
         text = s.astype(object).where(~missing, "").astype(str)
-    text = text.str.strip().str.replace(r"^(-?\d+)\.0+$", r"\1", regex=True)
+    text = _text(text.to_numpy(dtype=object)).str.strip()
+    dotted = text.str.contains(".", regex=False).fillna(False).to_numpy(bool)
     out = text.to_numpy(dtype=object)
+    if dotted.any():  # a float's trailing ".0": only the few cells with a point go through re
+        fixed = pd.Series(out[dotted], dtype=object).str.replace(
+            r"^(-?\d+)\.0+$", r"\1", regex=True
+        )
+        out[dotted] = fixed.to_numpy(dtype=object)
     out[missing] = ""
     return out
+
+
+def _text(values: np.ndarray) -> pd.Series:
+    """Strings as a pandas Series, pyarrow-backed when available (string methods in C)."""
+    import pandas as pd
+
+    try:
+        return pd.Series(values, dtype="string[pyarrow]")
+    except (ImportError, TypeError, ValueError):
+        return pd.Series(values, dtype=object).astype(str)
 
 
 def normalise_ids(values: Iterable[object]) -> list[str]:
@@ -76,10 +92,9 @@ def zfill(ids: np.ndarray, width: int) -> np.ndarray:
 
 def _digits(ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(all-digit mask, lengths) of an object array of strings, vectorised."""
-    import pandas as pd
-
-    s = pd.Series(ids, dtype=object).astype(str)
-    return s.str.fullmatch(r"\d+").fillna(False).to_numpy(bool), s.str.len().to_numpy()
+    s = _text(np.asarray(ids, dtype=object))
+    digit = s.str.fullmatch(r"[0-9]+").fillna(False).to_numpy(bool)
+    return digit, s.str.len().fillna(0).to_numpy(dtype=np.int64)
 
 
 def pad_ids(

@@ -13,6 +13,12 @@ Where the estimated between-area variance ``a`` is negative, Marshall's rule set
 so every rate in that neighbourhood (or the whole period, for ``eb``) equals the prior mean.
 esda's smoothers leave ``a`` negative; we apply the rule and report where it happened.
 
+For spatial statistics on rates, :func:`eb_standardise` gives the Assuncao & Reis (1999)
+empirical Bayes standardised rates ``z_i = (r_i - b) / sqrt(a + b / n_i)`` with the same
+moments (where ``a + b / n_i`` is negative, ``b / n_i`` is used, as in esda's
+``assuncao_rate``): a small base gets a large variance, so one event on ten parcels no longer
+dominates the period's statistics.
+
 Rates are smoothed period by period. Cells with a missing count, a missing base or a base of
 zero stay NaN and are left out of the moments. Results are in rate units (multiply by ``per``
 for "per 1,000"), see :func:`smooth_panel`.
@@ -34,7 +40,15 @@ if TYPE_CHECKING:
     from mapdrift.panel import Panel
     from mapdrift.weights import SpatialWeights
 
-__all__ = ["SMOOTHERS", "Smoothed", "eb_global", "eb_spatial", "smooth", "smooth_panel"]
+__all__ = [
+    "SMOOTHERS",
+    "Smoothed",
+    "eb_global",
+    "eb_spatial",
+    "eb_standardise",
+    "smooth",
+    "smooth_panel",
+]
 
 log = logging.getLogger(__name__)
 
@@ -79,6 +93,32 @@ def eb_global(events: np.ndarray, bases: np.ndarray) -> tuple[np.ndarray, float,
     out[ok] = b + C * (r - b)
     shrink[ok] = C
     return out, float(b), shrink, zeroed
+
+
+def eb_standardise(events: np.ndarray, bases: np.ndarray) -> np.ndarray:
+    """Assuncao & Reis (1999) EB standardised rates, period by period (columns).
+
+    ``events``/``bases`` are ``[units]`` or ``[units, periods]``; cells with a missing count or
+    base, or a base <= 0, are NaN and left out of the period's moments.
+    """
+    y = np.asarray(events, dtype=np.float64)
+    n = np.asarray(bases, dtype=np.float64)
+    one = y.ndim == 1
+    y, n = np.atleast_2d(y.T).T, np.atleast_2d(n.T).T
+    if y.shape != n.shape:
+        raise ValueError(f"events {y.shape} and bases {n.shape} differ in shape")
+    ok = _valid(y, n)
+    yv, nv = np.where(ok, y, 0.0), np.where(ok, n, 0.0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        r = np.where(ok, yv / np.where(ok, nv, 1.0), 0.0)
+        b = yv.sum(axis=0) / nv.sum(axis=0)
+        s2 = (nv * (r - b) ** 2).sum(axis=0) / nv.sum(axis=0)
+        a = s2 - b / (nv.sum(axis=0) / ok.sum(axis=0))
+        v = a + b / np.where(ok, nv, np.nan)
+        v = np.where(v < 0, b / np.where(ok, nv, np.nan), v)
+        z = (r - b) / np.sqrt(v)
+    z[~ok] = np.nan
+    return z[:, 0] if one else z
 
 
 def eb_spatial(

@@ -299,7 +299,8 @@ def _deflator(panel: Panel, view: View, spec: InputSpec | None) -> tuple[np.ndar
             f"(e.g. {examples(bad.unique())}); fix those cells"
         )
     typed = parse_periods(texts.tolist(), where=f"{where} column {pcol!r}")
-    labels = texts.map(lambda t: period_label(typed[t]))
+    labels = texts.map(lambda t: period_label(typed[t]))  # matched on the typed period
+    keys = [period_label(p) for p in panel.periods]
     table = pd.DataFrame({"period": labels.to_numpy(), "factor": factor.to_numpy()}).dropna()
     spread = table.groupby("period")["factor"].agg(["min", "max"])
     varies = spread.index[~np.isclose(spread["min"], spread["max"], rtol=1e-9, atol=0)]
@@ -309,13 +310,13 @@ def _deflator(panel: Panel, view: View, spec: InputSpec | None) -> tuple[np.ndar
             f"(e.g. {examples(list(varies))}); it must be one factor per period"
         )
     per_period = spread["min"]
-    missing = [p for p in panel.period_labels if p not in per_period.index]
+    missing = [lab for lab, key in zip(panel.period_labels, keys) if key not in per_period.index]
     if missing:
         raise InputError(
             f"{where}: the deflator {col!r} has no value for {len(missing)} periods of the data "
             f"({examples(missing)}); add them to the table"
         )
-    f = per_period.reindex(list(panel.period_labels)).to_numpy(dtype=float)
+    f = per_period.reindex(keys).to_numpy(dtype=float)
     if not (np.isfinite(f) & (f > 0)).all():
         zero = [p for p, x in zip(panel.period_labels, f) if not (np.isfinite(x) and x > 0)]
         raise InputError(
@@ -335,7 +336,7 @@ def _deflate(panel: Panel, view: View, spec: InputSpec | None) -> Panel:
         out,
         finding=Finding("note", "view-deflated", f"view: {text}"),
         variable=f"{panel.meta.variable}, in {base} terms",
-        unit_label=f"{unit}, in {base} terms" if unit else f"in {base} terms",
+        unit_label=f"{unit}, in {base} terms" if unit else "",
         view=f"view: {text}",
     )
 
@@ -430,7 +431,7 @@ def common_trend(
                 parts.append(f"one middle class in {_spans(labels, mid)}")
             j = int(crowded[np.argmax(top[crowded] / np.maximum(n_with[crowded], 1))])
             crowded_txt = (
-                f"; {len(crowded)} of {len(labels)} periods put {CROWDED_SHARE:.0%} or more of "
+                f", and {len(crowded)} of {len(labels)} periods put {CROWDED_SHARE:.0%} or more of "
                 f"their units in one class ({'; '.join(parts)}; e.g. {labels[j]}: {int(top[j])} "
                 f"of {int(n_with[j])})"
             )
@@ -439,9 +440,9 @@ def common_trend(
         return None
     word = "rose" if med[-1] > med[0] else "fell"
     spread_txt = (
-        f" (its range is {shift / spread:.0f} times the typical spread between units in a period)"
+        f" {shift / spread:.0f} times the typical spread between units in a period"
         if spread > 0
-        else ""
+        else " large while units in a period hardly differ"
     )
     current = view if isinstance(view, View) else parse_view(view)
     options = [
@@ -453,9 +454,9 @@ def common_trend(
     return Finding(
         "warning",
         "values-common-trend",
-        f"the values share a strong common trend: the period median {word} from "
-        f"{_fmt(med[0])} ({labels[cols[0]]}) to {_fmt(med[-1])} ({labels[cols[-1]]}){spread_txt}"
-        f"{crowded_txt}; pooled classes and class changes then mostly show that trend, not how "
-        f"units differ; to compare units, use {', '.join(advice[:-1])} or {advice[-1]}; in a "
-        'config: view = "relative-median" under [inputs]',
+        f"the values share a strong common trend (the period median {word} from "
+        f"{_fmt(med[0])} in {labels[cols[0]]} to {_fmt(med[-1])} in {labels[cols[-1]]}), so "
+        "pooled classes and class changes mostly show that trend, not how units differ; to "
+        f"compare units, use {', '.join(advice[:-1])} or {advice[-1]} (in a config: view = "
+        f'"relative-median" under [inputs]); the median\'s range is{spread_txt}{crowded_txt}',
     )

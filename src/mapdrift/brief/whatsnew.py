@@ -142,6 +142,8 @@ class WhatsNew:
                     "size": size,
                     "spike": bool(r.get("spike", False)),
                     "small_base": unit in self.small_base,
+                    # the count-noise test of the jump, when the run made one
+                    **{c: _plain(r[c]) for c in ("p", "p_adjusted", "credible") if c in r},
                 }
             )
         for unit, event, period in self.cluster_events.itertuples(index=False):
@@ -308,6 +310,8 @@ def compare_runs(
     prev_jumps = _read(previous, "jumps.csv")
     key = ["unit", "from_period", "to_period", "direction"]
     cur = jumps.astype({"unit": str, "from_period": str, "to_period": str}) if len(jumps) else jumps
+    if len(cur) and "credible" in cur.columns:  # moves within count noise are not news
+        cur = cur[cur["credible"].astype(str).str.lower() != "false"]
     if prev_jumps is not None and len(cur):
         seen = set(map(tuple, prev_jumps[key].astype(str).to_numpy()))
         mask = [tuple(map(str, r)) not in seen for r in cur[key].to_numpy()]

@@ -61,6 +61,7 @@ __all__ = [
     "first_passage_times",
     "homogeneity_test",
     "markov_summary",
+    "noise_sentence",
     "relative_panel",
     "spatial_markov",
     "stationary_distribution",
@@ -82,7 +83,9 @@ class ChangeOptions:
     in the top/bottom class. ``bridge_gaps``: count steps across missing periods. ``relative``:
     ``mean``/``median`` to divide each period by its mean/median before classing (applied by the
     caller with :func:`relative_panel`). ``spatial``: compute spatially conditioned transitions
-    with ``weights`` (a kind of :func:`mapdrift.weights.build_weights`).
+    with ``weights`` (a kind of :func:`mapdrift.weights.build_weights`). ``alpha`` and
+    ``correction`` (``fdr``, ``bonferroni``, ``none``) decide which jumps are credible against
+    count noise (see :mod:`mapdrift.changes.noise`); the pipeline passes the run's.
     """
 
     jump: int = 2
@@ -92,8 +95,19 @@ class ChangeOptions:
     relative: str | None = None
     spatial: bool = True
     weights: str = "queen"
+    alpha: float = 0.05
+    correction: str = "fdr"
 
     def __post_init__(self) -> None:
+        from mapdrift.clusters.multiple import CORRECTIONS
+
+        if self.correction not in CORRECTIONS:
+            raise ConfigError(
+                f"--correction {self.correction!r} is not a valid option, must be one of "
+                f"{', '.join(CORRECTIONS)}"
+            )
+        if not 0 < self.alpha < 1:
+            raise ConfigError(f"--alpha must be between 0 and 1 (e.g. 0.05), got {self.alpha}")
         for name in ("jump", "spike_window", "persist"):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, int | np.integer) or v < 1:
@@ -130,6 +144,27 @@ class ChangeResult:
     class_shares: np.ndarray
     warning: str | None = None
     findings: tuple[Finding, ...] = field(default=())
+    noise_test: str = ""
+
+    @property
+    def tested(self) -> bool:
+        """Whether the jumps were tested against noise (counts or standard errors known)."""
+        return bool(self.noise_test)
+
+    @property
+    def noise_short(self) -> str:
+        """A short form of :attr:`noise_text` for captions."""
+        if not self.noise_test:
+            return "Jumps not tested against noise (no counts)."
+        how = "conditional Poisson test" if self.noise_test == "poisson" else "margins of error"
+        return (
+            f"Jumps tested against count noise ({how}, {self.options.correction} over all steps)."
+        )
+
+    @property
+    def noise_text(self) -> str:
+        """The sentence every output about jumps carries: how (or whether) they were tested."""
+        return noise_sentence(self.noise_test, self.options)
 
     def markov_json(self) -> dict[str, Any]:
         """The content of ``markov.json``."""
@@ -138,42 +173,71 @@ class ChangeResult:
         return markov_document(self)
 
 
+NOT_TESTED = (
+    "Jumps were not tested against noise (no counts given): a move of a unit with few events "
+    "may be noise."
+)
+
+
+def noise_sentence(test: str, options: ChangeOptions) -> str:
+    """How the jumps were tested, for every output that counts them."""
+    from mapdrift.clusters.multiple import describe
+
+    if not test:
+        return NOT_TESTED
+    how = {
+        "poisson": "the exact conditional test for two Poisson rates (Przyborowski & Wilenski "
+        "1940) on the counts",
+        "moe": "a normal test on the margins of error (90 %)",
+    }[test]
+    rest = "moves within count noise" if test == "poisson" else "moves within the margins of error"
+    return (
+        f"Credible jumps: every step of every unit tested with {how}, "
+        f"{describe(options.alpha, options.correction)} over all tested steps; the rest are "
+        f"{rest}."
+    )
+
+
+def _tester(panel: Panel, moe: np.ndarray | None) -> tuple[Any, str]:
+    """``(tester, kind)`` for :func:`unit_changes` from the panel's counts or margins of error."""
+    from mapdrift.changes.noise import MOE_Z, moe_change_p, poisson_change_p
+
+    num, den = panel.numerator, panel.denominator
+    if num is not None and den is not None:
+
+        def poisson(rows: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+            return poisson_change_p(num[rows, a], den[rows, a], num[rows, b], den[rows, b])
+
+        return poisson, "poisson"
+    if moe is not None:
+        se = np.asarray(moe, dtype=np.float64) / MOE_Z
+        if se.shape != panel.values.shape:
+            raise ValueError(
+                f"moe shape {se.shape} does not match the panel's {panel.values.shape}"
+            )
+        v = panel.values
+
+        def normal(rows: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+            return moe_change_p(v[rows, a], se[rows, a], v[rows, b], se[rows, b])
+
+        return normal, "moe"
+    return None, ""
+
+
 def relative_panel(panel: Panel, how: str = "mean") -> Panel:
     """Each period's values divided by that period's mean (or median) over units.
 
     NaN stays NaN; a period whose mean/median is zero or missing gets NaN values throughout and
-    a warning finding. The result is a derived Panel (``panel.with_values``) whose values are
-    ratios (1 = the period's typical value).
+    a warning finding. The result is a derived Panel whose values are ratios (1 = the period's
+    typical value), the same as the ``relative-mean``/``relative-median`` view of
+    :func:`mapdrift.views.apply_view` (one definition), labelled on every output.
     """
+    from mapdrift.views import View, apply_view
+
     if how not in RELATIVE_CHOICES:
         valid = ", ".join(RELATIVE_CHOICES)
         raise ConfigError(f"--relative {how!r} is not a valid option, must be one of {valid}")
-    v = panel.values
-    with np.errstate(invalid="ignore", divide="ignore"):
-        centre = np.nanmean(v, axis=0) if how == "mean" else np.nanmedian(v, axis=0)
-    bad = ~np.isfinite(centre) | (centre == 0)
-    safe = np.where(bad, np.nan, centre)
-    rel = v / safe
-    if bad.any():
-        periods = [panel.period_labels[j] for j in np.flatnonzero(bad)]
-        finding = Finding(
-            "warning",
-            "relative-undefined",
-            f"the {how} is zero or missing in {int(bad.sum())} periods ({examples(periods)}); "
-            "their relative values are no data",
-        )
-    else:
-        finding = Finding(
-            "note",
-            "relative-values",
-            f"values are divided by each period's {how} (1 = the period's {how})",
-        )
-    return panel.with_values(
-        rel,
-        finding=finding,
-        variable=f"{panel.meta.variable} relative to the period {how}",
-        unit_label=f"x the period {how}",
-    )
+    return apply_view(panel, View("relative", how))
 
 
 def _findings(
@@ -185,6 +249,8 @@ def _findings(
     spatial: SpatialMarkov | None,
     units: tuple[str, ...],
     jump: int,
+    noise_text: str,
+    tested: bool,
 ) -> list[Finding]:
     out: list[Finding] = []
     if classes.warning:
@@ -265,14 +331,29 @@ def _findings(
     jumped = uc.table["jump"].to_numpy()
     if jumped.any():
         ids = tuple(uid[jumped])
+        what = "credibly moved" if tested else "moved"
         out.append(
             Finding(
                 "note",
                 "changes-jumps",
-                f"{len(ids)} units moved {jump} or more classes in one step ({examples(ids)})",
+                f"{len(ids)} units {what} {jump} or more classes in one step ({examples(ids)})",
                 ids,
             )
         )
+    noisy = uc.table["n_noise_moves"].to_numpy() > 0
+    if noisy.any():
+        ids = tuple(uid[noisy])
+        n_moves = int(uc.table["n_noise_moves"].sum())
+        out.append(
+            Finding(
+                "note",
+                "changes-noise-moves",
+                f"{n_moves} moves of {jump}+ classes by {len(ids)} units are within count noise "
+                f"({examples(ids)}); they stay listed in jumps.csv with credible = false",
+                ids,
+            )
+        )
+    out.append(Finding("note" if tested else "warning", "changes-noise-test", noise_text))
     return out
 
 
@@ -282,8 +363,13 @@ def analyse_changes(
     options: ChangeOptions | None = None,
     *,
     weights: SpatialWeights | None = None,
+    moe: np.ndarray | None = None,
 ) -> ChangeResult:
     """Run every change computation on ``classes`` (computed from ``panel``).
+
+    Jumps are tested against noise with the panel's counts when it has them, else with
+    ``moe`` (90 % margins of error of the values, ``[units, periods]``) when given; otherwise
+    every output says they were not tested.
 
     ``weights`` (optional) are reused for the spatially conditioned transitions; without them
     and with ``options.spatial`` they are built from the panel's geometry. ``options.relative``
@@ -298,6 +384,7 @@ def analyse_changes(
     k = classes.k
     labels = class_labels(classes)
     per = panel.period_labels
+    tester, test_kind = _tester(panel, moe if moe is not None else panel.moe)
     tr = count_transitions(
         codes, k, periods=panel.periods, labels=labels, bridge_gaps=options.bridge_gaps
     )
@@ -316,6 +403,9 @@ def analyse_changes(
         jump=options.jump,
         spike_window=options.spike_window,
         persist=options.persist,
+        tester=tester,
+        alpha=options.alpha,
+        correction=options.correction,
     )
     rm = rank_mobility(panel.values, tr.steps, per)
     sm = None
@@ -328,7 +418,10 @@ def analyse_changes(
     shares = classes.counts().astype(np.float64)
     tot = shares.sum(axis=1, keepdims=True)
     shares = np.divide(shares, tot, out=np.zeros_like(shares), where=tot > 0)
-    findings = _findings(tr, mk, hom, uc, classes, sm, panel.units, options.jump)
+    noise_text = noise_sentence(test_kind, options)
+    findings = _findings(
+        tr, mk, hom, uc, classes, sm, panel.units, options.jump, noise_text, bool(test_kind)
+    )
     if weights is not None and sm is not None:
         findings.extend(weights.findings)
     log.info("changes: %d steps, %d unit pairs, %d jumps", len(tr.steps), tr.n_pairs, len(uc.jumps))
@@ -348,6 +441,7 @@ def analyse_changes(
         class_shares=shares,
         warning=classes.warning,
         findings=tuple(findings),
+        noise_test=test_kind,
     )
 
 

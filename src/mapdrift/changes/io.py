@@ -64,6 +64,7 @@ def markov_document(result: ChangeResult) -> dict[str, Any]:
         "homogeneity_over_time": result.homogeneity.to_dict(),
         "rank_mobility": result.rank_mobility.to_dict(orient="records"),
         "spatial": result.spatial.to_dict() if result.spatial is not None else None,
+        "noise_test": result.noise_text,
         "options": {
             "jump": result.options.jump,
             "spike_window": result.options.spike_window,
@@ -127,7 +128,10 @@ def write_changes(
         tables["units.csv"] = result.units
     written = []
     for name, df in tables.items():
-        written.append(write_csv(df, out / name, warning=w))
+        note = w
+        if name == "jumps.csv" and not result.tested:  # say it where the jumps are listed
+            note = " ".join(x for x in (w, result.noise_text) if x)
+        written.append(write_csv(df, out / name, warning=note))
     doc = json.dumps(markov_document(result), indent=2, ensure_ascii=False)
     written.append(write_text(out / "markov.json", doc + "\n"))
     return written

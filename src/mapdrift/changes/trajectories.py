@@ -14,11 +14,19 @@ unbridged gap or with a no-data cell is never a move):
 - ``stayed-top`` / ``stayed-bottom``: in the highest / lowest class in each of the last
   ``persist`` periods (no data in any of them, or fewer periods than ``persist`` -> not
   flagged).
+
+Noise: with a ``tester`` (see :mod:`mapdrift.changes.noise`) every step of every unit with data
+in both periods is tested for a change of rate (the whole family, not only the jumps, so that
+picking the large moves does not bias the count), plus the move back of every spike; p-values
+are adjusted over that family with ``correction``. A jump is *credible* when its adjusted
+p-value is at most ``alpha``; the others are *moves within count noise* (still listed). A spike
+needs both the jump and the move back credible. Moves that could not be tested (no tester, or a
+count missing) keep counting as before, with ``credible`` blank.
 """
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
@@ -45,8 +53,13 @@ FLAG_LABELS: tuple[str, ...] = (
     "jump down",
     "stayed in top class",
     "stayed in bottom class",
+    "moves within count noise",
     "no flag",
 )
+
+#: ``tester(rows, col_a, col_b) -> p``: two-sided p-values of the change of unit ``rows`` from
+#: period column ``col_a`` to ``col_b`` (NaN = not testable).
+Tester = Callable[[np.ndarray, np.ndarray, np.ndarray], np.ndarray]
 
 
 def trajectories(codes: np.ndarray) -> np.ndarray:
@@ -93,13 +106,20 @@ def unit_changes(
     jump: int = 2,
     spike_window: int = 2,
     persist: int = 3,
+    tester: Tester | None = None,
+    alpha: float = 0.05,
+    correction: str = "fdr",
 ) -> UnitChanges:
     """Trajectories, moves and flags for every unit (vectorised over units and steps).
 
     ``top[j]`` is the highest class code in period column ``j`` (``k - 1``, or per period when
-    breaks differ by period). ``-1`` codes are no data: never part of a move.
+    breaks differ by period). ``-1`` codes are no data: never part of a move. ``tester``
+    (optional) tests moves against noise (module docstring); ``alpha`` and ``correction`` (see
+    :mod:`mapdrift.clusters.multiple`) decide which are credible.
     """
     import pandas as pd
+
+    from mapdrift.clusters.multiple import adjust
 
     codes = np.asarray(codes).astype(np.int64)
     values = np.asarray(values, dtype=np.float64)
@@ -145,8 +165,33 @@ def unit_changes(
         c[inside] = codes[ju[inside], col[inside]]
         back = inside & (c >= 0) & (sign * (land - c) >= jump)
         back_col[back] = col[back]
-    spike = back_col >= 0
+    pattern = back_col >= 0
+
+    # noise: every valid unit-step plus every spike's move back, one family
+    p_jump = np.full(len(ju), np.nan)
+    adj_jump = np.full(len(ju), np.nan)
+    adj_back = np.full(len(ju), np.nan)
+    if tester is not None and len(steps):
+        su, ss = np.nonzero(valid)
+        p_steps = np.asarray(tester(su, j0[ss], j1[ss]), dtype=np.float64)
+        bi = np.flatnonzero(pattern)
+        p_back = np.asarray(tester(ju[bi], j1[js[bi]], back_col[bi]), dtype=np.float64)
+        adj = adjust(np.concatenate([p_steps, p_back]), correction)
+        step_p = np.full(valid.shape, np.nan)
+        step_adj = np.full(valid.shape, np.nan)
+        step_p[su, ss] = p_steps
+        step_adj[su, ss] = adj[: len(p_steps)]
+        p_jump = step_p[ju, js]
+        adj_jump = step_adj[ju, js]
+        adj_back[bi] = adj[len(p_steps) :]
+    tested = ~np.isnan(adj_jump)
+    with np.errstate(invalid="ignore"):
+        credible = tested & (adj_jump <= alpha)
+        back_ok = np.isnan(adj_back) | (adj_back <= alpha)
+    counted = credible | ~tested  # untested moves count as before
+    spike = pattern & counted & back_ok
     lab = np.array(class_labels, dtype=object)
+    credible_text = np.where(tested, np.where(credible, "true", "false"), "")
     jumps = pd.DataFrame(
         {
             "unit": np.array(units, dtype=object)[ju],
@@ -161,14 +206,19 @@ def unit_changes(
             "direction": np.where(jmove > 0, "up", "down"),
             "value_before": values[ju, j0[js]],
             "value_after": values[ju, j1[js]],
+            "p": p_jump,
+            "p_adjusted": adj_jump,
+            "credible": credible_text.astype(object),
             "spike": spike,
             "back_by": np.where(spike, per[np.maximum(back_col, 0)], ""),
         }
     )
-    n_jumps = np.bincount(ju, minlength=n_u)
-    up = np.bincount(ju[jmove > 0], minlength=n_u) > 0
-    down = np.bincount(ju[jmove < 0], minlength=n_u) > 0
+    n_jumps = np.bincount(ju[counted], minlength=n_u)
+    n_noise = np.bincount(ju[~counted], minlength=n_u)
+    up = np.bincount(ju[counted & (jmove > 0)], minlength=n_u) > 0
+    down = np.bincount(ju[counted & (jmove < 0)], minlength=n_u) > 0
     unit_spike = np.bincount(ju[spike], minlength=n_u) > 0
+    noise_only = (n_noise > 0) & (n_jumps == 0)
 
     if persist <= n_p:
         tail = codes[:, n_p - persist :]
@@ -178,7 +228,9 @@ def unit_changes(
     else:  # fewer periods than the window: nobody can have persisted that long
         p_top = p_bottom = np.zeros(n_u, dtype=bool)
 
-    flag = flag_codes(unit_spike, up, down, p_top, p_bottom, (codes >= 0).any(axis=1))
+    flag = flag_codes(
+        unit_spike, up, down, p_top, p_bottom, (codes >= 0).any(axis=1), noise=noise_only
+    )
     texts = _flag_texts(
         [
             (up | down, "jump"),
@@ -198,6 +250,7 @@ def unit_changes(
             "largest_move_to": lto,
             "net_change": net,
             "n_jumps": n_jumps,
+            "n_noise_moves": n_noise,
             "jump": up | down,
             "spike": unit_spike,
             "stayed_top": p_top,
@@ -224,10 +277,16 @@ def flag_codes(
     top: np.ndarray,
     bottom: np.ndarray,
     has_data: np.ndarray,
+    noise: np.ndarray | None = None,
 ) -> np.ndarray:
-    """One category per unit for the flagged map (index into :data:`FLAG_LABELS`, -1 = no data)."""
+    """One category per unit for the flagged map (index into :data:`FLAG_LABELS`, -1 = no data).
+
+    ``noise`` marks units whose only jumps are moves within count noise.
+    """
     out = np.full(len(spike), FLAG_LABELS.index("no flag"), dtype=np.int16)
     # assign from the lowest priority up so the highest-priority flag wins
+    if noise is not None:
+        out[np.asarray(noise, dtype=bool)] = FLAG_LABELS.index("moves within count noise")
     out[bottom] = FLAG_LABELS.index("stayed in bottom class")
     out[top] = FLAG_LABELS.index("stayed in top class")
     out[down] = FLAG_LABELS.index("jump down")

@@ -12,7 +12,7 @@ import typer
 from mapdrift.cli._app import state
 from mapdrift.findings import Finding, plural
 
-__all__ = ["echo", "print_findings", "print_summary"]
+__all__ = ["echo", "print_findings", "print_summary", "summarise_findings"]
 
 _COLOURS = {"error": typer.colors.RED, "warning": typer.colors.YELLOW, "note": typer.colors.BLUE}
 
@@ -42,17 +42,19 @@ def print_findings(findings: Sequence[Finding]) -> None:
 def print_summary(panel: Any) -> None:
     """The data findings of a command that loaded data, short: counts by level, then each
     error and warning on one line (``mapdrift check`` prints them in full). ``-q`` silences it."""
-    findings = list(panel.findings)
     per = panel.period_labels
+    span = f" ({per[0]} to {per[-1]})" if per else ""
+    head = f"data: {plural(panel.n_units, 'unit')} x {plural(panel.n_periods, 'period')}{span}"
+    summarise_findings(panel.findings, head + ";", view=panel.meta.view)
+
+
+def summarise_findings(findings: Sequence[Finding], head: str, *, view: str = "") -> None:
+    """``head N warnings, M notes``, the view line, then each error and warning on one line."""
     counts = {lvl: sum(f.level == lvl for f in findings) for lvl in ("error", "warning", "note")}
     parts = [plural(n, lvl) for lvl, n in counts.items() if n or lvl != "error"]
-    span = f" ({per[0]} to {per[-1]})" if per else ""
-    echo(
-        f"data: {plural(panel.n_units, 'unit')} x {plural(panel.n_periods, 'period')}{span}; "
-        + ", ".join(parts)
-    )
-    if panel.meta.view:
-        echo(f"  {panel.meta.view}")
+    echo(f"{head} " + ", ".join(parts))
+    if view:
+        echo(f"  {view}")
     for f in findings:
         if f.level in ("error", "warning"):
             head = typer.style(f"{f.level:<8}", fg=_COLOURS.get(f.level))

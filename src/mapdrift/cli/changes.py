@@ -142,13 +142,17 @@ def changes(
             f"transitions independent of the neighbours' class? LR {t.LR:.1f}, df {t.df}, p = {t.p_LR:.3g}"
         )
     u = result.units
+    noise = int(((u["n_noise_moves"] > 0) & ~u["jump"]).sum())
     echo(
-        f"flagged: {int(u['jump'].sum())} units jumped {options.jump}+ classes, "
-        f"{int(u['spike'].sum())} spikes, {int(u['stayed_top'].sum())} stayed in top class, "
+        f"flagged: {int(u['jump'].sum())} units {'credibly ' if result.tested else ''}jumped "
+        f"{options.jump}+ classes"
+        + (f" ({noise} more moved within count noise)" if result.tested else "")
+        + f", {int(u['spike'].sum())} spikes, {int(u['stayed_top'].sum())} stayed in top class, "
         f"{int(u['stayed_bottom'].sum())} stayed in bottom class"
     )
-    if result.warning:
-        echo(typer.style(f"warning: {result.warning}", fg=typer.colors.YELLOW))
+    echo(result.noise_text)
+    if cls.warning:  # (result.warning also names the view, said in the summary above)
+        echo(typer.style(f"warning: {cls.warning}", fg=typer.colors.YELLOW))
     shown = [
         f
         for f in result.findings

@@ -36,9 +36,13 @@ def check(
 
     Exit code 0 when the data are usable (warnings allowed), 1 when a problem stops the job.
     """
-    from mapdrift.panel import load_panel
+    from mapdrift.cli._data import load_data
+    from mapdrift.views import common_trend
 
-    panel = load_panel(inputs)
+    panel = load_data(inputs)
+    trend = common_trend(panel, view=inputs.view)
+    if trend is not None:
+        panel = panel.with_findings([trend])
     if as_json:
         comp = panel.completeness()
         typer.echo(
@@ -46,6 +50,7 @@ def check(
                 {
                     "units": panel.n_units,
                     "periods": list(panel.period_labels),
+                    "view": panel.meta.view or "values as read",
                     "findings": [f.to_dict() for f in panel.findings],
                     "completeness": [
                         {"period": p, "with_value": int(n), "missing": int(m)}
@@ -65,6 +70,8 @@ def check(
         f"variable: {panel.meta.variable}"
         + (f" ({panel.meta.unit_label})" if panel.meta.unit_label else "")
     )
+    if panel.meta.view:
+        echo(panel.meta.view)
     echo()
     print_findings(panel.findings)
     echo()
@@ -75,3 +82,8 @@ def check(
     echo()
     n_note = sum(f.level == "note" for f in panel.findings)
     echo(f"Usable: {plural(n_warn, 'warning')}, {plural(n_note, 'note')}.")
+    if panel.n_periods < 2:  # `run` compares periods and stops on this; say it here first
+        echo(
+            "Only one period: enough for one map (`mapdrift animate --at`), not for `mapdrift "
+            "run`, changes or trends, which compare two or more periods."
+        )

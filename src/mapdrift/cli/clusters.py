@@ -36,6 +36,16 @@ class Smooth(str, Enum):
     spatial_eb = "spatial-eb"
 
 
+class Standardise(str, Enum):
+    assuncao_reis = "assuncao-reis"
+    none = "none"
+
+
+class PValue(str, Enum):
+    normal = "normal"
+    permutation = "permutation"
+
+
 def _opt(default: Any, *names: str, help: str) -> Any:
     return typer.Option(default, *names, help=help, rich_help_panel="Clusters")
 
@@ -85,6 +95,18 @@ def clusters(
     smooth: Optional[Smooth] = _opt(
         None, "--smooth", help="Smooth rates from counts first (empirical Bayes)."
     ),
+    standardise: Optional[Standardise] = _opt(
+        None,
+        "--standardise",
+        help="With counts: statistics on EB standardised rates (assuncao-reis) or on the "
+        "values as mapped (none) [default: assuncao-reis].",
+    ),
+    p_value: Optional[PValue] = _opt(
+        None,
+        "--p-value",
+        help="Local p-values: normal approximation from the exact permutation moments, or "
+        "permutation pseudo p-values [default: normal].",
+    ),
     weights_cache: Optional[Path] = _opt(
         None, "--weights-cache", help="Folder to keep spatial weights between runs."
     ),
@@ -110,6 +132,8 @@ def clusters(
         "change_from": change_from,
         "change_to": change_to,
         "smooth": smooth.value if smooth else None,
+        "standardise": standardise.value if standardise else None,
+        "p_value": p_value.value if p_value else None,
         "cache_dir": weights_cache,
     }
     from_config = (
@@ -151,10 +175,7 @@ def clusters(
             "no trend map"
         )
     g = result.global_moran
-    echo(
-        f"{options.statistic}, {result.weights.kind} weights, {options.permutations} permutations, seed {options.seed}"
-    )
-    echo(f"{options.significance}")
+    echo(f"{options.statistic}, {result.weights.kind} weights; {result.method_text}")
     echo(
         f"  {'period':<10}{'Moran I':>10}{'p perm':>9}{'high-high':>11}{'low-low':>9}{'outliers':>10}"
     )

@@ -11,13 +11,13 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from mapdrift.clusters import labels as lab
-from mapdrift.clusters.local import LocalResult, gi_star_panel, local_moran_panel
+from mapdrift.clusters.local import P_VALUES, LocalResult, gi_star_panel, local_moran_panel
 from mapdrift.clusters.moran import MoranGlobal, moran_global_panel
 from mapdrift.clusters.multiple import CORRECTIONS, adjust, describe
 from mapdrift.clusters.trends import TrendResult, period_times, trends
 from mapdrift.compute import Executor, SerialExecutor
 from mapdrift.errors import ConfigError
-from mapdrift.findings import Finding, examples
+from mapdrift.findings import Finding, examples, plural
 from mapdrift.weights import ISLAND_RULES, SpatialWeights, build_weights, parse_kind
 
 if TYPE_CHECKING:
@@ -25,11 +25,13 @@ if TYPE_CHECKING:
 
     from mapdrift.panel import Panel
 
-__all__ = ["STATISTICS", "ClusterOptions", "ClusterResult", "analyse_clusters"]
+__all__ = ["STANDARDISE", "STATISTICS", "ClusterOptions", "ClusterResult", "analyse_clusters"]
 
 log = logging.getLogger(__name__)
 
 STATISTICS: tuple[str, ...] = ("local-moran", "gi-star")
+#: What the statistics use when the values are rates from counts (see ClusterOptions).
+STANDARDISE: tuple[str, ...] = ("assuncao-reis", "none")
 #: Default permutation seed (fixed, so reruns give identical tables).
 DEFAULT_SEED = 20240917
 
@@ -41,6 +43,13 @@ class ClusterOptions:
     ``change_from`` / ``change_to`` choose the two periods of the local Moran of change (default
     first and last). ``smooth`` (``eb`` or ``spatial-eb``) smooths rates from counts before the
     statistics. ``cache_dir`` keeps the spatial weights between runs.
+
+    ``standardise``: with counts, ``assuncao-reis`` (default) runs the local and global
+    statistics on Assuncao & Reis (1999) EB standardised rates, and the change and the trends
+    on global EB smoothed rates (Marshall 1991), so a small base cannot dominate a period;
+    ``none`` uses the values as mapped (the old behaviour; also what happens without counts).
+    ``p_value``: ``normal`` (default; exact-moment normal approximation, can go below the
+    permutation floor) or ``permutation`` (pseudo p-values from ``permutations`` draws).
     """
 
     weights: str = "queen"
@@ -56,6 +65,8 @@ class ClusterOptions:
     smooth: str | None = None
     min_periods: int = 4
     cache_dir: Path | None = None
+    standardise: str = "assuncao-reis"
+    p_value: str = "normal"
 
     def __post_init__(self) -> None:
         parse_kind(self.weights)
@@ -87,6 +98,20 @@ class ClusterOptions:
             )
         if self.persist < 1:
             raise ConfigError(f"--persist must be 1 or more periods, got {self.persist}")
+        if not 0 <= self.seed < 2**32:
+            raise ConfigError(f"--seed must be a whole number from 0 to 2**32 - 1, got {self.seed}")
+        if self.min_periods < 3:
+            raise ConfigError(
+                f"min_periods must be 3 or more (a trend test needs 3 values), got "
+                f"{self.min_periods}"
+            )
+        for key, valid in (("standardise", STANDARDISE), ("p_value", P_VALUES)):
+            if getattr(self, key) not in valid:
+                flag = "--" + key.replace("_", "-")
+                raise ConfigError(
+                    f"{flag} {getattr(self, key)!r} is not a valid option, must be one of "
+                    f"{', '.join(valid)}"
+                )
         if self.smooth not in (None, "eb", "spatial-eb"):
             raise ConfigError(
                 f"--smooth {self.smooth!r} is not a valid option, must be one of eb, spatial-eb"
@@ -96,6 +121,15 @@ class ClusterOptions:
     def significance(self) -> str:
         """The sentence every output carries about alpha and the correction."""
         return describe(self.alpha, self.correction) + " per period"
+
+    @property
+    def p_text(self) -> str:
+        """How local p-values were obtained, for captions and the method."""
+        if self.statistic == "gi-star":
+            return "analytical normal p-values"
+        if self.p_value == "normal":
+            return "normal p from the exact permutation mean and variance"
+        return f"{self.permutations} conditional permutations (seed {self.seed})"
 
 
 @dataclass(frozen=True, eq=False)
@@ -127,10 +161,19 @@ class ClusterResult:
     values: np.ndarray
     findings: tuple[Finding, ...] = ()
     frames: dict[str, Any] = field(default_factory=dict)
+    inputs: str = "values as mapped"
+    trend_input: str = "values as mapped"
+    stat_values: np.ndarray | None = None
 
     @property
     def significance(self) -> str:
         return self.options.significance
+
+    @property
+    def method_text(self) -> str:
+        """One sentence every cluster output carries: what was tested and how."""
+        o = self.options
+        return f"Statistics on {self.inputs}; {o.p_text}; {o.significance}."
 
     @property
     def clusters(self) -> pd.DataFrame:
@@ -160,7 +203,9 @@ class ClusterResult:
 def _local(values: np.ndarray, w: SpatialWeights, opt: ClusterOptions) -> LocalResult:
     if opt.statistic == "gi-star":
         return gi_star_panel(values, w)
-    return local_moran_panel(values, w, permutations=opt.permutations, seed=opt.seed)
+    return local_moran_panel(
+        values, w, permutations=opt.permutations, seed=opt.seed, p_value=opt.p_value
+    )
 
 
 def _label(
@@ -196,6 +241,103 @@ def _trend_map(tr: TrendResult, unit_label: str) -> tuple[np.ndarray, tuple[str,
         f"rising, steep (slope > {m:.3g}{u} per period)",
     )
     return codes, labels
+
+
+def _per(panel: Panel) -> float:
+    """The factor from raw rates to the panel's values (e.g. 1000 for "per 1,000")."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = np.asarray(panel.values) / (panel.numerator / panel.denominator)
+    ratio = ratio[np.isfinite(ratio) & (ratio > 0)]
+    return float(np.median(ratio)) if len(ratio) else 1.0
+
+
+def _empty_periods(
+    panel: Panel,
+    stat_values: np.ndarray,
+    local: LocalResult,
+    codes: np.ndarray,
+    glob: tuple[MoranGlobal, ...],
+    opt: ClusterOptions,
+    counts: bool,
+) -> list[Finding]:
+    """A warning for each period whose global Moran's I is significant but that has no local
+    high-high or low-low cluster, naming the likely reason (and the unit(s) behind it)."""
+    out = []
+    for t, g in enumerate(glob):
+        p = g.p_permutation if np.isfinite(g.p_permutation) else g.p_random
+        if not (np.isfinite(p) and p <= opt.alpha and g.I > 0):
+            continue
+        if ((codes[:, t] == lab.HH) | (codes[:, t] == lab.LL)).any():
+            continue
+        period = panel.period_labels[t]
+        x = stat_values[:, t]
+        ok = ~np.isnan(x)
+        dev = (x - np.nanmean(x)) ** 2
+        share = dev / np.nansum(dev)
+        big = np.flatnonzero(ok & (share >= 0.2))
+        m = int((~np.isnan(local.p[:, t])).sum())
+        reasons = []
+        if len(big):
+            who = []
+            for i in big[np.argsort(-share[big])][:3]:
+                base = ""
+                if counts and panel.denominator is not None:
+                    base = f", base {panel.denominator[i, t]:,.0f}"
+                who.append(f"{panel.units[i]} ({share[i]:.0%} of the period's variance{base})")
+            verb = "dominates" if len(big) == 1 else "dominate"
+            reasons.append(
+                f"{plural(len(big), 'unit')} far from the rest {verb} the period's variance: "
+                f"{', '.join(who)}"
+                + (
+                    "; with counts, the default EB standardisation guards against this"
+                    if counts and opt.standardise == "none"
+                    else ""
+                )
+            )
+        if opt.p_value == "permutation" and opt.statistic == "local-moran" and m:
+            floor = 2.0 / (opt.permutations + 1)
+            if floor > opt.alpha / m and opt.correction != "none":
+                reasons.append(
+                    f"with {opt.permutations} permutations no p-value can go below {floor:.3g}, "
+                    f"too coarse for {m} tests under {opt.correction}; "
+                    'use p_value = "normal" or more permutations'
+                )
+        if not reasons:
+            reasons.append(
+                f"the clustering is spread thinly: no unit's local evidence survives the "
+                f"{opt.correction} correction over {m} tests"
+            )
+        out.append(
+            Finding(
+                "warning",
+                "clusters-none-despite-global",
+                f"{period}: global Moran's I is {g.I:.2f} (p = {p:.3g}) but no unit is in a "
+                f"local high-high or low-low cluster; " + "; ".join(reasons),
+                tuple(panel.units[i] for i in big[:3]),
+            )
+        )
+    return out
+
+
+#: Above this magnitude squared deviations overflow float64 (1e308); statistics then use the
+#: values scaled by a power of two (exact), which Moran's I and Gi* do not depend on.
+_HUGE = 1e150
+
+
+def _rescaled(values: np.ndarray) -> tuple[np.ndarray, Finding | None]:
+    """``values`` scaled by a power of two when they are huge, with a note saying so."""
+    finite = values[np.isfinite(values)]
+    big = float(np.abs(finite).max()) if finite.size else 0.0
+    if big <= _HUGE:
+        return values, None
+    exp = int(np.frexp(big)[1])
+    note = Finding(
+        "note",
+        "values-rescaled",
+        f"values reach {big:.3g}; the cluster statistics used them divided by 2^{exp} (exact, "
+        "and Moran's I and Gi* do not change with the scale) so squares do not overflow",
+    )
+    return np.ldexp(values, -exp), note
 
 
 def analyse_clusters(
@@ -236,6 +378,28 @@ def analyse_clusters(
         findings.append(smoothed.findings[-1])
     labels_p = panel.period_labels
     n_t = len(labels_p)
+    counts = panel.numerator is not None and panel.denominator is not None
+    stat_values, series = values, values  # levels; change and trends
+    inputs = trend_input = "values as mapped"
+    if counts and opt.standardise == "assuncao-reis":
+        from mapdrift.rates import eb_standardise, smooth
+
+        missing = np.isnan(values)
+        stat_values = eb_standardise(panel.numerator, panel.denominator)
+        stat_values[missing] = np.nan
+        series = smooth(panel.numerator, panel.denominator, "eb").rates * _per(panel)
+        series[missing] = np.nan
+        inputs = "EB standardised rates (Assuncao & Reis 1999)"
+        trend_input = "EB smoothed rates (Marshall 1991)"
+        findings.append(
+            Finding(
+                "note",
+                "clusters-eb-standardised",
+                f"local and global statistics use {inputs}, so a small base cannot dominate a "
+                f"period; the change and the trends use {trend_input}; "
+                'set [clusters] standardise = "none" for the rates as mapped',
+            )
+        )
 
     # local Moran of change between two periods
     a = panel.period_index(opt.change_from) if opt.change_from is not None else 0
@@ -245,24 +409,28 @@ def analyse_clusters(
             f"the change between periods needs two different periods; got --from "
             f"{labels_p[a]} --to {labels_p[b]} (periods: {examples(labels_p, 6)})"
         )
-    delta = (values[:, b] - values[:, a])[:, None]
+    stat_values, rescaled = _rescaled(stat_values)
+    if rescaled is not None:
+        findings.append(rescaled)
+    change_base = _rescaled(series)[0]  # the local Moran of change does not depend on scale
+    delta = (change_base[:, b] - change_base[:, a])[:, None]
     # four independent computations, the same calls on every executor
     local, glob_list, ch_local, tr = (executor or SerialExecutor()).run(
         [
-            (_local, (values, weights, opt)),
+            (_local, (stat_values, weights, opt)),
             (partial(moran_global_panel, permutations=opt.permutations, seed=opt.seed),
-             (values, weights)),
+             (stat_values, weights)),
             (_local, (delta, weights, opt)),
             (partial(trends, alpha=opt.alpha, correction=opt.correction,
-                     min_periods=opt.min_periods), (values, period_times(panel.periods))),
+                     min_periods=opt.min_periods), (series, period_times(panel.periods))),
         ]
     )  # fmt: skip
-    p_adj, codes = _label(local, values, opt)
+    p_adj, codes = _label(local, stat_values, opt)
     glob = tuple(glob_list)
     _, ch_codes = _label(ch_local, delta, opt)
     t_codes, t_labels = _trend_map(tr, "")
 
-    if opt.statistic == "local-moran" and opt.permutations > 0:
+    if opt.statistic == "local-moran" and opt.permutations > 0 and opt.p_value == "permutation":
         m = int(np.nanmax((~np.isnan(local.p)).sum(axis=0), initial=0))
         floor = 2.0 / (opt.permutations + 1)
         if m and floor > opt.alpha / m and opt.correction != "none":
@@ -288,11 +456,12 @@ def analyse_clusters(
         Finding(
             "note",
             "clusters-summary",
-            f"{opt.statistic} with {weights.kind} weights, {opt.permutations} permutations, "
-            f"seed {opt.seed}, {opt.significance}: high-high units per period "
+            f"{opt.statistic} on {inputs} with {weights.kind} weights, {opt.p_text}, "
+            f"{opt.significance}: high-high units per period "
             f"{', '.join(f'{p} {int(c)}' for p, c in zip(labels_p, n_hh, strict=True))}",
         )
     )
+    findings += _empty_periods(panel, stat_values, local, codes, glob, opt, counts)
     result = ClusterResult(
         options=opt,
         units=panel.units,
@@ -310,6 +479,9 @@ def analyse_clusters(
         trend_labels=t_labels,
         values=values,
         findings=tuple(findings),
+        inputs=inputs,
+        trend_input=trend_input,
+        stat_values=stat_values,
     )
     result.frames.update(build_frames(result, panel))
     return result

@@ -41,6 +41,9 @@ def build_frames(res: ClusterResult, panel: Panel) -> dict[str, Any]:
             "correction": opt.correction,
         }
     )
+    if res.stat_values is not None and res.stat_values is not res.values:
+        clusters.insert(3, "eb_standardised_rate", res.stat_values.ravel())
+    clusters["p_method"] = res.local.p_value
     glob = pd.DataFrame(
         [
             {
@@ -54,6 +57,7 @@ def build_frames(res: ClusterResult, panel: Panel) -> dict[str, Any]:
                 "p_permutation": g.p_permutation,
                 "permutations": g.permutations,
                 "weights": res.weights.kind,
+                "input": res.inputs,
             }
             for p, g in zip(periods, res.global_stats, strict=True)
         ]
@@ -93,6 +97,7 @@ def build_frames(res: ClusterResult, panel: Panel) -> dict[str, Any]:
             "theil_sen_slope": tr.slope,
             "significant": tr.significant,
             "direction": list(tr.direction),
+            "series": res.trend_input,
             "alpha": opt.alpha,
             "correction": opt.correction,
         }
