@@ -72,7 +72,6 @@ def test_typos_get_a_suggestion_and_line(tmp_path):
 
 def test_set_overrides_any_key():
     from conftest import DEMO
-
     from mapdrift.config import parse_setting
 
     assert parse_setting("clusters.permutations=9999") == ("clusters", "permutations", 9999)

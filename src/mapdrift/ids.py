@@ -18,7 +18,7 @@ import numpy as np
 from mapdrift.findings import Finding, examples, plural
 
 if TYPE_CHECKING:
-    pass
+    import pandas as pd
 
 __all__ = ["closest", "locate", "normalise", "normalise_ids", "pad_ids", "zfill"]
 
@@ -51,7 +51,9 @@ def normalise(values: Any) -> np.ndarray:
     dotted = text.str.contains(".", regex=False).fillna(False).to_numpy(bool)
     out = text.to_numpy(dtype=object)
     if dotted.any():  # a float's trailing ".0": only the few cells with a point go through re
-        fixed = pd.Series(out[dotted], dtype=object).str.replace(r"^(-?\d+)\.0+$", r"\1", regex=True)
+        fixed = pd.Series(out[dotted], dtype=object).str.replace(
+            r"^(-?\d+)\.0+$", r"\1", regex=True
+        )
         out[dotted] = fixed.to_numpy(dtype=object)
     out[missing] = ""
     return out
@@ -90,8 +92,6 @@ def zfill(ids: np.ndarray, width: int) -> np.ndarray:
 
 def _digits(ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(all-digit mask, lengths) of an object array of strings, vectorised."""
-    import pandas as pd
-
     s = _text(np.asarray(ids, dtype=object))
     digit = s.str.fullmatch(r"[0-9]+").fillna(False).to_numpy(bool)
     return digit, s.str.len().fillna(0).to_numpy(dtype=np.int64)

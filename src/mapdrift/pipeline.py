@@ -15,7 +15,6 @@ from __future__ import annotations
 import json
 import logging
 import os
-import shutil
 import time
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
@@ -109,8 +108,10 @@ def default_out(config: Config) -> Path:
 def run_inputs(config: Config) -> list[Path]:
     """Every file or folder this run reads: the config and each path-valued key."""
     found: list[Path] = [config.path] if config.path is not None else []
-    for values in config.sections.values():
-        for v in values.values():
+    for section, values in config.sections.items():
+        for key, v in values.items():
+            if (section, key) == ("run", "out"):
+                continue
             for item in v if isinstance(v, list | tuple) else (v,):
                 if isinstance(item, Path):
                     found.append(item)
@@ -165,6 +166,13 @@ def _step_load(state: RunState) -> str:
     state.panel = load_panel(state.inputs)
     state.findings += state.panel.findings
     p = state.panel
+    if p.n_periods < 2:
+        table = inputs.get("table") or inputs["geometry"]
+        raise InputError(
+            f"{table}: only one period ({', '.join(p.period_labels) or 'none'}) has values; a run "
+            "compares periods, so it needs two or more (check the period column, or use "
+            "`mapdrift animate --at` for a single map)"
+        )
     return (
         f"{p.n_units} units x {p.n_periods} periods ({p.period_labels[0]} to {p.period_labels[-1]})"
     )
@@ -486,7 +494,7 @@ def _step_clusters(state: RunState) -> str:
 
 
 def _step_units(state: RunState) -> str:
-    from mapdrift.brief.tables import units_table, write_units_gpkg
+    from mapdrift.brief.tables import SQLITE_MAX_COLUMNS, units_table, write_units_gpkg
     from mapdrift.outputs import write_csv
 
     extra: dict[str, Any] = {}
@@ -506,7 +514,19 @@ def _step_units(state: RunState) -> str:
     formats = state.section(BriefSpec, "brief").formats
     style = ""
     if "gpkg" in formats:
-        write_units_gpkg(df, state.panel.geometry, state.path("units.gpkg"))
+        p = state.panel
+        if write_units_gpkg(
+            df, p.geometry, state.path("units.gpkg"), period_labels=p.period_labels
+        ):
+            state.findings.append(
+                Finding(
+                    "note",
+                    "units-gpkg-long",
+                    f"units.gpkg: {len(df.columns)} columns are more than a GeoPackage table "
+                    f"holds ({SQLITE_MAX_COLUMNS}); the per-period columns are in its table "
+                    "units_by_period (one row per unit and period)",
+                )
+            )
         last = f"cluster_{state.panel.period_labels[-1]}"
         if last in df.columns:  # the cluster look for the units layer, as an OGC SLD
             from mapdrift.brief.pictures import write_cluster_style
@@ -516,6 +536,16 @@ def _step_units(state: RunState) -> str:
     return f"{len(df)} units x {len(df.columns)} columns (units.csv" + (
         f", units.gpkg{style})" if "gpkg" in formats else ")"
     )
+
+
+def _step_explorer(state: RunState) -> str:
+    formats = state.section(BriefSpec, "brief").formats
+    if "html" not in formats and "explorer" not in formats:
+        return 'not asked for ([brief] formats has neither "html" nor "explorer")'
+    from mapdrift.brief.explorer import payload_from_state, write_explorer
+
+    path = write_explorer(payload_from_state(state), state.path("explorer.html"))
+    return f"explorer.html ({path.stat().st_size / 1e6:.2f} MB)"
 
 
 def _step_whatsnew(state: RunState) -> str:
@@ -602,6 +632,7 @@ STEPS: list[tuple[str, Callable[[RunState], str]]] = [
     ("clusters", _step_clusters),
     ("animate", _step_animate),
     ("units", _step_units),
+    ("explorer", _step_explorer),
     ("whats-new", _step_whatsnew),
     ("findings", _step_findings),
     ("brief", _step_brief),
@@ -692,7 +723,14 @@ def run(
     it starts (the CLI shows a spinner with it). ``out`` is checked before any work and again
     at the swap (see :mod:`mapdrift.outfolder`); leftovers of killed runs are cleaned first.
     """
-    from mapdrift.outfolder import lock_out, recover, set_aside_for, staging_for, swap_in
+    from mapdrift.outfolder import (
+        lock_out,
+        recover,
+        remove_staging,
+        set_aside_for,
+        staging_for,
+        swap_in,
+    )
 
     run_spec: RunSpec = merge(RunSpec, config.section("run"), {})
     out = Path(out or run_spec.out or default_out(config))
@@ -707,15 +745,15 @@ def run(
                 progress(f"{'recover':<10} {line}")
         prepare_out(out, force=force, inputs=inputs)  # before any work
         staging = staging_for(out)
-        staging.mkdir(parents=True)
         try:
+            staging.mkdir(parents=True)
             state = RunState(config=config, staging=staging, run=run_spec)
             state.findings += [Finding("warning", "out-recovered", m) for m in recovered]
             _run_steps(state, out, steps, progress, on_start)
             _manifest(state, replaces=set_aside_for(out).name if out.exists() else None)
             swap_in(staging, out, inputs, force=force)
         finally:
-            shutil.rmtree(staging, ignore_errors=True)
+            remove_staging(staging)
     outputs = tuple(sorted(p for p in out.rglob("*") if p.is_file()))
     return RunResult(
         out, tuple(state.findings), dict(state.timings), dict(state.summaries), outputs

@@ -244,7 +244,7 @@ def build_brief(state: RunState) -> Brief:
             "maps",
             f"The map, {_period_span(state)}",
             paragraphs=(
-                "Every frame uses the same classes, so a colour means the same range in every year."
+                "Every frame uses the same classes, so a colour means the same range in every period."
                 if not state.classes.per_period
                 else state.classes.warning or "",
                 "The animation (animation.gif, animation.mp4) shows one frame per period; below is its last frame, then every period side by side.",

@@ -39,9 +39,9 @@ def run_config(config: Any, *, out: Path | None, force: bool) -> Any:
             )
     summarise_findings(result.findings, "data findings:")
     n_warn = sum(f.level == "warning" for f in result.findings)
-    echo(
-        f"done: {len(result.outputs)} files in {result.out} ({n_warn} data warnings; see report.html)"
-    )
+    report = next((n for n in ("report.html", "report.md") if (result.out / n).exists()), None)
+    see = f"; see {report}" if report else "; see findings.json"
+    echo(f"done: {len(result.outputs)} files in {result.out} ({n_warn} data warnings{see})")
     return result
 
 

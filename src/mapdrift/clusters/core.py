@@ -98,6 +98,13 @@ class ClusterOptions:
             )
         if self.persist < 1:
             raise ConfigError(f"--persist must be 1 or more periods, got {self.persist}")
+        if not 0 <= self.seed < 2**32:
+            raise ConfigError(f"--seed must be a whole number from 0 to 2**32 - 1, got {self.seed}")
+        if self.min_periods < 3:
+            raise ConfigError(
+                f"min_periods must be 3 or more (a trend test needs 3 values), got "
+                f"{self.min_periods}"
+            )
         for key, valid in (("standardise", STANDARDISE), ("p_value", P_VALUES)):
             if getattr(self, key) not in valid:
                 flag = "--" + key.replace("_", "-")
@@ -312,6 +319,27 @@ def _empty_periods(
     return out
 
 
+#: Above this magnitude squared deviations overflow float64 (1e308); statistics then use the
+#: values scaled by a power of two (exact), which Moran's I and Gi* do not depend on.
+_HUGE = 1e150
+
+
+def _rescaled(values: np.ndarray) -> tuple[np.ndarray, Finding | None]:
+    """``values`` scaled by a power of two when they are huge, with a note saying so."""
+    finite = values[np.isfinite(values)]
+    big = float(np.abs(finite).max()) if finite.size else 0.0
+    if big <= _HUGE:
+        return values, None
+    exp = int(np.frexp(big)[1])
+    note = Finding(
+        "note",
+        "values-rescaled",
+        f"values reach {big:.3g}; the cluster statistics used them divided by 2^{exp} (exact, "
+        "and Moran's I and Gi* do not change with the scale) so squares do not overflow",
+    )
+    return np.ldexp(values, -exp), note
+
+
 def analyse_clusters(
     panel: Panel,
     classes: Any = None,
@@ -381,7 +409,11 @@ def analyse_clusters(
             f"the change between periods needs two different periods; got --from "
             f"{labels_p[a]} --to {labels_p[b]} (periods: {examples(labels_p, 6)})"
         )
-    delta = (series[:, b] - series[:, a])[:, None]
+    stat_values, rescaled = _rescaled(stat_values)
+    if rescaled is not None:
+        findings.append(rescaled)
+    change_base = _rescaled(series)[0]  # the local Moran of change does not depend on scale
+    delta = (change_base[:, b] - change_base[:, a])[:, None]
     # four independent computations, the same calls on every executor
     local, glob_list, ch_local, tr = (executor or SerialExecutor()).run(
         [

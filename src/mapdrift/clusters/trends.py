@@ -14,7 +14,7 @@ NaN for every statistic (direction ``too few periods``). Both are vectorised ove
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -44,23 +44,63 @@ def period_times(periods: Sequence[Any]) -> np.ndarray:
     return np.asarray(out, dtype=np.float64)
 
 
+#: Elements in any temporary array of the pairwise computations (about 32 MB of float64):
+#: memory stays bounded whatever the number of periods (pairs grow as periods squared).
+BUDGET = 1 << 22
+
+
+def _row_blocks(n_rows: int, per_row: int) -> list[slice]:
+    step = max(1, BUDGET // max(per_row, 1))
+    return [slice(a, min(a + step, n_rows)) for a in range(0, n_rows, step)]
+
+
+def _pair_sign_sum(x: np.ndarray) -> np.ndarray:
+    """``S = sum_{i<j} sign(x_j - x_i)`` per row, NaN pairs skipped, in bounded blocks."""
+    n_u, T = x.shape
+    S = np.zeros(n_u)
+    if T < 2:
+        return S
+    for rows in _row_blocks(n_u, T * min(T, 64)):
+        xb = x[rows]
+        i_step = max(1, BUDGET // max(xb.shape[0] * T, 1))
+        for a in range(0, T - 1, i_step):
+            b = min(a + i_step, T - 1)
+            d = xb[:, None, a + 1 :] - xb[:, a:b, None]  # [rows, i in a..b, j > a]
+            sgn = np.sign(d)
+            # keep j > i only: column offset c = j - (a + 1) must be >= i - a
+            keep = np.arange(T - a - 1)[None, :] >= np.arange(b - a)[:, None]
+            sgn = np.where(keep[None] & ~np.isnan(sgn), sgn, 0.0)
+            S[rows] += sgn.sum(axis=(1, 2))
+    return S
+
+
+def _tie_sums(x: np.ndarray) -> np.ndarray:
+    """``sum_g t_g(t_g-1)(2t_g+5)`` over the groups of equal values of each row (NaN skipped),
+    by sorting: O(T log T) time and O(T) memory per row."""
+    n_u, T = x.shape
+    out = np.zeros(n_u)
+    if T < 2 or n_u == 0:
+        return out
+    xs = np.sort(x, axis=1)  # NaN last; NaN never equals anything
+    new_group = np.ones((n_u, T), dtype=bool)
+    new_group[:, 1:] = xs[:, 1:] != xs[:, :-1]
+    gid = np.cumsum(new_group.ravel()) - 1  # groups numbered across the flattened rows
+    t = np.bincount(gid).astype(np.float64)
+    row_of_group = np.repeat(np.arange(n_u), new_group.sum(axis=1))
+    np.add.at(out, row_of_group, t * (t - 1) * (2 * t + 5))
+    return out
+
+
 def mann_kendall(values: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """``(S, Var S, Z, p)`` per row of ``values`` [units, periods] in period order; NaN skipped.
 
-    Rows with fewer than 3 values get NaN.
+    Rows with fewer than 3 values get NaN. Memory is bounded (:data:`BUDGET`): pairs are
+    summed in blocks, tie groups found by sorting.
     """
     x = np.atleast_2d(np.asarray(values, dtype=np.float64))
-    valid = ~np.isnan(x)
-    n = valid.sum(axis=1).astype(np.float64)
-    i, j = np.triu_indices(x.shape[1], k=1)
-    both = valid[:, i] & valid[:, j]
-    d = np.where(both, np.sign(np.nan_to_num(x[:, j]) - np.nan_to_num(x[:, i])), 0.0)
-    S = d.sum(axis=1)
-    # tie groups: with c_a = number of other values equal to value a,
-    # sum_g t(t-1) = sum_a c_a and sum_g t(t-1)(t-2) = sum_a c_a(c_a-1).
-    eq = (x[:, :, None] == x[:, None, :]) & valid[:, :, None] & valid[:, None, :]
-    c = eq.sum(axis=2) - valid  # minus self
-    ties = 2.0 * (c * (c - 1)).sum(axis=1) + 9.0 * c.sum(axis=1)
+    n = (~np.isnan(x)).sum(axis=1).astype(np.float64)
+    S = _pair_sign_sum(x)
+    ties = _tie_sums(x)
     var = (n * (n - 1) * (2 * n + 5) - ties) / 18.0
     with np.errstate(invalid="ignore", divide="ignore"):
         Z = np.where(var > 0, (S - np.sign(S)) / np.sqrt(var), np.nan)
@@ -73,19 +113,103 @@ def mann_kendall(values: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray
 
 def theil_sen(values: np.ndarray, times: np.ndarray) -> np.ndarray:
     """Median pairwise slope per row of ``values`` [units, periods] against ``times``; NaN
-    skipped; NaN for rows with fewer than 2 values."""
+    skipped; NaN for rows with fewer than 2 values.
+
+    Memory is bounded (:data:`BUDGET`): rows are taken in blocks, and a row whose pairs alone
+    exceed the budget (thousands of periods) gets the exact median by :func:`_median_slope`.
+    """
     x = np.atleast_2d(np.asarray(values, dtype=np.float64))
     t = np.asarray(times, dtype=np.float64)
-    i, j = np.triu_indices(x.shape[1], k=1)
+    i, j = np.triu_indices(x.shape[1], k=1) if x.shape[1] * x.shape[1] <= 2 * BUDGET else ((), ())
+    out = np.full(x.shape[0], np.nan)
+    if len(i) == 0 and x.shape[1] > 1:  # very long series: one row at a time, exact
+        for u in range(x.shape[0]):
+            out[u] = _median_slope(x[u], t)
+        return out
+    i, j = np.asarray(i, dtype=np.intp), np.asarray(j, dtype=np.intp)
     dt = t[j] - t[i]
     keep = dt != 0
     i, j, dt = i[keep], j[keep], dt[keep]
-    slopes = (x[:, j] - x[:, i]) / dt
-    out = np.full(x.shape[0], np.nan)
-    has = (~np.isnan(slopes)).any(axis=1)
-    if has.any():
-        out[has] = np.nanmedian(slopes[has], axis=1)
+    for rows in _row_blocks(x.shape[0], max(len(i), 1)):
+        slopes = (x[rows][:, j] - x[rows][:, i]) / dt
+        has = (~np.isnan(slopes)).any(axis=1)
+        if has.any():
+            block = out[rows]
+            block[has] = np.nanmedian(slopes[has], axis=1)
+            out[rows] = block
     return out
+
+
+def _slope_chunks(x: np.ndarray, t: np.ndarray) -> Iterator[np.ndarray]:
+    """Every pairwise slope (i < j, t_i != t_j) of one row, in chunks of at most BUDGET."""
+    T = len(x)
+    step = max(1, BUDGET // max(T, 1))
+    for a in range(0, T - 1, step):
+        b = min(a + step, T - 1)
+        d = x[None, a + 1 :] - x[a:b, None]
+        dt = t[None, a + 1 :] - t[a:b, None]
+        keep = (np.arange(a + 1, T)[None, :] > np.arange(a, b)[:, None]) & (dt != 0)
+        yield d[keep] / dt[keep]
+
+
+def _median_slope(row: np.ndarray, times: np.ndarray) -> float:
+    """Exact median of the pairwise slopes of one long row without holding them all.
+
+    A seeded sample of pairs brackets the median; one pass counts the slopes below, equal to
+    and above the bracket and keeps only those inside it; if the median is not inside, the
+    bracket is widened on that side and the pass repeated.
+    """
+    ok = ~np.isnan(row)
+    x, t = row[ok], times[ok]
+    k = len(x)
+    if k < 2:
+        return float("nan")
+    rng = np.random.default_rng(0)
+    n_s = min(1_000_000, k * k)
+    a, b = rng.integers(0, k, n_s), rng.integers(0, k, n_s)
+    a, b = np.minimum(a, b), np.maximum(a, b)
+    keep = (a != b) & (t[b] != t[a])
+    sample = np.sort((x[b[keep]] - x[a[keep]]) / (t[b[keep]] - t[a[keep]]))
+    if len(sample) == 0:
+        return float("nan")
+    margin = max(int(4 * np.sqrt(len(sample))), 10)
+    mid = len(sample) // 2
+    lo = sample[max(mid - margin, 0)]
+    hi = sample[min(mid + margin, len(sample) - 1)]
+    for _ in range(4):
+        below = above = at_lo = at_hi = 0
+        inside: list[np.ndarray] = []
+        m = 0
+        for s in _slope_chunks(x, t):
+            m += len(s)
+            below += int((s < lo).sum())
+            above += int((s > hi).sum())
+            at_lo += int((s == lo).sum())
+            at_hi += int((s == hi).sum()) if hi != lo else 0
+            inside.append(s[(s > lo) & (s < hi)])
+        if m == 0:
+            return float("nan")
+        ranks = [(m - 1) // 2, m // 2]
+        # sorted order: [below][== lo][inside][== hi][above]
+        if below <= ranks[0] and ranks[1] < m - above:
+            mids = np.sort(np.concatenate(inside)) if inside else np.empty(0)
+            ordered_vals = []
+            for r in ranks:
+                r -= below
+                if r < at_lo:
+                    ordered_vals.append(lo)
+                    continue
+                r -= at_lo
+                if r < len(mids):
+                    ordered_vals.append(float(mids[r]))
+                    continue
+                ordered_vals.append(hi)
+            return float(np.mean(ordered_vals))
+        if below > ranks[0]:
+            lo = -np.inf
+        if ranks[1] >= m - above:
+            hi = np.inf
+    raise RuntimeError("median slope did not converge")  # pragma: no cover
 
 
 @dataclass(frozen=True, eq=False)
