@@ -468,6 +468,11 @@ def test_jumps_with_and_without_a_credible_column():
     assert size.tolist() == [[0, 2, 0], [0, 0, 0], [0, 0, -3]]
     size, cred, known = _jump_arrays(jumps.assign(credible=[True, False]), units, periods)
     assert known and cred.tolist() == [[0, 2, 0], [0, 0, 0], [0, 0, 1]]
+    # as jumps.csv writes it: "true" / "false", blank when the move was not tested
+    size, cred, known = _jump_arrays(jumps.assign(credible=["true", ""]), units, periods)
+    assert known and cred.tolist() == [[0, 2, 0], [0, 0, 0], [0, 0, 0]]
+    _, _, known = _jump_arrays(jumps.assign(credible=["", ""]), units, periods)
+    assert not known
 
 
 def test_smoothed_run_carries_the_raw_rates(grid_run, tmp_path, browser):

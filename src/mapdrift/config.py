@@ -108,7 +108,8 @@ class BriefSpec:
             )
 
 
-#: The briefing's output formats (``[brief] formats``).
+#: The briefing's output formats (``[brief] formats``); ``explorer.html`` is written for
+#: ``html`` too, ``explorer`` asks for it alone.
 FORMATS: tuple[str, ...] = ("gif", "mp4", "png", "pptx", "html", "gpkg", "explorer")
 
 

@@ -146,8 +146,8 @@ def _period_major(arr: np.ndarray) -> np.ndarray:
 def _jump_arrays(
     jumps: Any, units: Sequence[str], periods: Sequence[str]
 ) -> tuple[np.ndarray, np.ndarray, bool]:
-    """Signed jump size into each period ``[units, periods]`` and credibility (0 unknown or no
-    jump, 1 not credible, 2 credible); and whether the table said anything about credibility."""
+    """Signed jump size into each period ``[units, periods]`` and credibility (0 no jump or not
+    tested, 1 not credible, 2 credible); and whether any move was tested for credibility."""
     n_u, n_p = len(units), len(periods)
     size = np.zeros((n_u, n_p), dtype=np.int8)
     cred = np.zeros((n_u, n_p), dtype=np.uint8)
@@ -161,9 +161,12 @@ def _jump_arrays(
     s = np.asarray(jumps["size"], dtype=np.int64)[ok]
     size[uidx[ok], pidx[ok]] = np.clip(s, -127, 127)
     known = "credible" in jumps.columns
-    if known:
-        c = jumps["credible"].astype(str).str.lower().isin(["true", "1", "yes"]).to_numpy()[ok]
-        cred[uidx[ok], pidx[ok]] = np.where(c, 2, 1)
+    if known:  # "true" / "false", blank when the move could not be tested
+        text = jumps["credible"].astype(str).str.strip().str.lower().to_numpy()[ok]
+        yes = np.isin(text, ["true", "1", "yes"])
+        no = np.isin(text, ["false", "0", "no"])
+        cred[uidx[ok], pidx[ok]] = np.where(yes, 2, np.where(no, 1, 0))
+        known = bool((yes | no).any())
     return size, cred, known
 
 

@@ -122,7 +122,10 @@
     if (!A.jumps) return null;
     if (!s) return 'no jump into ' + D.periods[j];
     var t = (s > 0 ? 'up ' : 'down ') + Math.abs(s) + ' classes since the previous period';
-    if (A.credible) t += A.credible[j * N + u] === 2 ? ' (credible)' : ' (not credible: within noise)';
+    if (A.credible) {
+      var cr = A.credible[j * N + u];
+      t += cr === 2 ? ' (credible)' : cr === 1 ? ' (not credible: within noise)' : ' (not tested)';
+    }
     return t;
   }
   function clusterText(u, j) {
