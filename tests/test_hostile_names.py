@@ -68,3 +68,28 @@ def test_markdown_has_no_injected_structure(hostile_run):
     assert [ln for ln in lines if ln.startswith("# ")] == [lines[0]]  # one title only
     assert "\\# Not a heading" in lines[0] and "Injected heading" in md
     assert "[link](x)" not in md and "\\[link\\](x)" in md
+
+
+def test_ids_with_line_breaks_do_not_break_the_briefing(tmp_path):
+    import geopandas as gpd
+    import pandas as pd
+
+    data = tmp_path / "data"
+    shutil.copytree(DEMO, data)
+
+    def hostile(ids):
+        return [v[:3] + "\n# " + v[3:] for v in ids]
+
+    g = gpd.read_file(data / "county_units.gpkg", layer="units")
+    g["unit_id"] = hostile(g["unit_id"])
+    (data / "county_units.gpkg").unlink()
+    g.to_file(data / "county_units.gpkg", layer="units", driver="GPKG")
+    t = pd.read_csv(data / "filings.csv", dtype={"unit_id": str})
+    t["unit_id"] = hostile(t["unit_id"])
+    t.to_csv(data / "filings.csv", index=False)
+    cfg = load_config(data / "demo.toml").with_values("brief", {"formats": ["png", "html"]})
+    res = run(cfg.with_values("clusters", {"permutations": 99}), out=tmp_path / "out")
+    assert "ids-control-characters" in {f.code for f in res.findings}
+    md = (res.out / "report.md").read_text(encoding="utf-8")
+    assert not [ln for ln in md.splitlines() if ln.startswith("# ") and "070" in ln]
+    assert "070 \\# 01" in md or "070 \\# " in md

@@ -333,3 +333,20 @@ def test_moe_column_through_the_command(tmp_path, runner):
     jumps = read_csv(out / "jumps.csv", dtype={"unit": str})
     assert set(jumps["credible"].astype(str).str.lower()) <= {"true", "false"}
     assert (jumps["credible"].astype(str).str.lower() == "true").any()
+
+
+def test_views_and_smoothing_combine_with_eb():
+    # a per-period rescaling (relative-median) leaves the EB standardisation valid; a per-unit
+    # one (index to a base year) would be undone by it, so the values are used as mapped
+    from mapdrift.views import apply_view
+
+    p = make_panel(n=300, hot=15, jumpers=2).panel
+    rel = analyse_clusters(apply_view(p, "relative-median"), None, ClusterOptions())
+    base = analyse_clusters(p, None, ClusterOptions())
+    assert rel.inputs == base.inputs and rel.inputs.startswith("EB standardised")
+    np.testing.assert_array_equal(rel.codes, base.codes)
+    idx = analyse_clusters(apply_view(p, "index:2012"), None, ClusterOptions())
+    assert idx.inputs == "values as mapped"
+    assert any(f.code == "clusters-eb-not-combined" for f in idx.findings)
+    sm = analyse_clusters(p, None, ClusterOptions(smooth="eb"))
+    assert sm.trend_input == "the smoothed rates" and sm.inputs.startswith("EB standardised")

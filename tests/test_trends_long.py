@@ -48,6 +48,12 @@ def test_blocked_results_equal_scipy(monkeypatch, budget):
     assert np.allclose(tr.mann_kendall(x)[0], S)
 
 
+def test_long_rows_count_s_like_the_pairs():
+    # from _LONG periods on, S comes from Kendall's tau per row; both ways are exact
+    x = _series(3, tr._LONG + 200)
+    assert np.array_equal(tr.mann_kendall(x)[0], tr._pair_sign_sum(x))
+
+
 def test_ten_thousand_periods_in_bounded_memory():
     # the audit's case was 16 units x 10,000 periods (23 GB); 3 units keep the test short
     x = _series(3, 10_000)

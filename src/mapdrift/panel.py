@@ -98,11 +98,38 @@ class Panel:
             raise ValueError("labels must have one entry per period")
 
     def _clean_texts(self) -> None:
-        """Control characters in names and labels become spaces (they would break slides and
-        inject Markdown headings), said once in a ``names-control-characters`` finding."""
+        """Control characters in IDs, names and labels become spaces (they would break slides
+        and inject Markdown headings), said in ``ids-control-characters`` /
+        ``names-control-characters`` findings (IDs that would then collide are an error)."""
         from mapdrift.findings import examples, plural
         from mapdrift.safetext import clean, clean_all
 
+        units, odd = clean_all(self.units)
+        if odd:
+            if len(set(units)) != len(units):
+                from mapdrift.errors import InputError
+
+                raise InputError(
+                    f"{plural(len(odd), 'unit ID')} hold line breaks, tabs or other control "
+                    f"characters (e.g. {examples([repr(self.units[i]) for i in odd], 3)}) and "
+                    "would collide with other IDs once those are replaced by spaces; fix the IDs"
+                )
+            shown = examples([repr(self.units[i]) for i in odd], 3, total=False)
+            object.__setattr__(self, "units", units)
+            object.__setattr__(
+                self,
+                "findings",
+                (
+                    *self.findings,
+                    Finding(
+                        "warning",
+                        "ids-control-characters",
+                        f"{plural(len(odd), 'unit ID')} held line breaks, tabs or other control "
+                        f"characters ({shown}); they are written with spaces instead",
+                        tuple(units[i] for i in odd),
+                    ),
+                ),
+            )
         names, changed = clean_all(self.names)
         if changed:
             object.__setattr__(self, "names", names)

@@ -657,7 +657,8 @@ def build_slides(state: RunState, brief: Brief, pictures: Path | None = None) ->
         n_trend = 0 if state.trends_skipped else int(cl.trends["significant"].astype(bool).sum())
         later = [
             ("clusters", "cluster_map.png",
-             f"{noun_for(n_hh, noun)} in high-high and {n_ll:,} in low-low clusters, {last}",
+             (f"{noun_for(n_hh, noun)} in high-high and {n_ll:,} in low-low clusters, {last}"
+              if n_ll else f"{noun_for(n_hh, noun)} in high-high clusters, {last}"),
              "Local clusters in the last period."),
             ("global-moran", "global_moran.png",
              f"The map is clustered in {n_sig:,} of {len(g):,} periods",

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import logging
+import warnings
 from dataclasses import dataclass, field
 from functools import partial
 from pathlib import Path
@@ -243,12 +244,20 @@ def _trend_map(tr: TrendResult, unit_label: str) -> tuple[np.ndarray, tuple[str,
     return codes, labels
 
 
-def _per(panel: Panel) -> float:
-    """The factor from raw rates to the panel's values (e.g. 1000 for "per 1,000")."""
+def _period_factors(panel: Panel) -> np.ndarray | None:
+    """Per period, the factor from raw rates to the panel's values (``per``, times a view's
+    per-period rescaling such as relative-median or a deflator); None when the factor differs
+    between units of a period (a per-unit view such as index:2015)."""
     with np.errstate(invalid="ignore", divide="ignore"):
         ratio = np.asarray(panel.values) / (panel.numerator / panel.denominator)
-    ratio = ratio[np.isfinite(ratio) & (ratio > 0)]
-    return float(np.median(ratio)) if len(ratio) else 1.0
+    ratio[~np.isfinite(ratio) | (ratio <= 0)] = np.nan
+    if np.isnan(ratio).all(axis=0).any():
+        return None
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        mid = np.nanmedian(ratio, axis=0)
+        spread = np.nanmax(np.abs(ratio / mid - 1), axis=0)
+    return mid if np.all(spread < 1e-6) else None
 
 
 def _empty_periods(
@@ -381,16 +390,33 @@ def analyse_clusters(
     counts = panel.numerator is not None and panel.denominator is not None
     stat_values, series = values, values  # levels; change and trends
     inputs = trend_input = "values as mapped"
-    if counts and opt.standardise == "assuncao-reis":
+    use_eb = counts and opt.standardise == "assuncao-reis"
+    # rates smoothed already (smooth = "eb" / "spatial-eb"): trends and change use them as they are
+    smoothed = bool(opt.smooth) or any(f.code.startswith("rates-smoothed") for f in panel.findings)
+    factors = _period_factors(panel) if use_eb and not smoothed else None
+    if use_eb and not smoothed and factors is None:
+        findings.append(
+            Finding(
+                "note",
+                "clusters-eb-not-combined",
+                "the values are rescaled unit by unit (a per-unit view), which EB "
+                "standardisation of the counts would undo; statistics use the values as mapped",
+            )
+        )
+    if use_eb and (smoothed or factors is not None):
         from mapdrift.rates import eb_standardise, smooth
 
         missing = np.isnan(values)
         stat_values = eb_standardise(panel.numerator, panel.denominator)
         stat_values[missing] = np.nan
-        series = smooth(panel.numerator, panel.denominator, "eb").rates * _per(panel)
-        series[missing] = np.nan
         inputs = "EB standardised rates (Assuncao & Reis 1999)"
-        trend_input = "EB smoothed rates (Marshall 1991)"
+        if smoothed:
+            trend_input = "the smoothed rates"
+        else:
+            assert factors is not None
+            series = smooth(panel.numerator, panel.denominator, "eb").rates * factors[None, :]
+            series[missing] = np.nan
+            trend_input = "EB smoothed rates (Marshall 1991)"
         findings.append(
             Finding(
                 "note",

@@ -49,29 +49,48 @@ def period_times(periods: Sequence[Any]) -> np.ndarray:
 BUDGET = 1 << 22
 
 
+#: Slopes per chunk in the long-series walk: small enough to stay in the CPU cache.
+_CHUNK = 1 << 18
+
+
 def _row_blocks(n_rows: int, per_row: int) -> list[slice]:
     step = max(1, BUDGET // max(per_row, 1))
     return [slice(a, min(a + step, n_rows)) for a in range(0, n_rows, step)]
 
 
 def _pair_sign_sum(x: np.ndarray) -> np.ndarray:
-    """``S = sum_{i<j} sign(x_j - x_i)`` per row, NaN pairs skipped, in bounded blocks."""
+    """``S = sum_{i<j} sign(x_j - x_i)`` per row, NaN pairs skipped: walked by lag
+    (``x[:, lag:] - x[:, :-lag]``) over blocks of rows, so memory stays within BUDGET."""
     n_u, T = x.shape
     S = np.zeros(n_u)
-    if T < 2:
-        return S
-    for rows in _row_blocks(n_u, T * min(T, 64)):
+    for rows in _row_blocks(n_u, T):
         xb = x[rows]
-        i_step = max(1, BUDGET // max(xb.shape[0] * T, 1))
-        for a in range(0, T - 1, i_step):
-            b = min(a + i_step, T - 1)
-            d = xb[:, None, a + 1 :] - xb[:, a:b, None]  # [rows, i in a..b, j > a]
-            sgn = np.sign(d)
-            # keep j > i only: column offset c = j - (a + 1) must be >= i - a
-            keep = np.arange(T - a - 1)[None, :] >= np.arange(b - a)[:, None]
-            sgn = np.where(keep[None] & ~np.isnan(sgn), sgn, 0.0)
-            S[rows] += sgn.sum(axis=(1, 2))
+        acc = np.zeros(xb.shape[0])
+        for lag in range(1, T):
+            d = np.sign(xb[:, lag:] - xb[:, :-lag])
+            acc += np.nan_to_num(d, copy=False, nan=0.0).sum(axis=1)
+        S[rows] = acc
     return S
+
+
+#: From this many periods S is counted per row in O(T log T) (Kendall's tau) instead of by pairs.
+_LONG = 1000
+
+
+def _kendall_s(row: np.ndarray) -> float:
+    """S of one row from Kendall's tau-b against time (scipy, O(T log T)): with distinct times
+    ``S = tau_b * sqrt(n0 * (n0 - n2))``, n0 the pairs and n2 the pairs tied in value."""
+    from scipy import stats  # imported only for long series (slow to import)
+
+    v = row[~np.isnan(row)]
+    n = len(v)
+    _, counts = np.unique(v, return_counts=True)
+    n0 = n * (n - 1) / 2
+    n2 = float((counts * (counts - 1) / 2).sum())
+    if n < 2 or n0 == n2:
+        return 0.0
+    tau = stats.kendalltau(np.arange(n), v).statistic
+    return float(np.round(tau * np.sqrt(n0 * (n0 - n2))))
 
 
 def _tie_sums(x: np.ndarray) -> np.ndarray:
@@ -99,7 +118,10 @@ def mann_kendall(values: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray
     """
     x = np.atleast_2d(np.asarray(values, dtype=np.float64))
     n = (~np.isnan(x)).sum(axis=1).astype(np.float64)
-    S = _pair_sign_sum(x)
+    if x.shape[1] >= _LONG:  # long series: per row, each in O(T log T)
+        S = np.array([_kendall_s(r) for r in x], dtype=np.float64)
+    else:
+        S = _pair_sign_sum(x)
     ties = _tie_sums(x)
     var = (n * (n - 1) * (2 * n + 5) - ties) / 18.0
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -141,23 +163,47 @@ def theil_sen(values: np.ndarray, times: np.ndarray) -> np.ndarray:
 
 
 def _slope_chunks(x: np.ndarray, t: np.ndarray) -> Iterator[np.ndarray]:
-    """Every pairwise slope (i < j, t_i != t_j) of one row, in chunks of at most BUDGET."""
+    """Every pairwise slope (i < j, t_i != t_j) of one row, in chunks of at most BUDGET.
+
+    With increasing times (periods are sorted) the pairs are walked by lag, ``x[lag:] -
+    x[:-lag]``, into one reused buffer: contiguous numpy work, no masks. A chunk is only valid
+    until the next one is produced.
+    """
     T = len(x)
-    step = max(1, BUDGET // max(T, 1))
-    for a in range(0, T - 1, step):
-        b = min(a + step, T - 1)
-        d = x[None, a + 1 :] - x[a:b, None]
-        dt = t[None, a + 1 :] - t[a:b, None]
-        keep = (np.arange(a + 1, T)[None, :] > np.arange(a, b)[:, None]) & (dt != 0)
-        yield d[keep] / dt[keep]
+    if T < 2:
+        return
+    if not np.all(np.diff(t) > 0):
+        step = max(1, BUDGET // T)
+        for a in range(0, T - 1, step):
+            b = min(a + step, T - 1)
+            d = x[None, a + 1 :] - x[a:b, None]
+            dt = t[None, a + 1 :] - t[a:b, None]
+            keep = (np.arange(a + 1, T)[None, :] > np.arange(a, b)[:, None]) & (dt != 0)
+            yield d[keep] / dt[keep]
+        return
+    size = min(max(min(_CHUNK, BUDGET), T), T * (T - 1) // 2)
+    num, den = np.empty(size), np.empty(size)
+    pos = 0
+    for lag in range(1, T):
+        n = T - lag
+        if pos + n > size:
+            yield np.divide(num[:pos], den[:pos], out=num[:pos])
+            pos = 0
+        np.subtract(x[lag:], x[:-lag], out=num[pos : pos + n])
+        np.subtract(t[lag:], t[:-lag], out=den[pos : pos + n])
+        pos += n
+    if pos:
+        yield np.divide(num[:pos], den[:pos], out=num[:pos])
 
 
 def _median_slope(row: np.ndarray, times: np.ndarray) -> float:
     """Exact median of the pairwise slopes of one long row without holding them all.
 
-    A seeded sample of pairs brackets the median; one pass counts the slopes below, equal to
-    and above the bracket and keeps only those inside it; if the median is not inside, the
-    bracket is widened on that side and the pass repeated.
+    A seeded sample of pairs brackets the median between two of its quantiles; one pass over
+    the slopes (in chunks) counts those below and above the bracket and those equal to the
+    bracket's ends or to the sample median (ties are common in real data), and keeps only the
+    few strictly inside. The median is then found by rank; if it fell outside, the bracket is
+    widened and the pass repeated.
     """
     ok = ~np.isnan(row)
     x, t = row[ok], times[ok]
@@ -174,41 +220,52 @@ def _median_slope(row: np.ndarray, times: np.ndarray) -> float:
         return float("nan")
     margin = max(int(4 * np.sqrt(len(sample))), 10)
     mid = len(sample) // 2
-    lo = sample[max(mid - margin, 0)]
-    hi = sample[min(mid + margin, len(sample) - 1)]
-    for _ in range(4):
-        below = above = at_lo = at_hi = 0
-        inside: list[np.ndarray] = []
-        m = 0
+    for widen in (1, 8, 64, None):
+        if widen is None:
+            lo, hi = -np.inf, np.inf
+        else:
+            lo = sample[max(mid - margin * widen, 0)]
+            hi = sample[min(mid + margin * widen, len(sample) - 1)]
+        specials = sorted({float(lo), float(sample[mid]), float(hi)})
+        below = above = m = 0
+        ties = np.zeros(len(specials), dtype=np.int64)
+        kept: list[np.ndarray] = []
         for s in _slope_chunks(x, t):
             m += len(s)
-            below += int((s < lo).sum())
-            above += int((s > hi).sum())
-            at_lo += int((s == lo).sum())
-            at_hi += int((s == hi).sum()) if hi != lo else 0
-            inside.append(s[(s > lo) & (s < hi)])
+            lt, gt = s < lo, s > hi
+            below += int(np.count_nonzero(lt))
+            above += int(np.count_nonzero(gt))
+            inner = s[~(lt | gt)]
+            plain = np.ones(len(inner), dtype=bool)
+            for n, v in enumerate(specials):
+                eq = inner == v
+                ties[n] += int(np.count_nonzero(eq))
+                plain &= ~eq
+            kept.append(inner[plain])
         if m == 0:
             return float("nan")
         ranks = [(m - 1) // 2, m // 2]
-        # sorted order: [below][== lo][inside][== hi][above]
-        if below <= ranks[0] and ranks[1] < m - above:
-            mids = np.sort(np.concatenate(inside)) if inside else np.empty(0)
-            ordered_vals = []
-            for r in ranks:
-                r -= below
-                if r < at_lo:
-                    ordered_vals.append(lo)
-                    continue
-                r -= at_lo
-                if r < len(mids):
-                    ordered_vals.append(float(mids[r]))
-                    continue
-                ordered_vals.append(hi)
-            return float(np.mean(ordered_vals))
-        if below > ranks[0]:
-            lo = -np.inf
-        if ranks[1] >= m - above:
-            hi = np.inf
+        if not (below <= ranks[0] and ranks[1] < m - above):
+            continue
+        values = np.sort(np.concatenate(kept)) if kept else np.empty(0)
+        # the sorted slopes: [below] then, per special value v in order, the kept values
+        # under v and v repeated ties[v] times, then the kept values over the last one, [above]
+        segments: list[tuple[np.ndarray | float, int]] = []
+        start = 0
+        for n, v in enumerate(specials):
+            stop = int(np.searchsorted(values, v))
+            segments += [(values[start:stop], stop - start), (v, int(ties[n]))]
+            start = stop
+        segments.append((values[start:], len(values) - start))
+        found = []
+        for r in ranks:
+            r -= below
+            for seg, count in segments:
+                if r < count:
+                    found.append(float(seg) if np.isscalar(seg) else float(seg[r]))
+                    break
+                r -= count
+        return float(np.mean(found))
     raise RuntimeError("median slope did not converge")  # pragma: no cover
 
 
