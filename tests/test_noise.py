@@ -298,3 +298,55 @@ def test_without_counts_jumps_are_said_untested(synthetic, tmp_path):
     assert ch.tested and "margins of error" in ch.noise_text
     d = (ch.jumps["value_after"] - ch.jumps["value_before"]).to_numpy()
     np.testing.assert_allclose(ch.jumps["p"], 2 * stats.norm.sf(np.abs(d) / np.sqrt(2)))
+
+
+def test_moe_column_through_the_command(tmp_path, runner):
+    # rates with a 90 % margin-of-error column (ACS style), read by the loader (--moe) and used
+    # to test the jumps; the demo generator (our own invented county) gives the files
+    import pandas as pd
+
+    from mapdrift.cli import app
+    from mapdrift.demo import generate
+    from mapdrift.outputs import read_csv
+
+    files = generate(tmp_path / "demo")
+    t = pd.read_csv(files.table, dtype=str, keep_default_na=False)
+    base = t["mortgaged_parcels"].astype(float)
+    rate = pd.to_numeric(t["filings"], errors="coerce") / base * 1000
+    moe = 1.645 * np.sqrt(rate.fillna(0) / base * 1000)  # a Poisson standard error, times 1.645
+    table = tmp_path / "rates.csv"
+    pd.DataFrame(
+        {
+            "unit_id": t["unit_id"],
+            "year": t["year"],
+            "rate": rate.round(4),
+            "rate_moe": moe.round(4),
+        }
+    ).to_csv(table, index=False)
+    out = tmp_path / "out"
+    args = ["changes", str(files.geometry), str(table), "--layer", "units", "--id", "unit_id",
+            "--period", "year", "--value", "rate", "--moe", "rate_moe", "--out", str(out),
+            "--no-pictures", "--no-spatial"]  # fmt: skip
+    res = runner.invoke(app, args)
+    assert res.exit_code == 0, res.output
+    assert "margins of error" in res.output
+    jumps = read_csv(out / "jumps.csv", dtype={"unit": str})
+    assert set(jumps["credible"].astype(str).str.lower()) <= {"true", "false"}
+    assert (jumps["credible"].astype(str).str.lower() == "true").any()
+
+
+def test_views_and_smoothing_combine_with_eb():
+    # a per-period rescaling (relative-median) leaves the EB standardisation valid; a per-unit
+    # one (index to a base year) would be undone by it, so the values are used as mapped
+    from mapdrift.views import apply_view
+
+    p = make_panel(n=300, hot=15, jumpers=2).panel
+    rel = analyse_clusters(apply_view(p, "relative-median"), None, ClusterOptions())
+    base = analyse_clusters(p, None, ClusterOptions())
+    assert rel.inputs == base.inputs and rel.inputs.startswith("EB standardised")
+    np.testing.assert_array_equal(rel.codes, base.codes)
+    idx = analyse_clusters(apply_view(p, "index:2012"), None, ClusterOptions())
+    assert idx.inputs == "values as mapped"
+    assert any(f.code == "clusters-eb-not-combined" for f in idx.findings)
+    sm = analyse_clusters(p, None, ClusterOptions(smooth="eb"))
+    assert sm.trend_input == "the smoothed rates" and sm.inputs.startswith("EB standardised")

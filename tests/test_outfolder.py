@@ -119,6 +119,16 @@ def test_read_only_parent_refused_before_any_work(tmp_path):
         ro.chmod(0o755)
 
 
+def test_unwritable_parent_refused_before_any_work(tmp_path, monkeypatch):
+    # the same check as above for a process that may write anywhere (tests may run as root)
+    import mapdrift.pipeline as pipeline
+
+    monkeypatch.setattr(pipeline.os, "access", lambda path, mode: False)
+    with pytest.raises(ConfigError, match=r"cannot write in .* \(permission denied\)"):
+        run(_quick(), out=tmp_path / "ro" / "run", steps=STEPS[:1])
+    assert not (tmp_path / "ro").exists()
+
+
 def test_second_run_into_the_same_folder_stops_at_once(tmp_path):
     out = tmp_path / "new"
     with lock_out(out), pytest.raises(OutputExistsError, match="another mapdrift run"):
@@ -275,7 +285,8 @@ def test_killed_run_loses_nothing_and_next_run_cleans_up(earlier_run, tmp_path, 
                 break
         proc.send_signal(sig)
     elif point == "mp4":
-        assert _wait_for(lambda: any(_procs_naming(".run.partial-")))
+        # this test's own encoder (other test sessions may run encoders at the same time)
+        assert _wait_for(lambda: any(_procs_naming(str(tmp_path / ".run.partial-"))))
         proc.send_signal(sig)
     rc = proc.wait(timeout=600)
     assert rc != 0

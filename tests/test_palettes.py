@@ -65,11 +65,23 @@ def test_cluster_colours_cover_the_labels_and_differ():
         "isolated",
         "no data",
     }
-    assert set(palettes.CLUSTER_COLOURS) == want
-    assert len(set(palettes.CLUSTER_COLOURS.values())) == len(want)
+    assert set(palettes.CLUSTER_COLOURS) == want == set(palettes.CLUSTER_LOOK)
+    # every label is drawn differently: by its fill, or by its mark on the blank fill
+    looks = {(fill, mark) for fill, mark, _ in palettes.CLUSTER_LOOK.values()}
+    assert len(looks) == len(want)
     assert palettes.CLUSTER_COLOURS["no data"] == palettes.NODATA
-    cores = [palettes.CLUSTER_COLOURS[k] for k in ("high-high", "low-low")]
-    assert palettes.check_palette(cores, nodata=None) == []
+    # only the two cores are filled areas; outliers are marks, not pale fills
+    assert {k for k, (f, m, _) in palettes.CLUSTER_LOOK.items() if f != palettes.CLUSTER_BLANK} == {
+        "high-high",
+        "low-low",
+        "no data",
+    }
+    assert palettes.CLUSTER_LOOK["high-low"][1] and palettes.CLUSTER_LOOK["low-high"][1]
+    # cores, blank and no data apart for normal vision and each simulated deficiency (CIEDE2000
+    # >= MIN_DELTA_E; threshold common practice, no source)
+    fills = [palettes.CLUSTER_COLOURS[k] for k in ("high-high", "low-low", "not significant")]
+    assert palettes.check_palette(fills, nodata=palettes.NODATA) == []
+    assert palettes.check_palette(fills[::2], nodata=None) == []
 
 
 def test_qualitative_colours_are_distinct_and_not_grey():

@@ -108,6 +108,15 @@ def test_long_table_with_range_periods(layer_file, table_file):
     assert "periods-gap" not in _codes(p) and p.step_label == "one step (5 years)"
 
 
+def test_wide_range_columns_found_without_a_pattern(layer_file, table_file):
+    ids = [f"{i + 1:05d}" for i in range(4)]
+    rows = [{"unit_id": u, "rate_2010-2014": 1.0, "rate_2015-2019": 2.0} for u in ids]
+    p = load_panel(InputSpec(geometry=layer_file(n_side=2), table=table_file(rows), id="unit_id"))
+    assert p.period_labels == ("2010-2014", "2015-2019") and p.periods == (2014, 2019)
+    with pytest.raises(InputError, match="not a range of years"):
+        read_periods(["2019_01", "2019_02"], where="t")
+
+
 # -- libpysal's bundled panels ---------------------------------------------------------------------
 def test_nc_sids_two_digit_years_from_counts():
     # libpysal example 'sids2' (North Carolina SIDS, Cressie 1993): SID74/SID79 deaths and
@@ -171,6 +180,11 @@ def test_mexico_decades_and_name_hints():
     assert "Quertaro -> Queretaro de Arteaga?" in hint and "Veracruz -> Veracruz-Llave?" in hint
     blank = codes["units-no-values"]
     assert blank.level == "warning" and blank.message.startswith("16% of layer units")
+    # joined on the wrong layer column, the error points at the right one
+    with pytest.raises(InputError, match=r"the layer's column 'NAME' holds \d+% .*--id NAME"):
+        load_panel(
+            InputSpec(geometry=shp, table=csv, id="POLY_ID", table_id="State", columns="pcgdp*")
+        )
     # Aguascalientes, 1940: 10384 (mexico.csv as shipped)
     assert p.values[p.units.index("Aguascalientes"), 0] == 10384
 

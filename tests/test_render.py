@@ -137,8 +137,10 @@ def test_scale_bar_spans_stated_distance_within_one_pixel():
     f = r.frame(0).astype(int)
     # measure pixels per metre from the image: the grid's 20 km width in the fill colour
     tr = r.layout.transform
-    mid = tr.top + tr.height // 2
-    blue = np.flatnonzero(np.abs(f[mid] - hex_to_rgb8("#2166ac")).sum(axis=1) == 0)
+    mid = tr.top + tr.height // 2 + tr.height // 12  # the middle of a row of cells
+    # the mapped area: fill and its grey edge (everything in the map box that is not paper)
+    band = f[mid, tr.left : tr.left + tr.width]
+    blue = np.flatnonzero(np.abs(band - 255).sum(axis=1) > 0)
     px_per_m = (blue[-1] - blue[0] + 1) / (10 * size)
     sb = r.layout.scale_bar
     row = f[sb.y - 1]
@@ -171,7 +173,9 @@ def test_sub_pixel_units_are_reported_and_drawn_as_dots():
     codes = np.zeros((len(geo), 1), dtype=np.int16)
     codes[-1] = 1
     ids = [f"u{i}" for i in range(len(geo))]
-    r = FrameRenderer(geo, codes, ["#dddddd", "#13266f"], ["a", "b"], ["x"], units=ids, title="t")
+    r = FrameRenderer(
+        geo, codes, ["#dddddd", "#13266f"], ["a", "b"], ["x"], units=ids, title="t", min_unit_px=0
+    )
     assert [f.code for f in r.findings] == ["units-below-pixel"]
     assert r.findings[0].units == ("u60",) and "--min-unit-px" in r.findings[0].message
     r.close()
@@ -271,3 +275,32 @@ def test_two_times_supersampling_still_antialiases_edges():
     img = lr.colourise(np.array([[0, 0, 0]], np.uint8), np.array([255, 255, 255], np.uint8))
     assert (img[50, 10] == 0).all()
     assert abs(int(img[50, 99, 0]) - 128) <= 1
+
+
+def test_units_below_the_outline_size_are_not_outlined():
+    # Our own rule (common practice, no source): an outline on a unit a few pixels across
+    # only smears its colour, so units under OUTLINE_MIN_PX pixels are not outlined.
+    import geopandas as gpd
+    from shapely.geometry import box
+
+    from mapdrift.palettes import sequential
+    from mapdrift.render.frames import OUTLINE_MIN_PX, FrameRenderer
+
+    g = gpd.GeoSeries(
+        [box(0, 0, 10_000, 10_000), box(10_000, 0, 10_050, 50), box(10_050, 0, 20_000, 10_000)],
+        crs="EPSG:3857",
+    )
+    codes = np.array([[0], [1], [2]])
+
+    def box_pixels(outlined):
+        r = FrameRenderer(
+            g, codes, sequential(3), list("abc"), ["2020"], outlines=[outlined],
+            outline_label="jumped", size=(640, 360),
+        )  # fmt: skip
+        assert r.raster.area_px[1] < OUTLINE_MIN_PX <= r.raster.area_px[0]
+        tr = r.layout.transform
+        return r.frame(0)[tr.top : tr.top + tr.height, tr.left : tr.left + tr.width]
+
+    none = box_pixels([])
+    np.testing.assert_array_equal(box_pixels([1]), none)  # the tiny unit: no outline
+    assert (box_pixels([0]) != none).any()  # the large one is outlined

@@ -22,7 +22,7 @@ def _hashes(folder):
 
 def test_two_runs_give_identical_files(tmp_path):
     cfg = load_config(DEMO / "demo.toml").with_values(
-        "brief", {"formats": ["gif", "png", "pptx", "html", "gpkg"]}
+        "brief", {"formats": ["gif", "mp4", "png", "pptx", "html", "gpkg"]}
     )
     cfg = cfg.with_values("clusters", {"permutations": 99})
     a = run(cfg, out=tmp_path / "a").out

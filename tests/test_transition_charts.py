@@ -31,7 +31,7 @@ def test_heatmap_counts_shares_and_empty_row(tmp_path):
             COUNTS, LABELS, tmp_path / "heat.svg", title="T", notice="Classes differ by period"
         )
     svg = _svg_text(out)
-    for text in (">40<", ">9<", ">30<", "80%", "75%", "no unit started in this class"):
+    for text in (">40<", ">9<", ">30<", "80%", "75%", "none of the units started in this class"):
         assert text in svg, text
     assert "Classes differ by period" in svg
     assert "(0)" in svg  # the empty row's total

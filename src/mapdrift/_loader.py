@@ -126,7 +126,8 @@ def _guess(df: pd.DataFrame, guesses: tuple[str, ...]) -> str | None:
 
 
 def _matching_column(df: pd.DataFrame, ids: np.ndarray, skip: set[str]) -> tuple[str, float] | None:
-    """The column of ``df`` whose distinct values best match ``ids`` (share of them found)."""
+    """The column of ``df`` whose distinct values best match ``ids`` (share of them found),
+    when they also cover at least half of ``ids``."""
     import pandas as pd
 
     best: tuple[str, float] | None = None
@@ -137,8 +138,10 @@ def _matching_column(df: pd.DataFrame, ids: np.ndarray, skip: set[str]) -> tuple
         vals = pd.unique(normalise(df[c]))
         if not len(vals):
             continue
-        share = float((target.get_indexer(vals) >= 0).mean())
-        if share >= 0.5 and (best is None or share > best[1]):
+        found = target.get_indexer(vals) >= 0
+        share = float(found.mean())
+        covers = found.sum() / len(target)  # a column of a few small codes matches by chance
+        if share >= 0.5 and covers >= 0.5 and (best is None or share > best[1]):
             best = (str(c), share)
     return best
 
@@ -282,7 +285,7 @@ def _roles(spec: InputSpec) -> dict[str, str]:
     return {}
 
 
-_FLAGS = {"value": "--columns", "num": "--numerator", "den": "--denominator"}
+_FLAGS = {"value": "--columns", "num": "--numerator", "den": "--denominator", "moe": "--moe"}
 
 
 def _pattern(pattern: str, flag: str) -> re.Pattern[str]:
@@ -352,6 +355,8 @@ def long_stage(table: Table, spec: InputSpec) -> Long:
             )
         p_col = _column(df, spec.period, where, "--period")
         cols = {"value": spec.value} if spec.value else roles
+        if spec.moe:  # margins of error beside the values (rates only)
+            cols = {**cols, "moe": spec.moe}
         cols = {
             r: _column(df, c, where, "--value" if r == "value" else _FLAGS[r])
             for r, c in cols.items()
@@ -361,6 +366,8 @@ def long_stage(table: Table, spec: InputSpec) -> Long:
         )
         return Long(long.reset_index(drop=True), tuple(cols), {}, period_column=str(p_col))
     patterns = {"value": spec.columns} if spec.columns else (dict(roles) or {"value": ""})
+    if spec.moe:
+        patterns["moe"] = spec.moe
     parts = []
     col_of: dict[str, str] = {}
     for role, pattern in patterns.items():
@@ -408,7 +415,7 @@ def ids_stage(
     codes2, distinct = pd.factorize(pd.Series(np.append(ids, ""), dtype=object))
     uid = np.where(codes >= 0, codes2[np.maximum(codes, 0)], codes2[-1])
     distinct = np.asarray(distinct, dtype=object)
-    blank = distinct[uid] == ""
+    blank = uid == codes2[-1]  # the code of "" (appended last above): rows without an ID
     if blank.any():  # rows that cannot be placed are counted, never dropped silently
         findings.append(
             Finding(
@@ -486,6 +493,7 @@ def numbers_stage(long: Long, spec: InputSpec, table: Table, findings: list[Find
         "value": spec.value or spec.columns or "value",
         "num": spec.numerator,
         "den": spec.denominator,
+        "moe": spec.moe,
     }
     factorised = {r: distinct(f[r]) for r in long.roles}  # each column factorised once
     evidence = decimal_evidence({str(label[r]): factorised[r] for r in long.roles})
@@ -634,6 +642,12 @@ def match_stage(
         other = _matching_column(table.df, layer.ids, {table.id_col})
         if other is not None:
             hint += f"; column {other[0]!r} of the table matches {other[1]:.0%}: pass --table-id {other[0]}"
+        mine = _matching_column(layer.gdf, table_ids, {layer.id_col})
+        if mine is not None:
+            hint += (
+                f"; the layer's column {mine[0]!r} holds {mine[1]:.0%} of the table's IDs: "
+                f"pass --id {mine[0]}"
+            )
         raise InputError(
             f"{table.path or table.where}: only {n_matched} of {n} layer units match a table ID (column "
             f"{table.id_col!r}: e.g. {examples(table_ids[:5].tolist())}; layer {layer.id_col!r}: e.g. "
@@ -780,6 +794,7 @@ def _chain(
         findings += rate_findings
     else:
         values = _grid(shape, rows, cols, long.frame["value"].to_numpy())
+    moe = _grid(shape, rows, cols, long.frame["moe"].to_numpy()) if "moe" in long.roles else None
     _value_checks(values, layer.ids, long.labels, denominator, spec, findings)
     if not np.isfinite(values).any():
         what = "rates" if counts else f"column {str(spec.value or spec.columns or 'value')!r}"
@@ -812,6 +827,7 @@ def _chain(
         denominator=denominator,
         inputs=inputs,
         labels=labels,
+        moe=moe,
     )
 
 

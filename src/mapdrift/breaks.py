@@ -12,6 +12,7 @@ reference period) and ``file`` (a saved ``breaks.json`` reused, e.g. from last y
 
 from __future__ import annotations
 
+import hashlib
 import json
 import math
 from collections.abc import Sequence
@@ -53,6 +54,8 @@ PER_PERIOD_WARNING = "Classes differ by period; frames are not comparable."
 #: Above this many pooled values, natural breaks are fitted on a seeded sample.
 JENKS_MAX_VALUES = 20_000
 JENKS_SEED = 12345
+#: Dynamic-programming layers of the last input of :func:`fisher_jenks` (one entry).
+_FISHER_LAYERS: dict[str, dict[str, Any]] = {}
 
 
 class Scheme(str, Enum):
@@ -313,11 +316,23 @@ def fisher_jenks(x: np.ndarray, k: int) -> list[float]:
     n = len(uniq)
     if n <= k:
         return [float(u) for u in uniq]
-    vals = uniq - uniq[n // 2]
-    w = counts.astype(np.float64)
-    cw, c1, c2 = _ssd_table(vals, w)
-    scale = float(np.sum(w * vals * vals)) + 1.0
-    tol = 1e-12 * scale
+    # The layers for j classes do not depend on k, so the layers of the last input are kept:
+    # natural breaks for several k on the same values (the explorer's comparison) fill each
+    # layer once. Same input, same layers, same edges.
+    key = hashlib.sha256(uniq.tobytes() + counts.tobytes()).hexdigest()
+    tables = _FISHER_LAYERS.get(key)
+    if tables is None:
+        vals = uniq - uniq[n // 2]
+        w = counts.astype(np.float64)
+        cw, c1, c2 = _ssd_table(vals, w)
+        scale = float(np.sum(w * vals * vals)) + 1.0
+        cost0 = np.full(n + 1, np.inf)
+        cost0[1:] = c2[1:] - c1[1:] ** 2 / cw[1:]
+        tables = {"sums": (cw, c1, c2), "tol": 1e-12 * scale, "cost": [cost0], "back": [None]}
+        _FISHER_LAYERS.clear()
+        _FISHER_LAYERS[key] = tables
+    cw, c1, c2 = tables["sums"]
+    tol = tables["tol"]
 
     def ssd(lo: np.ndarray, hi: int) -> np.ndarray:
         # within-class SS of sorted distinct values lo..hi-1 (half-open), vectorised over lo
@@ -328,12 +343,11 @@ def fisher_jenks(x: np.ndarray, k: int) -> list[float]:
     # cost[j][i]: best SS of the first i distinct values in j+1 classes. The best start of the
     # last class is monotone in i for 1-D squared error, so each layer is filled by divide and
     # conquer (O(n log n) per class) instead of the O(n^2) full scan.
-    cost = np.full((k, n + 1), np.inf)
-    back = np.zeros((k, n + 1), dtype=np.int64)
-    cost[0, 1:] = c2[1:] - c1[1:] ** 2 / cw[1:]
-    for j in range(1, k):
+    cost, back = tables["cost"], tables["back"]
+    for j in range(len(cost), k):
         prev = cost[j - 1]
-        cur, bk = cost[j], back[j]
+        cur = np.full(n + 1, np.inf)
+        bk = np.zeros(n + 1, dtype=np.int64)
         stack = [(j + 1, n, j, n - 1)]  # fill i in [lo, hi] with split m in [mlo, mhi]
         while stack:
             lo, hi, mlo, mhi = stack.pop()
@@ -347,11 +361,13 @@ def fisher_jenks(x: np.ndarray, k: int) -> list[float]:
             cur[i], bk[i] = best, pick
             stack.append((lo, i - 1, mlo, pick))
             stack.append((i + 1, hi, pick, mhi))
+        cost.append(cur)
+        back.append(bk)
     # walk back the split points
     edges: list[float] = []
     i = n
     for j in range(k - 1, 0, -1):
-        m = int(back[j, i])
+        m = int(back[j][i])
         edges.append(float(uniq[i - 1]))
         i = m
     edges.append(float(uniq[i - 1]))

@@ -84,6 +84,28 @@ class BriefSpec:
     source: str | None = None
     date: str | None = None
     formats: tuple[str, ...] = ("gif", "mp4", "png", "pptx", "html", "gpkg")
+    #: What the units are called in titles and sentences ("tracts", "neighbourhoods").
+    unit_noun: str = "units"
+
+    def __post_init__(self) -> None:
+        from mapdrift.safetext import clean
+
+        for name in ("title", "subtitle", "author", "organisation", "source", "date"):
+            value = getattr(self, name)
+            if isinstance(value, str):  # no line breaks or control characters in drawn text
+                object.__setattr__(self, name, clean(value))
+        unknown = [f for f in self.formats if f not in FORMATS]
+        if unknown:
+            hint = _did_you_mean(unknown[0], FORMATS, "{!r}")
+            raise ConfigError(
+                f"formats {unknown[0]!r} is not an output format; {hint}"
+                f"formats: {', '.join(FORMATS)}"
+            )
+
+
+#: The briefing's output formats (``[brief] formats``); ``explorer.html`` is written for
+#: ``html`` too, ``explorer`` asks for it alone.
+FORMATS: tuple[str, ...] = ("gif", "mp4", "png", "pptx", "html", "gpkg", "explorer")
 
 
 #: Section name -> "module:Class" of its dataclass (imported when a file uses the section).
@@ -260,13 +282,31 @@ def parse_setting(text: str) -> tuple[str, str, Any]:
     return section or "run", name, value
 
 
+def _decode(raw: bytes, path: Path) -> str:
+    """Config text: UTF-8 (a BOM allowed), or UTF-16 with its BOM as some editors save it."""
+    import codecs
+
+    if raw.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
+        return raw.decode("utf-16")
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise ConfigError(
+            f"{path}: not UTF-8 text (byte {exc.start}); save the config as UTF-8"
+        ) from None
+
+
 def load_config(path: Path | str) -> Config:
     """Parse and validate a TOML run configuration."""
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        text = _decode(path.read_bytes(), path)
     except FileNotFoundError:
         raise ConfigError(f"{path}: config file not found; check the path") from None
+    except IsADirectoryError:
+        raise ConfigError(f"{path}: is a folder; give the run config file (.toml)") from None
+    except PermissionError:
+        raise ConfigError(f"{path}: cannot read the config file (permission denied)") from None
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:

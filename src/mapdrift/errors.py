@@ -59,6 +59,7 @@ EXIT_CODES: dict[int, str] = {
     0: "success (warnings allowed)",
     1: "input problem that stops the job (file, column, IDs, values, CRS)",
     2: "command-line usage or configuration error",
-    3: "output exists; pass --force to overwrite",
+    3: "output exists (pass --force to replace an earlier run), or --out is not an earlier run's "
+    "folder, or another run is writing to it",
     4: "a step or encoder failed (e.g. ffmpeg missing); earlier outputs untouched",
 }

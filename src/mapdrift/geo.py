@@ -21,7 +21,13 @@ from mapdrift.findings import Finding, examples
 if TYPE_CHECKING:
     import geopandas as gpd
 
-__all__ = ["GEOMETRY_SUFFIXES", "equal_area_crs", "prepare_geometry", "read_layer"]
+__all__ = [
+    "GEOMETRY_SUFFIXES",
+    "central_longitude",
+    "equal_area_crs",
+    "prepare_geometry",
+    "read_layer",
+]
 
 GEOMETRY_SUFFIXES = (
     ".gpkg",
@@ -47,6 +53,8 @@ def read_layer(path: Path, layer: str | None) -> gpd.GeoDataFrame:
             f"{path}: not a polygon layer we can read (suffix {suffix!r}); use GeoPackage, GeoJSON, "
             "Shapefile, FlatGeobuf or GeoParquet"
         )
+    if suffix == ".shp":
+        _check_shapefile_parts(path)
     try:
         if suffix in (".parquet", ".geoparquet"):
             need_pyarrow(path)
@@ -80,15 +88,50 @@ def read_layer(path: Path, layer: str | None) -> gpd.GeoDataFrame:
     return gdf
 
 
+def _check_shapefile_parts(path: Path) -> None:
+    """A Shapefile is several files; without its ``.dbf`` it has no columns (no IDs), without
+    its ``.shx`` GDAL may refuse it. Say which part is missing instead of an empty column list."""
+    present = {p.suffix.lower() for p in path.parent.glob(f"{path.stem}.*")}
+    missing = [s for s in (".dbf", ".shx") if s not in present]
+    if missing:
+        parts = ", ".join(path.stem + s for s in missing)
+        raise InputError(
+            f"{path}: the Shapefile's {parts} {'is' if len(missing) == 1 else 'are'} missing "
+            "(a Shapefile is several files: .shp, .shx, .dbf, .prj, holding the columns and the "
+            "index); copy all of them beside the .shp, or use a GeoPackage"
+        )
+
+
 def _fits_lonlat(bounds: np.ndarray) -> bool:
     minx, miny, maxx, maxy = bounds
     return minx >= -180.0 and maxx <= 360.0 and miny >= -90.0 and maxy <= 90.0
 
 
+def central_longitude(lons: np.ndarray) -> float:
+    """Middle of the shortest arc of longitude holding every value in ``lons`` (degrees).
+
+    Layers crossing the 180th meridian (Fiji, the Aleutians; or one polygon running from 179
+    to -179) have extents of nearly 360 degrees in -180..180 terms, which would centre the map
+    at longitude 0 and stretch it; the largest empty gap around the circle marks the arc's ends.
+    """
+    lons = np.sort(np.mod(np.asarray(lons, dtype=np.float64), 360.0))
+    if len(lons) == 0:
+        return 0.0
+    gaps = np.diff(np.concatenate([lons, [lons[0] + 360.0]]))
+    k = int(np.argmax(gaps))  # the arc starts after the largest gap
+    start = lons[(k + 1) % len(lons)]
+    width = 360.0 - gaps[k]
+    centre = (start + width / 2.0) % 360.0
+    return float(centre - 360.0 if centre >= 180.0 else centre)
+
+
 def equal_area_crs(gdf_lonlat: gpd.GeoDataFrame) -> str:
-    """Lambert azimuthal equal-area centred on the layer's extent (PROJ string, metres)."""
-    minx, miny, maxx, maxy = gdf_lonlat.total_bounds
-    lon0, lat0 = (minx + maxx) / 2.0, (miny + maxy) / 2.0
+    """Lambert azimuthal equal-area centred on the layer's extent (PROJ string, metres); the
+    centre longitude is taken around the circle (:func:`central_longitude`)."""
+    _, miny, _, maxy = gdf_lonlat.total_bounds
+    b = gdf_lonlat.geometry.bounds.dropna()
+    lon0 = central_longitude(np.concatenate([b["minx"].to_numpy(), b["maxx"].to_numpy()]))
+    lat0 = (miny + maxy) / 2.0
     return f"+proj=laea +lat_0={lat0:.6f} +lon_0={lon0:.6f} +x_0=0 +y_0=0 +datum=WGS84 +units=m +no_defs"
 
 
@@ -127,6 +170,7 @@ def _repair(
             f"{path}: {len(bad)} features are not polygons (e.g. {examples(bad)}, "
             f"{kinds[non_poly].iloc[0]}); mapdrift maps polygon layers"
         )
+    findings += _degenerate(gdf.geometry.values, empty, ids, path)
     if empty.any():
         bad = [ids[i] for i in np.flatnonzero(empty)]
         findings.append(
@@ -139,6 +183,50 @@ def _repair(
             )
         )
     return gdf, findings
+
+
+def _degenerate(geom: np.ndarray, empty: np.ndarray, ids: list[str], path: Path) -> list[Finding]:
+    """Polygons with zero area (nothing to draw, no neighbours by area) and units whose
+    polygons are identical (often a duplicated record or a copy-paste in the layer)."""
+    import shapely
+
+    findings: list[Finding] = []
+    drawn = ~empty
+    zero = drawn & (np.asarray(shapely.area(geom), dtype=np.float64) <= 0.0)
+    if zero.any():
+        bad = [ids[i] for i in np.flatnonzero(zero)]
+        findings.append(
+            Finding(
+                "warning",
+                "geometry-zero-area",
+                f"{path.name}: {len(bad)} polygons have zero area (e.g. {examples(bad)}); they "
+                "cannot be seen on the map; check the layer",
+                tuple(bad),
+            )
+        )
+    idx = np.flatnonzero(drawn & ~zero)
+    if len(idx) > 1:
+        import pandas as pd
+
+        keys = pd.Series(shapely.to_wkb(shapely.normalize(geom[idx]), output_dimension=2))
+        dup = keys.duplicated(keep=False).to_numpy()
+        if dup.any():
+            groups = pd.Series(np.asarray(ids, dtype=object)[idx[dup]]).groupby(
+                keys[dup].to_numpy()
+            )
+            pairs = [" = ".join(map(str, g)) for _, g in groups]
+            units = tuple(str(u) for u in np.asarray(ids, dtype=object)[idx[dup]])
+            findings.append(
+                Finding(
+                    "warning",
+                    "geometry-duplicate",
+                    f"{path.name}: {len(units)} units share identical polygons with another unit "
+                    f"({examples(pairs, 3)}); one of each may be a duplicate record; they are "
+                    "drawn on top of each other and count as neighbours",
+                    units,
+                )
+            )
+    return findings
 
 
 def _polygonal(g: object) -> object:

@@ -92,7 +92,6 @@ def zfill(ids: np.ndarray, width: int) -> np.ndarray:
 
 def _digits(ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(all-digit mask, lengths) of an object array of strings, vectorised."""
-
     s = _text(np.asarray(ids, dtype=object))
     digit = s.str.fullmatch(r"[0-9]+").fillna(False).to_numpy(bool)
     return digit, s.str.len().fillna(0).to_numpy(dtype=np.int64)

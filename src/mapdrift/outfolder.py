@@ -39,6 +39,7 @@ __all__ = [
     "check_replaceable",
     "lock_out",
     "recover",
+    "remove_staging",
     "set_aside_for",
     "staging_for",
     "swap_in",
@@ -244,6 +245,20 @@ def _stop_writers(folder: Path) -> int:
     return stopped
 
 
+def remove_staging(staging: Path) -> int:
+    """Remove a staging folder, first stopping any process still writing into it (an encoder
+    finishing its file as the run dies could otherwise recreate a file mid-removal). Returns
+    the number of processes stopped."""
+    stopped = 0
+    for _ in range(3):
+        if not staging.exists():
+            break
+        shutil.rmtree(staging, ignore_errors=True)
+        if staging.exists():
+            stopped += _stop_writers(staging)
+    return stopped
+
+
 def recover(out: Path) -> list[str]:
     """Clean up after killed runs into ``out`` (call with the lock held); return what was done.
 
@@ -261,8 +276,7 @@ def recover(out: Path) -> list[str]:
         return done
     for stale in sorted(parent.glob(f".{out.name}.partial-*")):
         if stale.is_dir() and stale != staging_for(out):
-            n = _stop_writers(stale)
-            shutil.rmtree(stale, ignore_errors=True)
+            n = _stop_writers(stale) + remove_staging(stale)
             done.append(
                 f"removed {stale.name}, the staging folder of a run that was killed"
                 + (f" (stopped {n} encoder process(es) still writing into it)" if n else "")

@@ -9,6 +9,7 @@ period, the table's first line is ``# <warning>`` (read it back with ``comment="
 
 from __future__ import annotations
 
+import csv
 from collections.abc import Iterable
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -26,6 +27,7 @@ __all__ = [
     "defuse",
     "fixed_zip_dates",
     "read_csv",
+    "undefuse",
     "write_csv",
 ]
 
@@ -34,12 +36,24 @@ __all__ = [
 FIXED_TIME = "2000-01-01T00:00:00.000Z"
 
 _TRIGGERS = ("=", "+", "-", "@", "\t", "\r")
+_DEFUSED = r"'+[=+\-@\t\r]"  # a value written by defuse(): quotes, then a trigger
 
 
 def defuse(value: Any) -> Any:
-    """``'=HYPERLINK("x")'`` -> ``"'=HYPERLINK(\\"x\\")"``; numbers and safe text unchanged."""
-    if isinstance(value, str) and value.startswith(_TRIGGERS):
+    """``'=HYPERLINK("x")'`` -> ``"'=HYPERLINK(\\"x\\")"``; numbers and safe text unchanged.
+
+    Text that already starts with quotes before a trigger (``"'=x"``) gets one more, so
+    :func:`undefuse` gives back exactly what was written.
+    """
+    if isinstance(value, str) and value.lstrip("'").startswith(_TRIGGERS):
         return "'" + value
+    return value
+
+
+def undefuse(value: Any) -> Any:
+    """The inverse of :func:`defuse`: ``"'=x"`` -> ``"=x"``; anything else unchanged."""
+    if isinstance(value, str) and value[:1] == "'" and value.lstrip("'").startswith(_TRIGGERS):
+        return value[1:]
     return value
 
 
@@ -100,11 +114,23 @@ def write_csv(
         name = out.index.name
         out.index = out.index.map(defuse)
         out.index.name = defuse(name) if isinstance(name, str) else name
+    # a bare CR is not quoted by the csv module when lines end in LF, and readers take it for
+    # a line end: quote every text cell then (rare; the usual output stays unquoted)
+    has_cr = any("\r" in str(c) for c in out.columns) or any(
+        out[c].astype("string").str.contains("\r", regex=False, na=False).any()
+        for c in out.columns
+        if out[c].dtype == object or str(out[c].dtype) in ("string", "str", "category")
+    )
     with atomic_path(Path(path)) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
         if warning:
             fh.write(f"# {warning}\n")
         out.to_csv(
-            fh, index=index, float_format=float_format, lineterminator="\n", chunksize=20_000
+            fh,
+            index=index,
+            float_format=float_format,
+            lineterminator="\n",
+            chunksize=20_000,
+            quoting=csv.QUOTE_NONNUMERIC if has_cr else csv.QUOTE_MINIMAL,
         )
     return Path(path)
 
@@ -114,7 +140,16 @@ def read_csv(path: Path, **kw: Any) -> pd.DataFrame:
     import pandas as pd
 
     kw.setdefault("dtype", {"unit_id": str, "unit": str})
-    return pd.read_csv(path, comment=None, skiprows=_warning_lines(path), **kw)
+    df = pd.read_csv(path, comment=None, skiprows=_warning_lines(path), **kw)
+    # give back what we wrote: the quote that defused a formula is not part of the value
+    df.columns = [undefuse(c) for c in df.columns]
+    for col in df.columns:
+        if df[col].dtype == object or str(df[col].dtype) in ("string", "str"):
+            text = df[col].astype("string")
+            mask = text.str.match(_DEFUSED).fillna(False).to_numpy(dtype=bool)
+            if mask.any():
+                df.loc[mask, col] = text[mask].str.slice(1).to_numpy(dtype=object)
+    return df
 
 
 def _warning_lines(path: Path) -> int:

@@ -21,7 +21,10 @@ import numpy as np
 from mapdrift.findings import Finding
 
 __all__ = [
+    "CLUSTER_BLANK",
     "CLUSTER_COLOURS",
+    "CLUSTER_LOOK",
+    "CLUSTER_WORDS",
     "DIVERGING",
     "FLAG_COLOURS",
     "MIN_DELTA_E",
@@ -38,7 +41,7 @@ __all__ = [
 ]
 
 #: Default matplotlib maps and the part of each we sample (ends too pale or too dark are cut).
-SEQUENTIAL = ("YlGnBu", 0.08, 0.95)
+SEQUENTIAL = ("YlGnBu", 0.12, 0.95)
 DIVERGING = ("PuOr_r", 0.0, 1.0)
 QUALITATIVE = ("Set2", "Dark2")
 
@@ -51,16 +54,39 @@ NODATA_HATCH = "#8c8c8c"
 #: small map areas; common practice, no source.
 MIN_DELTA_E = 6.0
 
-#: Our colours for local-cluster labels: warm for "high" cores, cool for "low" cores, pale tints
-#: for the mixed outliers, near-paper for not significant.
-CLUSTER_COLOURS: dict[str, str] = {
-    "high-high": "#c0611b",
-    "low-low": "#1d6a86",
-    "high-low": "#efb57c",
-    "low-high": "#8ec3cc",
-    "not significant": "#efede8",
-    "isolated": "#a89fb5",
-    "no data": NODATA,
+#: Fill of a unit that is in no cluster: almost paper, so that the cores stand out; the map
+#: draws grey boundaries on cluster maps so these units still read as land.
+CLUSTER_BLANK = "#f6f5f1"
+
+#: How each local-cluster label is drawn. Our own design: only the two kinds of *core* are
+#: filled areas (a dark aubergine for high values among high neighbours, an ochre for low among
+#: low: they differ in lightness by about 50 L*, so they stay apart in every simulated colour
+#: deficiency); the two kinds of *outlier* are marks on an otherwise blank unit (a triangle
+#: pointing up for a high unit among low neighbours, down for a low unit among high ones), drawn
+#: at a fixed pixel size so that small units keep them; a unit with no neighbours gets a small
+#: open ring. Not significant is left blank. ``(fill, mark, mark colour)``; ``mark`` is one of
+#: ``"up"``, ``"down"``, ``"ring"`` or None.
+CLUSTER_LOOK: dict[str, tuple[str, str | None, str]] = {
+    "high-high": ("#4b1d5c", None, "#4b1d5c"),
+    "low-low": ("#c7a93a", None, "#c7a93a"),
+    "high-low": (CLUSTER_BLANK, "up", "#4b1d5c"),
+    "low-high": (CLUSTER_BLANK, "down", "#c7a93a"),
+    "not significant": (CLUSTER_BLANK, None, CLUSTER_BLANK),
+    "isolated": (CLUSTER_BLANK, "ring", "#5c5c5c"),
+    "no data": (NODATA, None, NODATA),
+}
+
+#: Fill colour per cluster label (the units layer and tables use these).
+CLUSTER_COLOURS: dict[str, str] = {label: look[0] for label, look in CLUSTER_LOOK.items()}
+
+#: What each cluster label means, in words, for legends (trade term on the second line).
+CLUSTER_WORDS: dict[str, str] = {
+    "high-high": "high, among high neighbours\nhigh-high",
+    "low-low": "low, among low neighbours\nlow-low",
+    "high-low": "high, among low neighbours\nhigh-low outlier",
+    "low-high": "low, among high neighbours\nlow-high outlier",
+    "not significant": "no significant pattern",
+    "isolated": "no neighbours (not tested)",
 }
 
 #: Colours of the flagged-units map, in the order of ``mapdrift.changes.FLAG_LABELS``.

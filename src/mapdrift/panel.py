@@ -81,6 +81,7 @@ class Panel:
     denominator: np.ndarray | None = None
     inputs: tuple[Path, ...] = ()
     labels: tuple[str, ...] = ()
+    moe: np.ndarray | None = None  # 90 % margins of error of the values (``--moe``), if given
 
     def __post_init__(self) -> None:
         values = np.array(self.values, dtype=np.float64)  # copy: the caller's array stays theirs
@@ -91,7 +92,7 @@ class Panel:
             )
         values.flags.writeable = False
         object.__setattr__(self, "values", values)
-        for name in ("numerator", "denominator"):
+        for name in ("numerator", "denominator", "moe"):
             arr = getattr(self, name)
             if arr is not None:
                 arr = np.array(arr, dtype=np.float64)
@@ -101,10 +102,69 @@ class Panel:
             object.__setattr__(self, "names", tuple(self.units))
         if len(self.names) != len(self.units):
             raise ValueError("names must have one entry per unit")
+        self._clean_texts()
         if len(self.geometry) != len(self.units):
             raise ValueError("geometry must have one entry per unit")
         if self.labels and len(self.labels) != len(self.periods):
             raise ValueError("labels must have one entry per period")
+
+    def _clean_texts(self) -> None:
+        """Control characters in IDs, names and labels become spaces (they would break slides
+        and inject Markdown headings), said in ``ids-control-characters`` /
+        ``names-control-characters`` findings (IDs that would then collide are an error)."""
+        from mapdrift.findings import examples, plural
+        from mapdrift.safetext import clean, clean_all
+
+        units, odd = clean_all(self.units)
+        if odd:
+            if len(set(units)) != len(units):
+                from mapdrift.errors import InputError
+
+                raise InputError(
+                    f"{plural(len(odd), 'unit ID')} hold line breaks, tabs or other control "
+                    f"characters (e.g. {examples([repr(self.units[i]) for i in odd], 3)}) and "
+                    "would collide with other IDs once those are replaced by spaces; fix the IDs"
+                )
+            shown = examples([repr(self.units[i]) for i in odd], 3, total=False)
+            object.__setattr__(self, "units", units)
+            object.__setattr__(
+                self,
+                "findings",
+                (
+                    *self.findings,
+                    Finding(
+                        "warning",
+                        "ids-control-characters",
+                        f"{plural(len(odd), 'unit ID')} held line breaks, tabs or other control "
+                        f"characters ({shown}); they are written with spaces instead",
+                        tuple(units[i] for i in odd),
+                    ),
+                ),
+            )
+        names, changed = clean_all(self.names)
+        if changed:
+            object.__setattr__(self, "names", names)
+            if not any(f.code == "names-control-characters" for f in self.findings):
+                units = [self.units[i] for i in changed]
+                msg = (
+                    f"{plural(len(changed), 'unit name')} held line breaks, tabs or other control "
+                    f"characters (e.g. units {examples(units, 3, total=False)}); shown with "
+                    "spaces instead in every map, table and report"
+                )
+                object.__setattr__(
+                    self,
+                    "findings",
+                    (
+                        *self.findings,
+                        Finding("warning", "names-control-characters", msg, tuple(units)),
+                    ),
+                )
+        m = self.meta
+        meta = replace(
+            m, variable=clean(m.variable), unit_label=clean(m.unit_label), source=clean(m.source)
+        )
+        if meta != m:
+            object.__setattr__(self, "meta", meta)
 
     # -- shape -----------------------------------------------------------------------------
     @property
@@ -357,6 +417,7 @@ class InputSpec:
     columns: str | None = None
     numerator: str | None = None
     denominator: str | None = None
+    moe: str | None = None
     per: float = 1000.0
     min_base: float = 20.0
     duplicates: str = "error"

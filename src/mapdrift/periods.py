@@ -52,12 +52,21 @@ _RANGE = re.compile(r"^\s*(\d{4})\s*(?:-|–|/|_|to)\s*(\d{4}|\d{2})\s*$")
 _TWO = re.compile(r"^\s*(\d{2})\s*$")
 _PAIR = re.compile(r"^\s*(\d{2})(\d{2})\s*$")
 _YEAR_IN_NAME = re.compile(r"(?<!\d)((?:19|20)\d{2})(?!\d)")
+_RANGE_IN_NAME = re.compile(r"(?<!\d)((?:19|20)\d{2}[-_–](?:(?:19|20)\d{2}|\d{2}))(?!\d)")
 #: two-digit years at or above the pivot are 19xx, below it 20xx (POSIX strptime %y)
 CENTURY_PIVOT = 69
 
 
 def find_year(name: str) -> str | None:
-    """The year a column name carries (``rate_2019`` -> ``'2019'``), or None."""
+    """The period a column name carries: a year (``rate_2019`` -> ``'2019'``) or a range of
+    years (``rate_2015_2019`` -> ``'2015_2019'``), else None.
+
+    >>> find_year("rate_2019"), find_year("acs_2015-2019_rate"), find_year("POLY_ID")
+    ('2019', '2015-2019', None)
+    """
+    ranges = _RANGE_IN_NAME.findall(str(name))
+    if len(ranges) == 1:
+        return ranges[0]
     found = _YEAR_IN_NAME.findall(str(name))
     return found[-1] if len(found) == 1 else None
 
@@ -181,10 +190,10 @@ def read_periods(
                 if end < a:  # 9903: 1999-2003
                     end += 100
             spans[t] = (a, end)
-        bad = [t for t, (a, b) in spans.items() if b < a]
+        bad = [t for t, (a, b) in spans.items() if not a <= b <= a + 30]
         if bad:
             raise InputError(
-                f"{where}: period {bad[0]!r} ends before it starts; write start-end, e.g. 2015-2019"
+                f"{where}: period {bad[0]!r} is not a range of years; write start-end, e.g. 2015-2019"
             )
         ends = [b for _, b in spans.values()]
         if len(set(ends)) < len(ends):

@@ -15,7 +15,6 @@ from __future__ import annotations
 import json
 import logging
 import os
-import shutil
 import time
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
@@ -117,8 +116,10 @@ def default_out(config: Config) -> Path:
 def run_inputs(config: Config) -> list[Path]:
     """Every file or folder this run reads: the config and each path-valued key."""
     found: list[Path] = [config.path] if config.path is not None else []
-    for values in config.sections.values():
-        for v in values.values():
+    for section, values in config.sections.items():
+        for key, v in values.items():
+            if (section, key) == ("run", "out"):
+                continue
             for item in v if isinstance(v, list | tuple) else (v,):
                 if isinstance(item, Path):
                     found.append(item)
@@ -173,6 +174,13 @@ def _step_load(state: RunState) -> str:
     state.panel = load_panel(state.inputs)
     state.findings += state.panel.findings
     p = state.panel
+    if p.n_periods < 2:
+        table = inputs.get("table") or inputs["geometry"]
+        raise InputError(
+            f"{table}: only one period ({', '.join(p.period_labels) or 'none'}) has values; a run "
+            "compares periods, so it needs two or more (check the period column, or use "
+            "`mapdrift animate --at` for a single map)"
+        )
     return (
         f"{p.n_units} units x {p.n_periods} periods ({p.period_labels[0]} to {p.period_labels[-1]})"
     )
@@ -319,6 +327,8 @@ def _step_classify(state: RunState) -> str:
 
 
 def _text(state: RunState) -> dict[str, Any]:
+    from mapdrift.brief.pictures import REPORT_TEXT_PX
+
     p = state.panel
     brief = state.section(BriefSpec, "brief")
     title = brief.title or p.meta.variable
@@ -328,6 +338,8 @@ def _text(state: RunState) -> dict[str, Any]:
         "subtitle": sub,
         "caption": brief.source or p.meta.source,
         "notice": state.notice,
+        "unit_noun": brief.unit_noun,
+        "min_text_px": REPORT_TEXT_PX,
     }
 
 
@@ -346,14 +358,9 @@ def _step_animate(state: RunState) -> str:
     text["legend_title"] = p.meta.unit_label or p.meta.variable
     ch = state.results.get("changes")
     if ch is not None and len(ch.jumps):  # outline the units that jumped into each period
-        index = {u: i for i, u in enumerate(p.units)}
-        landed = {label: [] for label in p.period_labels}
-        counted = ch.jumps["credible"] != "false"  # moves within count noise are not outlined
-        for unit, to in zip(ch.jumps["unit"][counted], ch.jumps["to_period"][counted].astype(str)):
-            landed[to].append(index[unit])
-        text["outlines"] = [landed[label] for label in p.period_labels]
-        what = "credibly jumped" if ch.tested else "jumped"
-        text["outline_label"] = f"{what} {ch.options.jump}+ classes since the previous period"
+        from mapdrift.brief.pictures import jump_outlines
+
+        text["outlines"], text["outline_label"] = jump_outlines(ch, p)
     done = []
     for fmt in ("gif", "mp4"):
         if fmt in formats:
@@ -449,7 +456,7 @@ def _step_changes(state: RunState) -> str:
     state.results["changes"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_changes(result, state.staging, units_table=False)
-    change_pictures(result, panel, state.staging)
+    change_pictures(result, panel, state.staging, look=_look(state))
     n_jump = int(result.units["jump"].sum())
     up = int((result.net_change > 0).sum())
     down = int((result.net_change < 0).sum())
@@ -482,7 +489,9 @@ def _step_clusters(state: RunState) -> str:
     state.results["clusters"] = result
     state.findings += [f for f in result.findings if f not in state.findings]
     write_clusters(result, state.staging, warning=state.view or None)
-    cluster_pictures(result, state.panel, state.staging, trends=not state.trends_skipped)
+    cluster_pictures(
+        result, state.panel, state.staging, trends=not state.trends_skipped, look=_look(state)
+    )
     last = result.period_labels[-1]
     hh = int((result.codes[:, -1] == 0).sum())
     if state.trends_skipped:
@@ -493,7 +502,7 @@ def _step_clusters(state: RunState) -> str:
 
 
 def _step_units(state: RunState) -> str:
-    from mapdrift.brief.tables import units_table, write_units_gpkg
+    from mapdrift.brief.tables import SQLITE_MAX_COLUMNS, units_table, write_units_gpkg
     from mapdrift.outputs import write_csv
 
     extra: dict[str, Any] = {}
@@ -511,11 +520,40 @@ def _step_units(state: RunState) -> str:
     state.results["units"] = df
     write_csv(df, state.path("units.csv"), warning=state.csv_note)
     formats = state.section(BriefSpec, "brief").formats
+    style = ""
     if "gpkg" in formats:
-        write_units_gpkg(df, state.panel.geometry, state.path("units.gpkg"))
+        p = state.panel
+        if write_units_gpkg(
+            df, p.geometry, state.path("units.gpkg"), period_labels=p.period_labels
+        ):
+            state.findings.append(
+                Finding(
+                    "note",
+                    "units-gpkg-long",
+                    f"units.gpkg: {len(df.columns)} columns are more than a GeoPackage table "
+                    f"holds ({SQLITE_MAX_COLUMNS}); the per-period columns are in its table "
+                    "units_by_period (one row per unit and period)",
+                )
+            )
+        last = f"cluster_{state.panel.period_labels[-1]}"
+        if last in df.columns:  # the cluster look for the units layer, as an OGC SLD
+            from mapdrift.brief.pictures import write_cluster_style
+
+            write_cluster_style(state.path("units_clusters.sld"), last)
+            style = ", units_clusters.sld"
     return f"{len(df)} units x {len(df.columns)} columns (units.csv" + (
-        ", units.gpkg)" if "gpkg" in formats else ")"
+        f", units.gpkg{style})" if "gpkg" in formats else ")"
     )
+
+
+def _step_explorer(state: RunState) -> str:
+    formats = state.section(BriefSpec, "brief").formats
+    if "html" not in formats and "explorer" not in formats:
+        return 'not asked for ([brief] formats has neither "html" nor "explorer")'
+    from mapdrift.brief.explorer import payload_from_state, write_explorer
+
+    path = write_explorer(payload_from_state(state), state.path("explorer.html"))
+    return f"explorer.html ({path.stat().st_size / 1e6:.2f} MB)"
 
 
 def _step_whatsnew(state: RunState) -> str:
@@ -556,6 +594,12 @@ def _step_findings(state: RunState) -> str:
     return f"{plural(n['warning'], 'warning')}, {plural(n['note'], 'note')}"
 
 
+def _look(state: RunState) -> Any:
+    from mapdrift.brief.pictures import Look
+
+    return Look(unit_noun=state.section(BriefSpec, "brief").unit_noun)
+
+
 def _step_brief(state: RunState) -> str:
     from mapdrift.brief.assemble import build_brief, build_slides
     from mapdrift.brief.inputs import BriefInputs
@@ -581,18 +625,23 @@ def _step_brief(state: RunState) -> str:
         write_report(brief, state.path("report.html"), state.path("report.md"), root=state.staging)
         done.append("report.html, report.md")
     if "png" in formats or "pptx" in formats:
+        import tempfile
+
         from mapdrift.brief.slides import write_slide_pngs
 
-        slides = build_slides(inputs, brief)
-        footer = brief.source
-        if "png" in formats:
-            write_slide_pngs(slides, state.path("slides"), footer=footer)
-            done.append(f"{len(slides)} slides")
-        if "pptx" in formats:
-            from mapdrift.brief.deck import write_deck
+        # the slides' own pictures (drawn at the slide's size, text >= 18 px) live only until
+        # the slides and the deck are written
+        with tempfile.TemporaryDirectory(prefix="mapdrift-slides-") as parts:
+            slides = build_slides(inputs, brief, pictures=Path(parts))
+            footer = brief.source
+            if "png" in formats:
+                write_slide_pngs(slides, state.path("slides"), footer=footer)
+                done.append(f"{len(slides)} slides")
+            if "pptx" in formats:
+                from mapdrift.brief.deck import write_deck
 
-            write_deck(slides, state.path("brief.pptx"), footer=footer)
-            done.append("brief.pptx")
+                write_deck(slides, state.path("brief.pptx"), footer=footer)
+                done.append("brief.pptx")
     return ", ".join(done) or "no briefing formats asked for"
 
 
@@ -605,6 +654,7 @@ STEPS: list[tuple[str, Callable[[RunState], str]]] = [
     ("clusters", _step_clusters),
     ("animate", _step_animate),
     ("units", _step_units),
+    ("explorer", _step_explorer),
     ("whats-new", _step_whatsnew),
     ("findings", _step_findings),
     ("brief", _step_brief),
@@ -695,7 +745,14 @@ def run(
     it starts (the CLI shows a spinner with it). ``out`` is checked before any work and again
     at the swap (see :mod:`mapdrift.outfolder`); leftovers of killed runs are cleaned first.
     """
-    from mapdrift.outfolder import lock_out, recover, set_aside_for, staging_for, swap_in
+    from mapdrift.outfolder import (
+        lock_out,
+        recover,
+        remove_staging,
+        set_aside_for,
+        staging_for,
+        swap_in,
+    )
 
     run_spec: RunSpec = merge(RunSpec, config.section("run"), {})
     out = Path(out or run_spec.out or default_out(config))
@@ -710,15 +767,15 @@ def run(
                 progress(f"{'recover':<10} {line}")
         prepare_out(out, force=force, inputs=inputs)  # before any work
         staging = staging_for(out)
-        staging.mkdir(parents=True)
         try:
+            staging.mkdir(parents=True)
             state = RunState(config=config, staging=staging, run=run_spec)
             state.findings += [Finding("warning", "out-recovered", m) for m in recovered]
             _run_steps(state, out, steps, progress, on_start)
             _manifest(state, replaces=set_aside_for(out).name if out.exists() else None)
             swap_in(staging, out, inputs, force=force)
         finally:
-            shutil.rmtree(staging, ignore_errors=True)
+            remove_staging(staging)
     outputs = tuple(sorted(p for p in out.rglob("*") if p.is_file()))
     return RunResult(
         out, tuple(state.findings), dict(state.timings), dict(state.summaries), outputs

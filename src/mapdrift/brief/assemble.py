@@ -16,18 +16,26 @@ import numpy as np
 
 from mapdrift.breaks import describe
 from mapdrift.brief.content import CAUTIONS, Brief, Figure, Section, Table, phrase
+from mapdrift.brief.pictures import noun_for
 from mapdrift.brief.slides import Slide
 from mapdrift.brief.whatsnew import previous_name
 from mapdrift.config import BriefSpec
 from mapdrift.findings import examples, plural, units_of
 
 if TYPE_CHECKING:
+    from pathlib import Path
+
     import pandas as pd
 
     from mapdrift.brief.inputs import BriefInputs
 
 
 __all__ = ["build_brief", "build_slides", "headline", "method", "top_movers"]
+
+
+def _noun(state: BriefInputs) -> str:
+    """What the units are called (``[brief] unit_noun``, e.g. "tracts")."""
+    return state.spec.unit_noun or "units"
 
 
 def _period_span(state: BriefInputs) -> str:
@@ -38,40 +46,41 @@ def _period_span(state: BriefInputs) -> str:
 def headline(state: BriefInputs) -> list[tuple[str, str]]:
     """The answer in numbers: (label, value) pairs."""
     p = state.panel
+    u = _noun(state)
     per = p.period_labels
     out: list[tuple[str, str]] = []
     ch = state.changes
     if ch is not None:
         net = ch.net_change
         out.append(
-            (f"units in a higher class in {per[-1]} than in {per[0]}", f"{int((net > 0).sum())}")
+            (f"{u} in a higher class in {per[-1]} than in {per[0]}", f"{int((net > 0).sum()):,}")
         )
         out.append(
-            (f"units in a lower class in {per[-1]} than in {per[0]}", f"{int((net < 0).sum())}")
+            (f"{u} in a lower class in {per[-1]} than in {per[0]}", f"{int((net < 0).sum()):,}")
         )
         spikes = int((ch.units["jump"] & ch.units["spike"]).sum())
-        back = f" ({spikes} came straight back: check the data)" if spikes else ""
+        back = f" ({spikes:,} came straight back: check the data)" if spikes else ""
         if ch.tested:
             noise = int(((ch.units["n_noise_moves"] > 0) & ~ch.units["jump"]).sum())
             out.append(
                 (
-                    f"units that credibly jumped {ch.options.jump}+ classes in {p.step_label}{back}",
-                    f"{int(ch.units['jump'].sum())}",
+                    f"{u} that credibly jumped {ch.options.jump}+ classes in {p.step_label}{back}",
+                    f"{int(ch.units['jump'].sum()):,}",
                 )
             )
             out.append(
                 (
-                    f"units whose {ch.options.jump}+ class moves are within count noise "
+                    f"{u} whose {ch.options.jump}+ class moves are within count noise "
                     "(listed in jumps.csv)",
-                    f"{noise}",
+                    f"{noise:,}",
                 )
             )
         else:
             out.append(
                 (
-                    f"units that jumped {ch.options.jump}+ classes in {p.step_label}{back} (not tested "
+                    f"{u} that jumped {ch.options.jump}+ classes in {p.step_label}{back} (not tested "
                     "against noise: no counts given)",
-                    f"{int(ch.units['jump'].sum())}",
+                    f"{int(ch.units['jump'].sum()):,}",
                 )
             )
     cl = state.clusters
@@ -79,31 +88,36 @@ def headline(state: BriefInputs) -> list[tuple[str, str]]:
         joined = np.array([bool(v) for v in cl.changes["joined_high_cluster"]])
         still = joined & (cl.codes[:, -1] == 0)
         out.append(
-            (f"units in a high-high cluster in {per[-1]}", f"{int((cl.codes[:, -1] == 0).sum())}")
+            (f"{u} in a high-high cluster in {per[-1]}", f"{int((cl.codes[:, -1] == 0).sum()):,}")
         )
         out.append(
             (
-                f"units that entered (or re-entered) a high-high cluster between {per[0]} and "
-                f"{per[-1]} ({int(still.sum())} in one in {per[-1]})",
-                f"{int(joined.sum())}",
+                f"{u} that entered (or re-entered) a high-high cluster between {per[0]} and "
+                f"{per[-1]} ({int(still.sum()):,} in one in {per[-1]})",
+                f"{int(joined.sum()):,}",
             )
         )
         rises, falls = int((cl.change_codes == 0).sum()), int((cl.change_codes == 1).sum())
         a, b = cl.change_periods
         out.append(
             (
-                f"units where the change {a} to {b} clusters in space ({rises} rise among rises, "
-                f"{falls} fall among falls)",
-                f"{rises + falls}",
+                f"{u} where the change {a} to {b} clusters in space ({rises:,} rise among rises, "
+                f"{falls:,} fall among falls)",
+                f"{rises + falls:,}",
             )
         )
         sig = cl.trends["significant"].astype(bool)
         for word in ("rising", "falling") if not state.trends_skipped else ():
             n = int((sig & (cl.trends["direction"] == word)).sum())
-            out.append((f"units with a significant {word} trend", f"{n}"))
+            out.append((f"{u} with a significant {word} trend", f"{n:,}"))
     nd = int(np.isnan(p.values).all(axis=1).sum())
-    out.append(("units with no data at all (kept on the map)", f"{nd}"))
-    return out
+    out.append((f"{u} with no data at all (kept on the map)", f"{nd:,}"))
+    # "1 tract", not "1 tracts"
+    one = noun_for(1, u)[2:]
+    return [
+        (one + label[len(u) :] if value == "1" and label.startswith(u + " ") else label, value)
+        for label, value in out
+    ]
 
 
 def method(state: BriefInputs) -> list[tuple[str, str]]:
@@ -217,6 +231,7 @@ def build_brief(state: BriefInputs) -> Brief:
     p = state.panel
     per = p.period_labels
     sections: list[Section] = []
+    noun = _noun(state)
     wn = state.whatsnew
     if wn is not None:
         sections.append(
@@ -232,7 +247,7 @@ def build_brief(state: BriefInputs) -> Brief:
             "maps",
             f"The map, {_period_span(state)}",
             paragraphs=(
-                "Every frame uses the same classes, so a colour means the same range in every year."
+                "Every frame uses the same classes, so a colour means the same range in every period."
                 if not state.classes.per_period
                 else state.classes.warning or "",
                 "The animation (animation.gif, animation.mp4) shows one frame per period; below is its last frame, then every period side by side.",
@@ -252,9 +267,9 @@ def build_brief(state: BriefInputs) -> Brief:
         sections.append(
             Section(
                 "change",
-                "Which units changed",
+                f"Which {noun} changed",
                 paragraphs=(
-                    f"Net class change from {per[0]} to {per[-1]}, and the units whose path is worth a look (jumps, spikes, stayed in the top or bottom class).",
+                    f"Net class change from {per[0]} to {per[-1]}, and the {noun} whose path is worth a look (jumps, spikes, stayed in the top or bottom class).",
                 ),
                 figures=(
                     _fig(state, "change_map.png", f"Class change {per[0]} to {per[-1]}"),
@@ -283,7 +298,7 @@ def build_brief(state: BriefInputs) -> Brief:
                         "transition_heatmap.png",
                         "Transitions between consecutive periods, pooled",
                     ),
-                    _fig(state, "class_flow.png", f"Where units moved, {per[0]} to {per[-1]}"),
+                    _fig(state, "class_flow.png", f"Where {noun} moved, {per[0]} to {per[-1]}"),
                 ),
                 tables=(
                     Table(
@@ -299,7 +314,7 @@ def build_brief(state: BriefInputs) -> Brief:
             sections.append(
                 Section(
                     "jumps",
-                    "Units that jumped",
+                    f"{noun.capitalize()} that jumped",
                     paragraphs=(
                         f"Moves of {ch.options.jump} or more classes in one step, largest first. A jump that comes back soon after is often a data error: check it before reading it as change.",
                         ch.noise_text,
@@ -353,7 +368,7 @@ def build_brief(state: BriefInputs) -> Brief:
                 "change-clusters",
                 "Is the change clustered in space?",
                 paragraphs=(
-                    f"Local clusters of the change in value from {a} to {b}: where units rose (or fell) together with their neighbours. {sig_text.replace(' per period', '')}.",
+                    f"Local clusters of the change in value from {a} to {b}: where {noun} rose (or fell) together with their neighbours. {sig_text.replace(' per period', '')}.",
                 ),
                 figures=(
                     _fig(
@@ -374,9 +389,9 @@ def build_brief(state: BriefInputs) -> Brief:
         sections.append(
             Section(
                 "trends",
-                "Trends per unit",
+                f"Trends per {noun_for(1, noun)[2:]}",
                 paragraphs=(
-                    f"{plural(len(sig), 'unit')} with a significant monotone trend ({cl.significance.replace('per period', 'across units')}).",
+                    f"{noun_for(len(sig), noun)} with a significant monotone trend ({cl.significance.replace('per period', 'across units')}).",
                 ),
                 figures=(
                     _fig(state, "trend_map.png", "Theil-Sen slope where the trend is significant"),
@@ -436,7 +451,72 @@ def _short(message: str, limit: int = 160) -> str:
     return head.rstrip(",;:( ") + " …"
 
 
-def build_slides(state: BriefInputs, brief: Brief) -> list[Slide]:
+def _slide_pictures(state: BriefInputs, folder: Path) -> dict[str, Path]:
+    """Draw the slides' own pictures into ``folder`` at the slide's picture box with text of at
+    least 18 px: the poster frame, the change and cluster pictures, and the small multiples
+    split into pages. Returns ``{name: path}`` (multiples as ``multiples-1.png`` ...)."""
+    from mapdrift import palettes
+    from mapdrift.brief.pictures import (
+        Look,
+        change_pictures,
+        cluster_pictures,
+        jump_outlines,
+        multiples_pages,
+    )
+    from mapdrift.brief.slides import MIN_TEXT_PX, PICTURE_BOX
+    from mapdrift.render.frames import FrameRenderer
+    from mapdrift.render.layout import MapText
+
+    folder.mkdir(parents=True, exist_ok=True)
+    spec: BriefSpec = state.spec
+    look = Look(size=PICTURE_BOX, min_text_px=MIN_TEXT_PX + 1, unit_noun=_noun(state))
+    p, c = state.panel, state.classes
+    out: dict[str, Path] = {}
+    colours = palettes.colours_for(c.k, diverging_legend=c.breaks[0].diverging)
+    labels = [b.labels for b in c.breaks] if c.per_period else list(c.breaks[0].labels)
+    legend = p.meta.unit_label or p.meta.variable
+    ch = state.changes
+    outlines, outline_label = jump_outlines(ch, p)
+    text = MapText(
+        title=spec.title or p.meta.variable,
+        subtitle=spec.subtitle or p.meta.unit_label or "",
+        caption=spec.source or p.meta.source,
+        notice=state.notice,
+        legend_title=legend,
+        outline_label=outline_label,
+        unit_noun=look.unit_noun,
+        min_text_px=look.min_text_px,
+    )
+    r = FrameRenderer(
+        p.geometry, c.codes, colours, labels, p.period_labels, text=text, outlines=outlines,
+        size=PICTURE_BOX, units=list(p.units),
+    )  # fmt: skip
+    try:
+        from PIL import Image
+
+        out["poster.png"] = folder / "poster.png"
+        Image.fromarray(r.frame(p.n_periods - 1)).save(out["poster.png"], format="PNG")
+    finally:
+        r.close()
+    if not c.per_period:
+        for path, _periods in multiples_pages(
+            p.geometry, c.codes, colours, labels, p.period_labels, folder,
+            size=PICTURE_BOX, legend_title=legend, text_px=26,
+        ):  # fmt: skip
+            out[path.name] = path
+    if ch is not None:
+        for path in change_pictures(ch, p, folder, force=True, look=look):
+            out[path.name] = path
+    cl = state.clusters
+    if cl is not None:
+        for path in cluster_pictures(
+            cl, p, folder, force=True, look=look, animation=False, trends=not state.trends_skipped
+        ):
+            out[path.name] = path
+    return out
+
+
+def build_slides(state: BriefInputs, brief: Brief, pictures: Path | None = None) -> list[Slide]:
     """The deck: title, answer, what's new, animation, small multiples, then one picture per
     slide (change, flagged units, transitions, flow, movers, clusters, change clusters, trends)
     and the data notes. Pictures carry their own titles and sources, so the slide adds a
@@ -473,12 +553,20 @@ def build_slides(state: BriefInputs, brief: Brief) -> list[Slide]:
                 notes=_notes(brief, "Differences from the previous run."),
             )
         )
-    gif, mp4, poster = d / "animation.gif", d / "animation.mp4", d / "poster.png"
+    noun = _noun(state)
+    drawn = _slide_pictures(state, pictures) if pictures is not None else {}
+
+    def pic(name: str) -> Path:
+        return drawn.get(name, d / name)
+
+    gif, mp4, poster = d / "animation.gif", d / "animation.mp4", pic("poster.png")
     same = (
         "Every frame on the same classes"
         if not state.classes.per_period
         else "Classes differ by period"
     )
+    ch = state.changes
+    cl = state.clusters
     if poster.exists():
         slides.append(
             Slide(
@@ -490,46 +578,60 @@ def build_slides(state: BriefInputs, brief: Brief) -> list[Slide]:
                 notice=notice,
                 notes=_notes(
                     brief,
-                    "Animation: one frame per period; outlined units jumped into that period.",
+                    f"Animation: one frame per period; outlined {noun} jumped into that period. "
+                    "The strip at the bottom shows each period's class shares.",
                 ),
             )
         )
-    pictures = [
-        (
-            "small-multiples",
-            "small_multiples.png",
-            "Every period side by side",
-            "All periods on one page.",
-        ),
-        (
-            "change",
-            "change_map.png",
-            f"Which units changed class, {first} to {last}",
-            "Net class change between the first and the last period.",
-        ),
-        (
-            "flagged",
-            "flagged_units.png",
-            "Units worth a closer look",
-            "Jumps, spikes (often data errors) and units that stayed in the top or bottom class.",
-        ),
-        (
-            "transitions",
-            "transition_heatmap.png",
-            "How units move between classes",
-            "Counts of moves between consecutive periods, pooled.",
-        ),
-        (
-            "flow",
-            "class_flow.png",
-            f"Where units moved, {first} to {last}",
-            "Shares of units per class in the first and last period.",
-        ),
-    ]
-    for key, name, title, note in pictures:
-        if (d / name).exists():
+    pages = sorted((k for k in drawn if k.startswith("multiples-")), key=lambda k: int(k[10:-4]))
+    if pages:
+        for i, name in enumerate(pages, 1):
             slides.append(
-                Slide(key, title, images=(d / name,), notice=notice, notes=_notes(brief, note))
+                Slide(
+                    "small-multiples" if len(pages) == 1 else f"small-multiples-{i}",
+                    f"Every period on the same classes ({i} of {len(pages)})",
+                    images=(drawn[name],),
+                    notice=notice,
+                    notes=_notes(brief, "Every period side by side, on the same classes."),
+                )
+            )
+    elif (d / "small_multiples.png").exists():
+        slides.append(
+            Slide(
+                "small-multiples",
+                "Every period side by side",
+                images=(d / "small_multiples.png",),
+                notice=notice,
+                notes=_notes(brief, "All periods on one page."),
+            )
+        )
+    if ch is not None:
+        up, down = int((ch.net_change > 0).sum()), int((ch.net_change < 0).sum())
+        n_jump = int(ch.units["jump"].sum())
+        stay = np.trace(ch.transitions.counts) / max(ch.transitions.counts.sum(), 1)
+        change_title = (
+            f"{noun_for(up, noun)} rose and {down:,} fell a class or more, {first} to {last}"
+        )
+        flag_title = f"{noun_for(n_jump, noun)} jumped {ch.options.jump}+ classes in one step"
+        trans_title = f"{stay:.0%} of steps stay in their class"
+        flow_title = f"Where {noun} moved, {first} to {last}"
+    else:
+        change_title = f"Which {noun} changed class, {first} to {last}"
+        flag_title, trans_title = (
+            f"{noun.capitalize()} worth a closer look",
+            f"How {noun} move between classes",
+        )
+        flow_title = f"Where {noun} moved, {first} to {last}"
+    pictures_l = [
+        ("change", "change_map.png", change_title, "Net class change between the first and the last period."),
+        ("flagged", "flagged_units.png", flag_title, "Jumps, spikes (often data errors) and units that stayed in the top or bottom class."),
+        ("transitions", "transition_heatmap.png", trans_title, "Counts of moves between consecutive periods, pooled."),
+        ("flow", "class_flow.png", flow_title, "Shares of units per class in the first and last period."),
+    ]  # fmt: skip
+    for key, name, title, note in pictures_l:
+        if pic(name).exists():
+            slides.append(
+                Slide(key, title, images=(pic(name),), notice=notice, notes=_notes(brief, note))
             )
     movers = top_movers(state, 10)
     ch = state.changes
@@ -538,7 +640,7 @@ def build_slides(state: BriefInputs, brief: Brief) -> list[Slide]:
         slides.append(
             Slide(
                 "movers",
-                "Top movers",
+                f"The {min(len(movers), 10):,} largest one-step jumps: check these first",
                 table=movers,
                 bullets=(
                     "A jump that came back soon after is often a data error; a small base makes rates unstable: check both first.",
@@ -548,45 +650,32 @@ def build_slides(state: BriefInputs, brief: Brief) -> list[Slide]:
                 notes=_notes(brief, "Largest one-step jumps."),
             )
         )
-    cl = state.clusters
-    later = [
-        (
-            "clusters",
-            "cluster_map.png",
-            f"Where high and low values cluster, {last}",
-            "Local clusters in the last period.",
-        ),
-        (
-            "global-moran",
-            "global_moran.png",
-            "How clustered the map is, period by period",
-            "Global Moran's I per period.",
-        ),
-        (
-            "change-clusters",
-            "change_cluster_map.png",
-            "Is the change clustered in space?",
-            "Local clusters of the change between two periods.",
-        ),
-        (
-            "trends",
-            "trend_map.png",
-            "Trends per unit",
-            "Theil-Sen slope where the Mann-Kendall trend is significant.",
-        ),
-    ]
+    later = []
     if cl is not None:
         a, b = cl.change_periods
-        later[2] = (
-            "change-clusters",
-            "change_cluster_map.png",
-            f"Is the change {a} to {b} clustered in space?",
-            later[2][3],
-        )
+        n_hh, n_ll = int((cl.codes[:, -1] == 0).sum()), int((cl.codes[:, -1] == 1).sum())
+        g = cl.global_moran
+        n_sig = int((np.asarray(g["p_permutation"], dtype=float) <= cl.options.alpha).sum())
+        rises, falls = int((cl.change_codes == 0).sum()), int((cl.change_codes == 1).sum())
+        n_trend = 0 if state.trends_skipped else int(cl.trends["significant"].astype(bool).sum())
+        later = [
+            ("clusters", "cluster_map.png",
+             (f"{noun_for(n_hh, noun)} in high-high and {n_ll:,} in low-low clusters, {last}"
+              if n_ll else f"{noun_for(n_hh, noun)} in high-high clusters, {last}"),
+             "Local clusters in the last period."),
+            ("global-moran", "global_moran.png",
+             f"The map is clustered in {n_sig:,} of {len(g):,} periods",
+             "Global Moran's I per period."),
+            ("change-clusters", "change_cluster_map.png",
+             f"Change {a} to {b}: {noun_for(rises, noun)} rose among rises, {falls:,} fell among falls",
+             "Local clusters of the change between two periods."),
+            ("trends", "trend_map.png", f"{noun_for(n_trend, noun)} with a significant trend",
+             "Theil-Sen slope where the Mann-Kendall trend is significant."),
+        ]  # fmt: skip
     for key, name, title, note in later:
-        if (d / name).exists():
+        if pic(name).exists():
             slides.append(
-                Slide(key, title, images=(d / name,), notice=notice, notes=_notes(brief, note))
+                Slide(key, title, images=(pic(name),), notice=notice, notes=_notes(brief, note))
             )
     warn = [f for f in state.findings if f.level == "warning"]
     bullets = tuple(_short(f.message, 230) for f in warn[:6]) or ("No data problems found.",)

@@ -1,8 +1,9 @@
 """``brief.pptx``: the slides as a PowerPoint deck (python-pptx), 16:9, with speaker notes.
 
 Positions come from :func:`mapdrift.brief.slides.layout` (pixels of 1920 x 1080; 1 px = 6350
-EMU, so 1 px = 0.5 pt). Text is wrapped and sized with :mod:`mapdrift.brief.textfit` before it
-is placed, so no text frame overflows its shape. The animation slide carries the MP4 as a movie
+EMU, so 1 px = 0.5 pt). Text is sized with :mod:`mapdrift.brief.textfit` so it fits its shape,
+then placed as plain paragraphs (no hard line breaks) in a frame that wraps and shrinks on
+overflow, so someone editing the deck gets clean rewrapping. The animation slide carries the MP4 as a movie
 with a poster frame, on top of the GIF as a picture: viewers that cannot play the movie show the
 (animated) GIF beneath.
 """
@@ -43,7 +44,7 @@ def _textbox(
     paragraphs: Sequence[str],
     *,
     max_px: float,
-    min_px: float = 14,
+    min_px: float = 18,
     bold: bool = False,
     colour=(29, 35, 48),
     bullets: bool = False,
@@ -59,13 +60,13 @@ def _textbox(
     tb = shapes.add_textbox(_emu(box[0]), _emu(box[1]), _emu(width), _emu(height))
     tf = tb.text_frame
     tf.word_wrap = True
-    tf.auto_size = MSO_AUTO_SIZE.NONE
+    # the viewer wraps the paragraphs and shrinks them if its font runs wider than ours
+    tf.auto_size = MSO_AUTO_SIZE.TEXT_TO_FIT_SHAPE
     tf.margin_left = tf.margin_right = tf.margin_top = tf.margin_bottom = 0
     for i, lines in enumerate(wrapped):
         p = tf.paragraphs[0] if i == 0 else tf.add_paragraph()
-        # one explicit line break per wrapped line ("\v" becomes <a:br/>), so the layout does
-        # not depend on the viewer's own wrapping
-        p.text = ("•\t" if bullets else "") + "\v".join(lines)
+        # one paragraph per paragraph: no hard line breaks, so an edited deck rewraps cleanly
+        p.text = ("•\t" if bullets else "") + " ".join(lines)
         if bullets:  # hanging indent: wrapped lines start under the text, not the bullet
             p._p.get_or_add_pPr().set("marL", str(_emu(36)))
             p._p.get_or_add_pPr().set("indent", str(-_emu(36)))
@@ -198,7 +199,7 @@ def write_deck(slides: Sequence[Slide], path: Path, *, footer: str = "") -> Path
                 if table_box is not None:
                     _table(sh, s, table_box)
                 if bullets_box is not None:
-                    _textbox(sh, bullets_box, list(s.bullets), max_px=34, min_px=16, bullets=True)
+                    _textbox(sh, bullets_box, list(s.bullets), max_px=34, min_px=18, bullets=True)
             if s.caption:
                 _textbox(sh, r.caption, [s.caption], max_px=24, colour=(91, 100, 117))
         src = "" if s.images else footer  # pictures carry their own source line
@@ -208,7 +209,7 @@ def write_deck(slides: Sequence[Slide], path: Path, *, footer: str = "") -> Path
             (MARGIN + 600, r.footer[1], W - MARGIN, r.footer[1] + 30),
             [foot],
             max_px=20,
-            min_px=10,
+            min_px=18,
             colour=(91, 100, 117),
             align_right=True,
         )

@@ -72,6 +72,10 @@ def _plain(obj: Any) -> Any:
     return obj
 
 
+#: Affected units listed per finding in the manifest (``n_units`` gives the count).
+MANIFEST_UNITS = 20
+
+
 def write_manifest(
     path: Path,
     *,
@@ -102,7 +106,11 @@ def write_manifest(
         "parameters": _plain(parameters),
         "timings_s": dict(timings),
         "summaries": dict(summaries),
-        "findings": [f.to_dict() for f in findings],
+        # every affected unit is listed in findings.json; here the first few (at national scale
+        # the full lists made the manifest 12 MB)
+        "findings": [
+            {**d, "units": d["units"][:MANIFEST_UNITS]} for d in (f.to_dict() for f in findings)
+        ],
         "outputs": [
             {"path": p.relative_to(root).as_posix(), "sha256": sha256(p), "bytes": p.stat().st_size}
             for p in sorted(set(outputs))

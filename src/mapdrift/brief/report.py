@@ -9,10 +9,12 @@ from __future__ import annotations
 
 import base64
 import html
+import re
 from pathlib import Path
 
 from mapdrift.atomic import write_text
 from mapdrift.brief.content import Brief, Figure, Section, Table, phrase
+from mapdrift.safetext import clean
 
 __all__ = ["render_html", "render_markdown", "write_report"]
 
@@ -166,10 +168,14 @@ def render_html(brief: Brief, root: Path | None = None) -> str:
 
 
 def _md_escape(text: object) -> str:
-    s = str(text)
-    for ch in ("\\", "|", "*", "_", "`", "<", ">", "[", "]"):
+    """Text from the data as inert Markdown: one line, no emphasis, links, HTML or tables, and
+    no heading, list or rule at the start of a line."""
+    s = clean(str(text))
+    for ch in ("\\", "|", "*", "_", "`", "<", ">", "[", "]", "#", "~", "!"):
         s = s.replace(ch, "\\" + ch)
-    return s
+    if s[:1] in ("-", "+", "="):
+        s = "\\" + s
+    return re.sub(r"^(\d+)([.)])(?=\s|$)", r"\1\\\2", s)
 
 
 def _table_md(t: Table) -> str:

@@ -19,6 +19,8 @@ if TYPE_CHECKING:
 
 __all__ = [
     "H",
+    "MIN_TEXT_PX",
+    "PICTURE_BOX",
     "W",
     "Box",
     "Slide",
@@ -70,13 +72,20 @@ class Region:
     footer: Box
 
 
+#: Size of the picture box of a slide with one picture and nothing else (pictures drawn for
+#: the slides are made at this size, so they fill it pixel for pixel).
+PICTURE_BOX = (W - 2 * MARGIN, 860)
+#: Smallest text on a slide and on the pictures drawn for it, in pixels of the 1080p slide.
+MIN_TEXT_PX = 18
+
+
 def layout(slide: Slide) -> Region:
     """Boxes for the slide's parts; shared by the PNG and PPTX writers."""
-    top = 230 if slide.subtitle else 190
-    notice = (MARGIN, top - 10, W - MARGIN, top + 40) if slide.notice else (0, 0, 0, 0)
+    top = 196 if slide.subtitle else 150
+    notice = (MARGIN, top - 4, W - MARGIN, top + 46) if slide.notice else (0, 0, 0, 0)
     if slide.notice:
-        top += 60
-    bottom = 960
+        top += 58
+    bottom = 960 if slide.caption else 1010
     caption = (MARGIN, bottom + 4, W - MARGIN, bottom + 44)
     n_img = len(slide.images)
     has_text = bool(slide.bullets) or slide.table is not None
@@ -105,13 +114,13 @@ def layout(slide: Slide) -> Region:
     else:
         images, text = (), (MARGIN, top, W - MARGIN, bottom)
     return Region(
-        (MARGIN, 50, W - MARGIN, 140),
-        (MARGIN, 140, W - MARGIN, 200),
+        (MARGIN, 34, W - MARGIN, 140),
+        (MARGIN, 140, W - MARGIN, 190),
         notice,
         images,
         text,
         caption,
-        (MARGIN, 1010, W - MARGIN, 1060),
+        (MARGIN, 1030, W - MARGIN, 1074),
     )
 
 
@@ -153,7 +162,7 @@ def _paste(canvas: Image.Image, path: Path, box: Box) -> Box:
 
 def _bullets(draw, bullets: tuple[str, ...], box: Box, max_px: float = 34) -> list[Box]:
     width = box[2] - box[0] - 36
-    size, wrapped = fit(list(bullets), width, box[3] - box[1], max_px=max_px, min_px=16)
+    size, wrapped = fit(list(bullets), width, box[3] - box[1], max_px=max_px, min_px=MIN_TEXT_PX)
     boxes = []
     y = box[1]
     for lines in wrapped:
@@ -170,24 +179,37 @@ def table_cells(df: pd.DataFrame, max_rows: int = 12) -> list[list[str]]:
     """Header plus up to ``max_rows`` rows as text (numbers with two decimals)."""
     rows = [[str(c) for c in df.columns]]
     for rec in df.head(max_rows).itertuples(index=False):
-        rows.append(
-            [f"{v:,.2f}" if isinstance(v, float) else ("" if v is None else str(v)) for v in rec]
-        )
+        rows.append([_cell(v) for v in rec])
     return rows
+
+
+def _cell(v: object) -> str:
+    """One table cell: floats with two decimals, integers with thousands separators."""
+    import numbers
+
+    if v is None:
+        return ""
+    if isinstance(v, bool):
+        return str(v)
+    if isinstance(v, numbers.Integral):
+        return f"{int(v):,}"
+    if isinstance(v, numbers.Real):
+        return f"{float(v):,.2f}"
+    return str(v)
 
 
 def table_geometry(cells: list[list[str]], box: Box) -> tuple[float, list[float]]:
     """Font size and column widths so the table fits ``box`` (widths sum to the box width)."""
     bw, bh = box[2] - box[0], box[3] - box[1]
-    size = min(30.0, bh / (len(cells) * 1.5))
+    size = max(min(30.0, bh / (len(cells) * 1.5)), MIN_TEXT_PX)
     while True:
         need = [
             max(text_width(r[j], size, i == 0) for i, r in enumerate(cells)) + 24
             for j in range(len(cells[0]))
         ]
-        if sum(need) <= bw or size <= 12:
+        if sum(need) <= bw or size <= MIN_TEXT_PX:
             break
-        size *= 0.92
+        size = max(size * 0.92, MIN_TEXT_PX)
     extra = (bw - sum(need)) / len(need) if sum(need) < bw else 0
     return size, [n + extra for n in need]
 
@@ -257,13 +279,13 @@ def draw_slide(
             boxes.append(_text(d, " · ".join(slide.bullets), r.text or r.caption, 30, MUTED))
     else:
         d.rectangle((0, 0, W, 12), fill=ACCENT)
-        boxes.append(_text(d, slide.title, r.title, 60, INK, bold=True))
+        boxes.append(_text(d, slide.title, r.title, 54, INK, bold=True, min_px=30))
         if slide.subtitle:
-            boxes.append(_text(d, slide.subtitle, r.subtitle, 32, MUTED))
+            boxes.append(_text(d, slide.subtitle, r.subtitle, 32, MUTED, min_px=MIN_TEXT_PX))
         if slide.notice:
             d.rectangle(r.notice, fill=(255, 248, 230), outline=(227, 198, 122))
             inner = (r.notice[0] + 14, r.notice[1] + 8, r.notice[2] - 14, r.notice[3] - 4)
-            boxes.append(_text(d, slide.notice, inner, 26, WARN, bold=True))
+            boxes.append(_text(d, slide.notice, inner, 26, WARN, bold=True, min_px=MIN_TEXT_PX))
         for path, box in zip(slide.images, r.images):
             if path.exists():
                 _paste(img, path, box)
@@ -274,10 +296,10 @@ def draw_slide(
             if bullets_box is not None:
                 boxes += _bullets(d, slide.bullets, bullets_box)
         if slide.caption:
-            boxes.append(_text(d, slide.caption, r.caption, 24, MUTED))
+            boxes.append(_text(d, slide.caption, r.caption, 24, MUTED, min_px=MIN_TEXT_PX))
     footer = "" if slide.images else footer  # pictures carry their own source line
     foot = f"{footer}   {number}/{total}" if footer else f"{number}/{total}"
-    size = 20
+    size = 22
     x = W - MARGIN - text_width(foot, size)
     d.text((x, r.footer[1]), foot, font=_font(size, False), fill=MUTED)
     boxes.append((x, r.footer[1], W - MARGIN, r.footer[1] + line_height(size)))

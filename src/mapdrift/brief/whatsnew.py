@@ -142,6 +142,8 @@ class WhatsNew:
                     "size": size,
                     "spike": bool(r.get("spike", False)),
                     "small_base": unit in self.small_base,
+                    # the count-noise test of the jump, when the run made one
+                    **{c: _plain(r[c]) for c in ("p", "p_adjusted", "credible") if c in r},
                 }
             )
         for unit, event, period in self.cluster_events.itertuples(index=False):

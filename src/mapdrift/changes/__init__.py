@@ -215,10 +215,11 @@ def noise_sentence(test: str, options: ChangeOptions) -> str:
         "1940) on the counts",
         "moe": "a normal test on the margins of error (90 %)",
     }[test]
+    rest = "moves within count noise" if test == "poisson" else "moves within the margins of error"
     return (
         f"Credible jumps: every step of every unit tested with {how}, "
         f"{describe(options.alpha, options.correction)} over all tested steps; the rest are "
-        "moves within count noise."
+        f"{rest}."
     )
 
 
@@ -408,7 +409,7 @@ def analyse_changes(
     k = classes.k
     labels = class_labels(classes)
     per = panel.period_labels
-    tester, test_kind = _tester(panel, moe)
+    tester, test_kind = _tester(panel, moe if moe is not None else panel.moe)
     tr = count_transitions(
         codes, k, periods=panel.periods, labels=labels, bridge_gaps=options.bridge_gaps
     )

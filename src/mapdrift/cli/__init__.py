@@ -18,5 +18,6 @@ from mapdrift.cli import changes as _changes  # noqa: E402,F401  isort: skip
 from mapdrift.cli import clusters as _clusters  # noqa: E402,F401  isort: skip
 from mapdrift.cli import run as _run  # noqa: E402,F401  isort: skip
 from mapdrift.cli import demo as _demo  # noqa: E402,F401  isort: skip
+from mapdrift.cli import explore as _explore  # noqa: E402,F401  isort: skip
 
 __all__ = ["app", "main"]

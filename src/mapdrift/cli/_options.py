@@ -144,6 +144,15 @@ _INPUT_PARAMS = [
         _opt(None, "--denominator", help="Base column (or wide pattern) of the rate."),
     ),
     _param(
+        "moe",
+        Optional[str],
+        _opt(
+            None,
+            "--moe",
+            help="Rates only: 90% margin-of-error column (or wide pattern), to test jumps against noise.",
+        ),
+    ),
+    _param(
         "per",
         Optional[float],
         _opt(None, "--per", help="Rate per so many of the base [default: 1000]."),

@@ -82,3 +82,8 @@ def check(
     echo()
     n_note = sum(f.level == "note" for f in panel.findings)
     echo(f"Usable: {plural(n_warn, 'warning')}, {plural(n_note, 'note')}.")
+    if panel.n_periods < 2:  # `run` compares periods and stops on this; say it here first
+        echo(
+            "Only one period: enough for one map (`mapdrift animate --at`), not for `mapdrift "
+            "run`, changes or trends, which compare two or more periods."
+        )

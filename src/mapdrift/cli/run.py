@@ -39,9 +39,9 @@ def run_config(config: Any, *, out: Path | None, force: bool) -> Any:
             )
     summarise_findings(result.findings, "data findings:")
     n_warn = sum(f.level == "warning" for f in result.findings)
-    echo(
-        f"done: {len(result.outputs)} files in {result.out} ({n_warn} data warnings; see report.html)"
-    )
+    report = next((n for n in ("report.html", "report.md") if (result.out / n).exists()), None)
+    see = f"; see {report}" if report else "; see findings.json"
+    echo(f"done: {len(result.outputs)} files in {result.out} ({n_warn} data warnings{see})")
     return result
 
 
@@ -95,6 +95,9 @@ def run_cmd(
     correction: Optional[str] = _o(None, "--correction", help="fdr, bonferroni or none."),
     seed: Optional[int] = _o(None, "--seed", help="Seed of the permutation tests."),
     title: Optional[str] = _o(None, "--title", help="Title of the report and slides."),
+    unit_noun: Optional[str] = _o(
+        None, "--unit-noun", help="What the units are called in titles, e.g. tracts."
+    ),
     settings: Optional[list[str]] = _o(
         None,
         "--set",
@@ -143,7 +146,7 @@ def run_cmd(
             "seed": seed,
         },
     )
-    cfg = cfg.with_values("brief", {"title": title})
+    cfg = cfg.with_values("brief", {"title": title, "unit_noun": unit_noun})
     from mapdrift.config import SECTIONS, parse_setting
     from mapdrift.errors import ConfigError
 

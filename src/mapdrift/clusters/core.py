@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import logging
+import warnings
 from dataclasses import dataclass, field
 from functools import partial
 from pathlib import Path
@@ -99,6 +100,13 @@ class ClusterOptions:
             )
         if self.persist < 1:
             raise ConfigError(f"--persist must be 1 or more periods, got {self.persist}")
+        if not 0 <= self.seed < 2**32:
+            raise ConfigError(f"--seed must be a whole number from 0 to 2**32 - 1, got {self.seed}")
+        if self.min_periods < 3:
+            raise ConfigError(
+                f"min_periods must be 3 or more (a trend test needs 3 values), got "
+                f"{self.min_periods}"
+            )
         for key, valid in (("standardise", STANDARDISE), ("p_value", P_VALUES)):
             if getattr(self, key) not in valid:
                 flag = "--" + key.replace("_", "-")
@@ -266,12 +274,20 @@ def _trend_map(tr: TrendResult, unit_label: str) -> tuple[np.ndarray, tuple[str,
     return codes, labels
 
 
-def _per(panel: Panel) -> float:
-    """The factor from raw rates to the panel's values (e.g. 1000 for "per 1,000")."""
+def _period_factors(panel: Panel) -> np.ndarray | None:
+    """Per period, the factor from raw rates to the panel's values (``per``, times a view's
+    per-period rescaling such as relative-median or a deflator); None when the factor differs
+    between units of a period (a per-unit view such as index:2015)."""
     with np.errstate(invalid="ignore", divide="ignore"):
         ratio = np.asarray(panel.values) / (panel.numerator / panel.denominator)
-    ratio = ratio[np.isfinite(ratio) & (ratio > 0)]
-    return float(np.median(ratio)) if len(ratio) else 1.0
+    ratio[~np.isfinite(ratio) | (ratio <= 0)] = np.nan
+    if np.isnan(ratio).all(axis=0).any():
+        return None
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        mid = np.nanmedian(ratio, axis=0)
+        spread = np.nanmax(np.abs(ratio / mid - 1), axis=0)
+    return mid if np.all(spread < 1e-6) else None
 
 
 def _empty_periods(
@@ -342,6 +358,27 @@ def _empty_periods(
     return out
 
 
+#: Above this magnitude squared deviations overflow float64 (1e308); statistics then use the
+#: values scaled by a power of two (exact), which Moran's I and Gi* do not depend on.
+_HUGE = 1e150
+
+
+def _rescaled(values: np.ndarray) -> tuple[np.ndarray, Finding | None]:
+    """``values`` scaled by a power of two when they are huge, with a note saying so."""
+    finite = values[np.isfinite(values)]
+    big = float(np.abs(finite).max()) if finite.size else 0.0
+    if big <= _HUGE:
+        return values, None
+    exp = int(np.frexp(big)[1])
+    note = Finding(
+        "note",
+        "values-rescaled",
+        f"values reach {big:.3g}; the cluster statistics used them divided by 2^{exp} (exact, "
+        "and Moran's I and Gi* do not change with the scale) so squares do not overflow",
+    )
+    return np.ldexp(values, -exp), note
+
+
 def analyse_clusters(
     panel: Panel,
     classes: Any = None,
@@ -383,16 +420,33 @@ def analyse_clusters(
     counts = panel.numerator is not None and panel.denominator is not None
     stat_values, series = values, values  # levels; change and trends
     inputs = trend_input = "values as mapped"
-    if counts and opt.standardise == "assuncao-reis":
+    use_eb = counts and opt.standardise == "assuncao-reis"
+    # rates smoothed already (smooth = "eb" / "spatial-eb"): trends and change use them as they are
+    smoothed = bool(opt.smooth) or any(f.code.startswith("rates-smoothed") for f in panel.findings)
+    factors = _period_factors(panel) if use_eb and not smoothed else None
+    if use_eb and not smoothed and factors is None:
+        findings.append(
+            Finding(
+                "note",
+                "clusters-eb-not-combined",
+                "the values are rescaled unit by unit (a per-unit view), which EB "
+                "standardisation of the counts would undo; statistics use the values as mapped",
+            )
+        )
+    if use_eb and (smoothed or factors is not None):
         from mapdrift.rates import eb_standardise, smooth
 
         missing = np.isnan(values)
         stat_values = eb_standardise(panel.numerator, panel.denominator)
         stat_values[missing] = np.nan
-        series = smooth(panel.numerator, panel.denominator, "eb").rates * _per(panel)
-        series[missing] = np.nan
         inputs = "EB standardised rates (Assuncao & Reis 1999)"
-        trend_input = "EB smoothed rates (Marshall 1991)"
+        if smoothed:
+            trend_input = "the smoothed rates"
+        else:
+            assert factors is not None
+            series = smooth(panel.numerator, panel.denominator, "eb").rates * factors[None, :]
+            series[missing] = np.nan
+            trend_input = "EB smoothed rates (Marshall 1991)"
         findings.append(
             Finding(
                 "note",
@@ -411,7 +465,11 @@ def analyse_clusters(
             f"the change between periods needs two different periods; got --from "
             f"{labels_p[a]} --to {labels_p[b]} (periods: {examples(labels_p, 6)})"
         )
-    delta = (series[:, b] - series[:, a])[:, None]
+    stat_values, rescaled = _rescaled(stat_values)
+    if rescaled is not None:
+        findings.append(rescaled)
+    change_base = _rescaled(series)[0]  # the local Moran of change does not depend on scale
+    delta = (change_base[:, b] - change_base[:, a])[:, None]
     # four independent computations, the same calls on every executor
     local, glob_list, ch_local, tr = (executor or SerialExecutor()).run(
         [

@@ -15,6 +15,7 @@ from typing import TYPE_CHECKING, Any
 
 _LAZY = {
     "FrameRenderer": "mapdrift.render.frames",
+    "MapText": "mapdrift.render.layout",
     "render_frames": "mapdrift.render.frames",
     "write_gif": "mapdrift.render.encode",
     "write_mp4": "mapdrift.render.encode",
@@ -30,6 +31,7 @@ __all__ = [
     "AnimateOptions",
     "AnimateResult",
     "FrameRenderer",
+    "MapText",
     "animate",
     "render_frames",
     "small_multiples",
@@ -43,6 +45,7 @@ if TYPE_CHECKING:
     from mapdrift.render.animation import AnimateOptions, AnimateResult, animate
     from mapdrift.render.encode import write_gif, write_mp4, write_png_frames
     from mapdrift.render.frames import FrameRenderer, render_frames
+    from mapdrift.render.layout import MapText
     from mapdrift.render.multiples import small_multiples
     from mapdrift.render.static import static_map
 

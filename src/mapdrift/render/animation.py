@@ -24,16 +24,20 @@ __all__ = ["AnimateOptions", "AnimateResult", "animate", "parse_size"]
 MIN_WIDTH = 480
 
 
-def parse_size(text: str) -> tuple[int, int]:
-    """``'1280x720'`` -> ``(1280, 720)``; ConfigError naming ``--size`` otherwise."""
+def parse_size(text: str | Sequence[int]) -> tuple[int, int]:
+    """``'1280x720'`` (or ``(1280, 720)``) -> ``(1280, 720)``; ConfigError naming ``--size``
+    when malformed or out of range. The one size check of the flag, the config and ``--set``."""
     try:
-        w, h = (int(v) for v in str(text).lower().replace(" ", "").split("x"))
-    except ValueError:
+        if isinstance(text, str):
+            w, h = (int(v) for v in str(text).lower().replace(" ", "").split("x"))
+        else:
+            w, h = (int(v) for v in text)
+    except (TypeError, ValueError):
         raise ConfigError(
             f"--size {text!r} should be WIDTHxHEIGHT in pixels, e.g. 1280x720"
         ) from None
     if not (200 <= w <= 7680 and 150 <= h <= 4320):
-        raise ConfigError(f"--size {text!r} is out of range; use 200x150 up to 7680x4320")
+        raise ConfigError(f"--size {w}x{h} is out of range; use 200x150 up to 7680x4320")
     return w, h
 
 
@@ -52,14 +56,22 @@ class AnimateOptions:
     fps: int = 10
     tween: int = 0
     max_mb: float | None = None
-    min_unit_px: float = 0.0
+    min_unit_px: float = 3.0
     north_arrow: bool = False
     scale_units: str = "km"
     loop: int = 0
 
     def __post_init__(self) -> None:
-        if isinstance(self.size, str):
-            object.__setattr__(self, "size", parse_size(self.size))
+        # every range is checked here, so flags, config keys and --set share one path
+        object.__setattr__(self, "size", parse_size(self.size))
+        if not 1 <= self.fps <= 120:
+            raise ConfigError(f"--fps {self.fps} is out of range; use 1 to 120")
+        if self.seconds_per_period <= 0 or self.hold_last < 0 or self.tween < 0:
+            raise ConfigError("--seconds-per-period must be > 0, --hold-last and --tween >= 0")
+        if self.scale_units not in ("km", "mi"):
+            raise ConfigError(f"scale_units {self.scale_units!r} must be km or mi")
+        if self.loop < 0:
+            raise ConfigError(f"loop {self.loop} must be 0 (forever) or a number of repeats")
         if self.max_mb is not None and self.max_mb <= 0:
             raise ConfigError(f"--max-mb {self.max_mb:g} must be positive, e.g. 5")
         if self.min_unit_px < 0:

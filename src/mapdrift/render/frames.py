@@ -29,7 +29,7 @@ import numpy as np
 from mapdrift.colour import hex_to_rgb8
 from mapdrift.errors import ConfigError
 from mapdrift.findings import Finding
-from mapdrift.palettes import NODATA, NODATA_HATCH
+from mapdrift.palettes import CLUSTER_BLANK, NODATA, NODATA_HATCH
 from mapdrift.render import furniture as fur
 from mapdrift.render import layout as lay
 from mapdrift.render.pixels import hatch_alpha, pack_rgb, unpack_rgb
@@ -82,9 +82,14 @@ class FrameRenderer:
     ``geometry`` is a GeoSeries (or a sequence of shapely polygons with ``crs`` given) in a
     projected CRS; ``codes`` is ``[n_units, n_periods]`` int (-1 = no data); ``colours`` one hex
     per category; ``labels`` the legend text per category (or one tuple per period when breaks
-    differ by period). ``outlines`` optionally gives, per period, unit indices to outline (with
-    their ``names`` listed as callouts); ``units`` are the IDs named in findings. ``min_unit_px`` draws units smaller than that many
-    pixels across as dots. ``findings`` reports vanishing units and similar.
+    differ by period). ``text`` (a :class:`~mapdrift.render.layout.MapText`) holds every word
+    besides the labels; its fields may also be given as keywords (``title="..."``).
+    ``outlines`` optionally gives, per period, unit indices to outline (with their ``names``
+    listed as callouts); ``units`` are the IDs named in findings. ``min_unit_px`` draws units
+    smaller than that many pixels across as dots (and counts them in a finding). ``marks``
+    draws the units of some classes as a mark (``"up"``, ``"down"``, ``"ring"``; colours in
+    ``mark_colours``) on their fill; ``boundary`` colours the lines between units.
+    ``findings`` reports vanishing units and similar.
     """
 
     def __init__(
@@ -95,14 +100,8 @@ class FrameRenderer:
         labels: Sequence[str] | Sequence[Sequence[str]],
         period_labels: Sequence[str],
         *,
-        title: str = "",
-        subtitle: str = "",
-        caption: str = "",
-        notice: str | None = None,
-        legend_title: str = "",
-        nodata_label: str = "no data",
+        text: lay.MapText | None = None,
         outlines: Sequence[Sequence[int]] | None = None,
-        outline_label: str = "",
         names: Sequence[str] | None = None,
         units: Sequence[str] | None = None,
         size: tuple[int, int] = (1280, 720),
@@ -110,10 +109,14 @@ class FrameRenderer:
         timeline: bool = True,
         north_arrow: bool = False,
         scale_units: str = "km",
-        min_unit_px: float = 0.0,
+        min_unit_px: float = 3.0,
         supersample: int = 2,
         crs: Any = None,
         show_period: bool = True,
+        marks: Sequence[str | None] | None = None,
+        mark_colours: Sequence[str] | None = None,
+        boundary: str | None = None,
+        **words: Any,
     ) -> None:
         codes = np.asarray(codes)
         if codes.ndim == 1:
@@ -142,23 +145,44 @@ class FrameRenderer:
         labels_t = _labels_per_period(labels, k, n_periods)
         self.codes = codes.astype(np.int16)
         self.colours = tuple(colours)
+        text = _map_text(text, words, outlines is not None)
+        valid = self.codes
+        shares = tuple(
+            tuple(
+                np.bincount(np.where(valid[:, j] >= 0, valid[:, j], k), minlength=k + 1)
+                / max(n_units, 1)
+            )
+            for j in range(n_periods)
+        )
+        # classes left blank on the map (e.g. "not significant") are left out of the strip,
+        # whose bars then fill at a round share just above the tallest period
+        strip_skip = tuple(
+            i
+            for i, c in enumerate(self.colours)
+            if c == CLUSTER_BLANK and not (marks is not None and i < len(marks) and marks[i])
+        )
+        strip_full = 1.0
+        if strip_skip and shares:
+            keep = [i for i in range(k) if i not in strip_skip]
+            top = max(sum(sh[i] for i in keep) for sh in shares)
+            strip_full = _round_up_share(top)
         self.chrome = lay.Chrome(
             colours=self.colours,
             labels=labels_t,
             period_labels=tuple(str(p) for p in period_labels),
-            title=title,
-            subtitle=subtitle,
-            caption=caption,
-            notice=notice,
-            legend_title=legend_title,
-            nodata_label=nodata_label,
+            text=text,
             counts=counts,
             timeline=timeline,
             north_arrow=north_arrow,
             scale_units=scale_units,
-            outline_label=outline_label if outlines is not None else "",
             callouts=names is not None,
             show_period=show_period,
+            marks=tuple(marks) if marks is not None else (),
+            mark_colours=tuple(mark_colours) if mark_colours is not None else (),
+            shares=shares if timeline else (),
+            strip_skip=strip_skip,
+            strip_full=strip_full,
+            boundary=boundary or lay.BOUNDARY,
         )
         self.outlines = outlines
         self.names = tuple(names) if names is not None else None
@@ -202,6 +226,7 @@ class FrameRenderer:
         self._rings, self._ring_unit = rings
         self._ring_start = np.searchsorted(self._ring_unit, np.arange(n_units + 1))
         self._ring_sorted = bool(np.all(np.diff(self._ring_unit) >= 0))
+        self._mark_xy = _mark_points(geoms, tr) if self.chrome.marks else None
         static_key = (id(geometry), repr(self.layout), repr(self.chrome), self._min_unit_px,
                       int(supersample), n_units)  # fmt: skip
         static = _STATIC.get(static_key, geometry)
@@ -252,6 +277,7 @@ class FrameRenderer:
         )
         over8 = np.array(_rgba(fig))  # uint8 [H, W, 4]; float work only where it is drawn
         fig.clear()
+        _paint_edge(over8, self.raster.label, tr)
         hatch = _hatch(L.height, L.width, max(6.0 * L.s, 4.0), max(1.3 * L.s, 1.0))
         # base frame: paper, the no-data swatch hatched exactly as on the map, furniture on top
         base = np.empty((L.height, L.width, 3), dtype=np.float32)
@@ -325,6 +351,10 @@ class FrameRenderer:
             lay.RULE,
             lay.BOUNDARY,
             lay.OUTLINE,
+            lay.HALO,
+            lay.COAST,
+            self.chrome.boundary,
+            *self.chrome.mark_colours,
             lay.NOTICE_FG,
             lay.NOTICE_BG,
         ]
@@ -399,19 +429,15 @@ class FrameRenderer:
             if self.names is not None:
                 call = [self.names[u] for u in units]
         d = self._dyn
-        d.update(j, counts, nodata, outlines=segs, callouts=call, n_outlined=n_out)
-        groups: list[tuple[Any, list[Any]]] = []
-        if d.period is not None:
-            groups.append((("period", d.period.get_text(), d.period.get_fontsize()), [d.period]))
-        for i, t in enumerate(d.counts):
-            groups.append((("count", i, t.get_text()), [t]))
-        for i, t in enumerate(d.labels):
-            groups.append((("label", i, t.get_text()), [t]))
-        if d.marker is not None:
-            groups.append((("timeline", j), [d.progress, d.marker, d.current]))
-        if segs or d.callouts.get_text():  # change every frame: drawn fresh, not cached
-            groups.append((None, [d.outlines, d.callouts]))
-        return [s for s in self._sprites.get_many(groups) if s is not None]
+        marks = []
+        if self._mark_xy is not None:  # the units of mark-drawn classes, once per period
+            c = self.codes[:, j]
+            for i, kind in enumerate(self.chrome.marks):
+                if kind:
+                    colour = self.chrome.mark_colours[i] if self.chrome.mark_colours else lay.TEXT
+                    marks.append((kind, colour, self._mark_xy[c == i]))
+        d.update(j, counts, nodata, outlines=segs, callouts=call, n_outlined=n_out, marks=marks)
+        return [s for s in self._sprites.get_many(d.groups()) if s is not None]
 
     def _segments(self, units: np.ndarray) -> list[np.ndarray]:
         if self._ring_sorted:
@@ -431,6 +457,54 @@ class FrameRenderer:
         """Drop this renderer's references (the shared figure is freed with its cache entry)."""
         self._sprites = None  # type: ignore[assignment]
         self._dyn = None
+
+
+def _round_up_share(x: float) -> float:
+    """The next of 5 %, 10 %, 20 %, 25 %, 50 %, 100 % at or above ``x``."""
+    for step in (0.05, 0.1, 0.2, 0.25, 0.5):
+        if x <= step:
+            return step
+    return 1.0
+
+
+def _map_text(text: lay.MapText | None, words: dict[str, Any], outlined: bool) -> lay.MapText:
+    """The map text: ``text`` with any of its fields given as keywords (``title=...``)."""
+    import dataclasses
+
+    fields = {f.name for f in dataclasses.fields(lay.MapText)}
+    unknown = sorted(set(words) - fields)
+    if unknown:
+        raise TypeError(f"unknown map text field(s) {', '.join(unknown)}; use {sorted(fields)}")
+    out = dataclasses.replace(text or lay.MapText(), **words)
+    if not outlined and out.outline_label:
+        out = dataclasses.replace(out, outline_label="")
+    return out
+
+
+def _mark_points(geoms: Any, transform: Any) -> np.ndarray:
+    """A point inside each unit, in frame pixels ``[n, 2]`` (where its mark is drawn)."""
+    import shapely
+
+    pts = shapely.point_on_surface(geoms)
+    xy = shapely.get_coordinates(pts, include_z=False)
+    ok = ~shapely.is_empty(pts)
+    out = np.full((len(geoms), 2), -1e6)
+    cx, cy = transform.to_pixels(xy[:, 0], xy[:, 1])
+    out[ok] = np.column_stack([cx + transform.left, cy + transform.top])
+    return out
+
+
+def _paint_edge(over8: np.ndarray, label: np.ndarray, tr: Any) -> None:
+    """Paint the edge of the mapped area (mapped pixels next to outside ones) into the overlay
+    ``over8`` ([H, W, 4] uint8, straight alpha), so pale classes stay visible on the paper."""
+    inside = label >= 0
+    if not inside.any():
+        return
+    pad = np.pad(inside, 1, constant_values=False)
+    core = pad[:-2, 1:-1] & pad[2:, 1:-1] & pad[1:-1, :-2] & pad[1:-1, 2:]
+    edge = inside & ~core
+    sub = over8[tr.top : tr.top + tr.height, tr.left : tr.left + tr.width]
+    sub[edge] = (*hex_to_rgb8(lay.COAST), 217)
 
 
 def _labels_per_period(labels: Any, k: int, n_periods: int) -> tuple[tuple[str, ...], ...]:
@@ -458,10 +532,7 @@ def render_frames(
     labels: Sequence[str] | Sequence[Sequence[str]],
     period_labels: Sequence[str],
     *,
-    title: str = "",
-    subtitle: str = "",
-    caption: str = "",
-    notice: str | None = None,
+    text: lay.MapText | None = None,
     outlines: Sequence[Sequence[int]] | None = None,
     size: tuple[int, int] = (1280, 720),
     **kwargs: Any,
@@ -477,10 +548,7 @@ def render_frames(
         colours,
         labels,
         period_labels,
-        title=title,
-        subtitle=subtitle,
-        caption=caption,
-        notice=notice,
+        text=text,
         outlines=outlines,
         size=size,
         **kwargs,

@@ -21,7 +21,18 @@ import numpy as np
 
 from mapdrift.render.raster import MapTransform, fit_transform
 
-__all__ = ["Chrome", "Layout", "ScaleBar", "fit_font", "new_figure", "plan", "swatch_box"]
+__all__ = [
+    "Chrome",
+    "Layout",
+    "MapText",
+    "ScaleBar",
+    "Strip",
+    "fit_font",
+    "new_figure",
+    "plan",
+    "swatch_box",
+    "text_scale",
+]
 
 PAPER = "#ffffff"
 TEXT = "#1f1f1f"
@@ -30,6 +41,12 @@ FAINT = "#a0a0a0"
 RULE = "#cfcfcf"
 BOUNDARY = "#ffffff"
 OUTLINE = "#141414"
+#: Light halo drawn under the dark outline, so outlines show on the darkest classes too.
+HALO = "#ffffff"
+#: Edge of the mapped area against the paper, so pale classes at the edge stay visible.
+COAST = "#8f8f8f"
+#: Boundaries between units on maps whose fills are mostly blank (cluster maps).
+GREY_BOUNDARY = "#b5b5b0"
 NOTICE_FG = "#7a4100"
 NOTICE_BG = "#fdf1dc"
 FONT = "DejaVu Sans"
@@ -38,32 +55,105 @@ _MILE = 1609.344
 
 
 @dataclass(frozen=True)
-class Chrome:
-    """What the furniture says. ``labels`` has one tuple of class labels, or one per period.
+class MapText:
+    """Every word a map or frame shows besides its legend labels, in one object.
 
-    ``notice`` (e.g. the per-period-breaks warning) is shown boxed on every frame.
-    ``outline_label`` names the per-frame outlines in the legend (e.g. "jumped 2+ classes").
+    ``caption`` is the source line; ``notice`` (e.g. the per-period-breaks warning) is shown
+    boxed on every frame; ``outline_label`` names the per-frame outlines in the legend (e.g.
+    "jumped 2+ classes"); ``unit_noun`` is what the units are called in the legend and the
+    sentences ("tracts", "neighbourhoods"); ``min_text_px`` is the smallest text size in pixels
+    (18 for a picture shown on a 1920 x 1080 slide).
+
+    >>> MapText("Foreclosure filing rate", unit_noun="tracts").unit_noun
+    'tracts'
     """
 
-    colours: tuple[str, ...]
-    labels: tuple[tuple[str, ...], ...]
-    period_labels: tuple[str, ...]
     title: str = ""
     subtitle: str = ""
     caption: str = ""
     notice: str | None = None
     legend_title: str = ""
     nodata_label: str = "no data"
+    outline_label: str = ""
+    unit_noun: str = "units"
+    min_text_px: float = 0.0
+
+
+@dataclass(frozen=True)
+class Chrome:
+    """What the furniture shows. ``labels`` has one tuple of class labels, or one per period.
+
+    A label may have a second line after ``"\\n"`` (drawn smaller and muted, e.g. the trade
+    term under the words). ``marks`` gives, per class, a mark drawn on each unit of that class
+    (``"up"``, ``"down"``, ``"ring"``) or None for a plain fill; ``mark_colours`` their colours.
+    ``shares`` holds, per period, the share of units in each class and in no data: the period
+    strip draws one small stacked bar per period from it.
+    """
+
+    colours: tuple[str, ...]
+    labels: tuple[tuple[str, ...], ...]
+    period_labels: tuple[str, ...]
+    text: MapText = MapText()
     counts: bool = True
     timeline: bool = True
     north_arrow: bool = False
     scale_units: str = "km"
-    outline_label: str = ""
     callouts: bool = True
     show_period: bool = True
+    marks: tuple[str | None, ...] = ()
+    mark_colours: tuple[str, ...] = ()
+    shares: tuple[tuple[float, ...], ...] = ()
+    strip_skip: tuple[int, ...] = ()
+    strip_full: float = 1.0
+    boundary: str = "#ffffff"
 
     def labels_for(self, j: int) -> tuple[str, ...]:
         return self.labels[j] if len(self.labels) > 1 else self.labels[0]
+
+    @property
+    def title(self) -> str:
+        return self.text.title
+
+    @property
+    def subtitle(self) -> str:
+        return self.text.subtitle
+
+    @property
+    def caption(self) -> str:
+        return self.text.caption
+
+    @property
+    def notice(self) -> str | None:
+        return self.text.notice
+
+    @property
+    def legend_title(self) -> str:
+        return self.text.legend_title
+
+    @property
+    def nodata_label(self) -> str:
+        return self.text.nodata_label
+
+    @property
+    def outline_label(self) -> str:
+        return self.text.outline_label
+
+    def mark_of(self, i: int) -> str | None:
+        return self.marks[i] if i < len(self.marks) else None
+
+    @property
+    def strip_note(self) -> str:
+        """The legend's line about the strip when its bars leave classes out."""
+        if not self.strip_skip or not self.shares or not self.timeline:
+            return ""
+        return (
+            f"strip below the map: share of {self.text.unit_noun}\n"
+            f"in each kind of pattern; a full bar is {self.strip_full:.0%}"
+        )
+
+    @property
+    def two_line(self) -> bool:
+        return any("\n" in lab for row in self.labels for lab in row)
 
 
 @dataclass(frozen=True)
@@ -79,8 +169,24 @@ class ScaleBar:
 
 
 @dataclass(frozen=True)
+class Strip:
+    """The period strip: one stacked bar per period at ``xs`` (centres), ``bar_w`` wide, from
+    row ``top`` to ``top + height``; period labels start at ``label_y``."""
+
+    xs: tuple[float, ...]
+    bar_w: float
+    top: int
+    height: int
+    label_y: int
+
+
+@dataclass(frozen=True)
 class Layout:
-    """Pixel positions of every element (origin top left) and the map transform."""
+    """Pixel positions of every element (origin top left) and the map transform.
+
+    ``s`` scales the geometry of the frame; ``t`` scales its text (``t >= s``; larger when the
+    map text asks for a minimum text size, e.g. on slides).
+    """
 
     width: int
     height: int
@@ -93,36 +199,62 @@ class Layout:
     subtitle_size: float
     legend_top: int
     row_h: int
-    timeline_y: int | None
-    timeline_x: tuple[float, ...]
+    strip: Strip | None
     caption_y: int
+    caption_lines: tuple[str, ...]
     scale_bar: ScaleBar | None
     notice_top: int
     callout_top: int
     panel_bottom: int
+    t: float = 1.0
+    subtitle_lines: tuple[str, ...] = ()
     extras: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def small(self) -> float:
+        """Size of the smallest texts (caption, strip labels, counts header)."""
+        return 10.5 * self.t
+
+    @property
+    def body(self) -> float:
+        """Size of legend labels and counts."""
+        return 12.0 * self.t
+
+
+@functools.lru_cache(maxsize=1)
+def _renderer() -> Any:
+    from matplotlib.backends.backend_agg import RendererAgg
+
+    return RendererAgg(8, 8, 72)
 
 
 @functools.lru_cache(maxsize=4096)
 def _text_width(text: str, size: float, weight: str = "normal") -> float:
+    """Width in frame pixels of ``text`` as the Agg renderer draws it (dpi 72)."""
     from matplotlib.font_manager import FontProperties
-    from matplotlib.textpath import TextToPath
 
     prop = FontProperties(family=FONT, size=size, weight=weight)
-    w, _h, _d = TextToPath().get_text_width_height_descent(text, prop, ismath=False)
+    w, _h, _d = _renderer().get_text_width_height_descent(text, prop, ismath=False)
     return float(w)
 
 
 def fit_font(
-    text: str, size: float, width: float, *, weight: str = "normal", floor: float = 0.6
+    text: str,
+    size: float,
+    width: float,
+    *,
+    weight: str = "normal",
+    floor: float = 0.6,
+    min_size: float = 0.0,
 ) -> float:
-    """Largest font size <= ``size`` (down to ``floor * size``) at which ``text`` fits ``width``."""
+    """Largest font size <= ``size`` (down to ``floor * size`` and never below ``min_size``) at
+    which ``text`` fits ``width``."""
     if not text:
         return size
     w = _text_width(text, size, weight)
     if w <= width:
         return size
-    return max(size * floor, size * width / w * 0.98)
+    return max(size * floor, size * width / w * 0.98, min(min_size, size))
 
 
 def _nice_length(max_m: float, units: str) -> tuple[float, str]:
@@ -143,6 +275,14 @@ def _nice_length(max_m: float, units: str) -> tuple[float, str]:
     return best * unit_m, text
 
 
+def text_scale(size: tuple[int, int], min_text_px: float = 0.0) -> tuple[float, float]:
+    """``(s, t)``: geometry and text scale of a frame of ``size``; the smallest text (10.5 * t)
+    is at least ``min_text_px``."""
+    w, h = int(size[0]), int(size[1])
+    s = max(min(w / 1280.0, h / 720.0), 0.35)
+    return s, max(s, float(min_text_px) / 10.5)
+
+
 def plan(
     size: tuple[int, int],
     chrome: Chrome,
@@ -151,53 +291,73 @@ def plan(
     *,
     n_legend_rows: int | None = None,
 ) -> Layout:
-    """Place the header, map box, side panel and footer for a frame of ``size`` (width, height)."""
+    """Place the header, map box, side panel and footer for a frame of ``size`` (width, height).
+
+    The footer holds the period strip (one small stacked bar of class shares per period, the
+    current one marked per frame) and the source line, wrapped rather than shrunk below the
+    text floor.
+    """
     if chrome.scale_units not in ("km", "mi"):
         from mapdrift.errors import ConfigError
 
         raise ConfigError(f"scale units {chrome.scale_units!r} must be km or mi")
     w, h = int(size[0]), int(size[1])
-    s = max(min(w / 1280.0, h / 720.0), 0.35)
+    s, t = text_scale((w, h), chrome.text.min_text_px)
+    floor = max(chrome.text.min_text_px, 1.0)
     m = round(26 * s)
-    panel_w = round(min(300 * s, 0.38 * w))
+    panel_w = round(min(max(300 * t, 0.2 * w), 0.40 * w))
     gap = round(24 * s)
     panel_x = w - m - panel_w
     left_w = panel_x - gap - m
-    title_size = fit_font(chrome.title, 23 * s, left_w, weight="bold")
-    subtitle_size = fit_font(chrome.subtitle, 13.5 * s, left_w)
+    title_size = fit_font(chrome.title, 24 * t, left_w, weight="bold", min_size=floor)
+    # a long subtitle shrinks a little, then wraps (never below the text floor)
+    subtitle_size = fit_font(chrome.subtitle, 14 * t, left_w, floor=0.85, min_size=floor)
+    subtitle_lines = (
+        tuple(_wrap_px(chrome.subtitle, subtitle_size, left_w)) if chrome.subtitle else ()
+    )
     top = m + round(title_size * 1.25)
-    if chrome.subtitle:
-        top += round(subtitle_size * 1.6)
+    if subtitle_lines:
+        top += round(subtitle_size * (1.6 + 1.2 * (len(subtitle_lines) - 1)))
     top += round(14 * s)
+    small = 10.5 * t
+    caption_lines: tuple[str, ...] = ()
+    if chrome.caption:
+        caption_lines = tuple(_wrap_px(chrome.caption, small, w - 2 * m))
     caption_y = h - round(m * 0.75)
-    bottom = caption_y - round(16 * s) if chrome.caption else h - m
-    timeline_y = None
-    tl_x: tuple[float, ...] = ()
+    bottom = caption_y - round(len(caption_lines) * small * 1.3 + 6 * s) if caption_lines else h - m
+    strip = None
     n_p = len(chrome.period_labels)
     if chrome.timeline and n_p > 1:
-        timeline_y = bottom - round(22 * s)
-        bottom = timeline_y - round(30 * s)
+        bar_h = round(30 * t)
+        label_y = bottom - round(small * 1.25)
+        bar_top = label_y - round(4 * t) - bar_h
         x_a, x_b = m + 8 * s, m + left_w - 8 * s
-        tl_x = tuple(float(x) for x in np.linspace(x_a, x_b, n_p))
+        spacing = (x_b - x_a) / max(n_p - 1, 1)
+        bar_w = max(min(spacing * 0.62, 46 * t), 2.0)
+        xs = tuple(float(x) for x in np.linspace(x_a + bar_w / 2, x_b - bar_w / 2, n_p))
+        strip = Strip(xs=xs, bar_w=float(bar_w), top=bar_top, height=bar_h, label_y=label_y)
+        # room above the bars for the current period's label
+        bottom = bar_top - round(16 * t * 1.2 + 10 * s)
     else:
         bottom -= round(6 * s)
     map_w, map_h = max(left_w, 16), max(bottom - top, 16)
     transform = fit_transform(bounds, map_w, map_h, left=m, top=top)
-    # side panel
-    row_h = round(25 * s)
-    legend_top = m + round(64 * s) if chrome.show_period else m + round(4 * s)
+    # side panel: legend header, rows, notice, callouts, scale bar
+    row_h = round((40 if chrome.two_line else 26) * t)
+    legend_top = m + round(4 * s)
     rows = n_legend_rows if n_legend_rows is not None else len(chrome.colours) + 1
-    y = legend_top + round(22 * s) + rows * row_h + round(8 * s)
+    y = legend_top + round(24 * t) + rows * row_h + round(8 * s)
     if chrome.outline_label:
+        y += row_h
+    if chrome.strip_note:
         y += row_h
     notice_top = y + round(6 * s)
     if chrome.notice:
-        lines = _wrap(chrome.notice, 11 * s, panel_w - 20 * s)
-        y = notice_top + round(len(lines) * 11 * s * 1.35 + 18 * s)
+        lines = _wrap_px(chrome.notice, 11.5 * t, panel_w - 20 * t, bold=True)
+        y = notice_top + round(len(lines) * 11.5 * t * 1.35 + 18 * t)
     callout_top = y + round(10 * s)
-    # scale bar at the bottom of the panel, aligned with the map bottom
     res_m = transform.res * metres_per_unit
-    metres, text = _nice_length(min(panel_w * 0.62, 220 * s) * res_m, chrome.scale_units)
+    metres, text = _nice_length(min(panel_w * 0.62, 220 * t) * res_m, chrome.scale_units)
     bar_px = metres / res_m
     sb_y = transform.top + transform.height - round(8 * s)
     x0 = panel_x
@@ -205,32 +365,50 @@ def plan(
         x0=int(x0),
         x1=int(round(x0 + bar_px)),
         y=int(sb_y),
-        height=max(int(round(4 * s)), 2),
+        height=max(int(round(4 * t)), 2),
         metres=metres,
         label=text,
     )
-    panel_bottom = sb_y - round(34 * s)
+    panel_bottom = sb_y - round(34 * t)
     return Layout(
         width=w,
         height=h,
         s=s,
+        t=t,
         margin=m,
         transform=transform,
         panel_x=panel_x,
         panel_w=panel_w,
         title_size=title_size,
         subtitle_size=subtitle_size,
+        subtitle_lines=subtitle_lines,
         legend_top=legend_top,
         row_h=row_h,
-        timeline_y=timeline_y,
-        timeline_x=tl_x,
+        strip=strip,
         caption_y=caption_y,
+        caption_lines=caption_lines,
         scale_bar=scale,
         notice_top=notice_top,
         callout_top=callout_top,
         panel_bottom=panel_bottom,
         extras={"bar_px": bar_px},
     )
+
+
+def _wrap_px(text: str, size: float, width: float, *, bold: bool = False) -> list[str]:
+    """Greedy word wrap measured with the frame font (no line wider than ``width`` pixels)."""
+    weight = "bold" if bold else "normal"
+    lines: list[str] = []
+    cur = ""
+    for word in text.split():
+        trial = f"{cur} {word}".strip()
+        if not cur or _text_width(trial, size, weight) <= width:
+            cur = trial
+        else:
+            lines.append(cur)
+            cur = word
+    lines.append(cur)
+    return lines
 
 
 def _wrap(text: str, size: float, width: float) -> list[str]:
@@ -259,11 +437,9 @@ def new_figure(layout: Layout, *, transparent: bool) -> tuple[Any, Any]:
 
 def swatch_box(layout: Layout, row: int) -> tuple[float, float, float, float]:
     """(x, y, w, h) in pixels of the legend swatch of ``row`` (classes, then no data)."""
-    s = layout.s
-    y = layout.legend_top + round(22 * s) + row * layout.row_h
-    if row >= 0:
-        pass
-    return (layout.panel_x, y + round(3 * s), round(34 * s), layout.row_h - round(8 * s))
+    t = layout.t
+    y = layout.legend_top + round(24 * t) + row * layout.row_h
+    return (layout.panel_x, y + round(3 * t), round(34 * t), layout.row_h - round(8 * t))
 
 
 def nodata_row(chrome: Chrome) -> int:

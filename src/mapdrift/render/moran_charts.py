@@ -75,8 +75,9 @@ def moran_line_chart(
                markersize=8, label="not significant"),
         Line2D([], [], color=_MUTED, linestyle=(0, (5, 4)), label="expected under no pattern"),
     ]  # fmt: skip
-    ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(0, 1.02), ncol=3, frameon=False,
-              fontsize=11)  # fmt: skip
+    # above the plot area, so it never covers a period's marker
+    ax.legend(handles=handles, loc="lower left", bbox_to_anchor=(0, 1.0), ncol=3, frameon=False,
+              fontsize=11, borderaxespad=0.2)  # fmt: skip
     fig.text(0.08, 0.93, title, fontsize=20, fontweight="bold", color=_INK, va="baseline")
     if subtitle:
         fig.text(0.08, 0.885, subtitle, fontsize=13, color=_MUTED, va="baseline")

@@ -254,6 +254,19 @@ class LabelRaster:
                     tuple(ids[i] for i in small),
                 )
             )
+        tiny = np.setdiff1d(fields["dots"], small)
+        if tiny.size:
+            findings.append(
+                Finding(
+                    "note",
+                    "units-drawn-as-dots",
+                    f"{tiny.size:,} units are under {min_unit_px:g} pixels across at "
+                    f"{size_text or 'this size'} (e.g. {examples([ids[i] for i in tiny], 4)}); "
+                    f"they are drawn as {min_unit_px:g}-pixel dots with a ring so they stay "
+                    "visible",
+                    tuple(ids[i] for i in tiny),
+                )
+            )
         return cls(transform=transform, ss=ss, findings=tuple(findings), **fields)
 
     def colourise(self, unit_rgb: np.ndarray, outside: Any) -> np.ndarray:

@@ -71,8 +71,11 @@ def add_vector_map(
     outline_units: Sequence[int] | None = None,
     outline_width: float = 1.6,
     transform: Any = None,
+    boundary: str = lay.BOUNDARY,
 ) -> None:
     """Draw units as vector polygons: class colour by code, hatched no-data grey for ``-1``.
+
+    Outlines are a dark line on a light halo, so they show on every class colour.
 
     ``transform`` (a matplotlib transform) places the paths; default: the axes' data units.
     """
@@ -87,7 +90,7 @@ def add_vector_map(
             PathCollection(
                 [paths[i] for i in have],
                 facecolors=[colours[int(codes[i])] for i in have],
-                edgecolors=lay.BOUNDARY,
+                edgecolors=boundary,
                 linewidths=linewidth,
                 **place,
             )
@@ -97,7 +100,7 @@ def add_vector_map(
             PathCollection(
                 [paths[i] for i in none],
                 facecolors=NODATA,
-                edgecolors=lay.BOUNDARY,
+                edgecolors=boundary,
                 hatch="////",
                 hatchcolor=NODATA_HATCH,
                 linewidths=linewidth,
@@ -105,15 +108,16 @@ def add_vector_map(
             )
         )
     if outline_units is not None and len(outline_units):
-        ax.add_collection(
-            PathCollection(
-                [paths[int(i)] for i in outline_units],
-                facecolors="none",
-                edgecolors=lay.OUTLINE,
-                linewidths=outline_width,
-                **place,
+        for colour, width in ((lay.HALO, outline_width + 2.6), (lay.OUTLINE, outline_width)):
+            ax.add_collection(
+                PathCollection(
+                    [paths[int(i)] for i in outline_units],
+                    facecolors="none",
+                    edgecolors=colour,
+                    linewidths=width,
+                    **place,
+                )
             )
-        )
 
 
 def static_map(
@@ -123,27 +127,29 @@ def static_map(
     labels: Sequence[str],
     path: Path | str,
     *,
-    title: str,
-    subtitle: str = "",
-    caption: str = "",
-    legend_title: str = "",
-    nodata_label: str = "no data",
+    text: lay.MapText | None = None,
     counts: bool = True,
     outline_units: Sequence[int] | None = None,
-    outline_label: str = "outlined",
-    notice: str | None = None,
     size: tuple[int, int] = (1280, 720),
     names: Sequence[str] | None = None,
     north_arrow: bool = False,
     scale_units: str = "km",
-    min_unit_px: float = 0.0,
+    min_unit_px: float = 3.0,
+    marks: Sequence[str | None] | None = None,
+    mark_colours: Sequence[str] | None = None,
+    boundary: str | None = None,
     force: bool = False,
+    **words: Any,
 ) -> Path:
     """Write one categorical map to ``path`` (.png raster; .pdf/.svg vector) and return the path.
 
     ``codes`` has one category per unit (``-1`` = no data); the legend lists every category
-    with its count. ``outline_units`` (unit indices) are outlined and named in a callout when
-    ``names`` is given. Raises OutputExistsError if ``path`` exists and not ``force``.
+    with its count. ``text`` (:class:`~mapdrift.render.layout.MapText`) holds the words; its
+    fields may also be given as keywords (``title="..."``). ``outline_units`` (unit indices)
+    are outlined (dark line on a light halo) and named in a callout when ``names`` is given.
+    ``marks``/``mark_colours`` draw the units of some classes as marks (see
+    :class:`~mapdrift.render.frames.FrameRenderer`). Raises OutputExistsError if ``path``
+    exists and not ``force``.
     """
     from mapdrift.render.frames import FrameRenderer
 
@@ -157,20 +163,16 @@ def static_map(
         raise OutputExistsError(f"{path} exists; pass --force to overwrite it")
     codes = np.asarray(codes).reshape(-1, 1)
     outlines = [list(outline_units)] if outline_units is not None else None
+    if outlines is not None and not (text and text.outline_label) and "outline_label" not in words:
+        words["outline_label"] = "outlined"
     r = FrameRenderer(
         geometry,
         codes,
         colours,
         labels,
         [""],
-        title=title,
-        subtitle=subtitle,
-        caption=caption,
-        notice=notice,
-        legend_title=legend_title,
-        nodata_label=nodata_label,
+        text=text,
         outlines=outlines,
-        outline_label=outline_label,
         names=names,
         size=size,
         counts=counts,
@@ -179,6 +181,10 @@ def static_map(
         scale_units=scale_units,
         min_unit_px=min_unit_px,
         show_period=False,
+        marks=marks,
+        mark_colours=mark_colours,
+        boundary=boundary,
+        **words,
     )
     try:
         if suffix == ".png":
@@ -211,7 +217,8 @@ def _vector(r: Any, geometry: Any, path: Path, outline_units: Sequence[int] | No
         r.colours,
         linewidth=width,
         outline_units=outline_units,
-        outline_width=1.7 * L.s,
+        outline_width=fur.outline_widths(L)[1],
+        boundary=r.chrome.boundary,
     )
     fur.draw_static(ax, L, r.chrome, nodata_hatch=True)
     dyn = fur.DynamicArtists(ax, L, r.chrome)
@@ -220,7 +227,16 @@ def _vector(r: Any, geometry: Any, path: Path, outline_units: Sequence[int] | No
         [r.names[int(u)] for u in outline_units] if (r.names and outline_units is not None) else []
     )
     dyn.outlines.set_visible(False)  # outlines are drawn as vector paths above
-    dyn.update(0, counts, nodata, callouts=call, n_outlined=len(call))
+    dyn.halo.set_visible(False)
+    marks = []
+    if r.chrome.marks:
+        from mapdrift.render.frames import _mark_points
+
+        xy = _mark_points(np.asarray(getattr(geometry, "values", geometry), dtype=object), tr)
+        for i, kind in enumerate(r.chrome.marks):
+            if kind:
+                marks.append((kind, r.chrome.mark_colours[i], xy[r.codes[:, 0] == i]))
+    dyn.update(0, counts, nodata, callouts=call, n_outlined=len(call), marks=marks)
     with atomic_path(path) as tmp:
         fig.savefig(tmp, format=path.suffix.lower().lstrip("."), dpi=72)
     fig.clear()

@@ -22,7 +22,7 @@ import numpy as np
 
 from mapdrift.atomic import atomic_path
 
-__all__ = ["class_flow", "transition_heatmap"]
+__all__ = ["class_flow", "spread_labels", "transition_heatmap"]
 
 _INK = "#222222"
 _MUTED = "#666666"
@@ -40,14 +40,18 @@ def _figure(size: tuple[int, int], dpi: int) -> tuple[Any, Any]:
     return fig, fig.add_axes((0.0, 0.0, 1.0, 1.0))
 
 
-def _headings(fig: Any, title: str, subtitle: str, caption: str, notice: str | None) -> None:
-    fig.text(0.03, 0.955, title, fontsize=17, fontweight="bold", color=_INK, va="top")
+def _headings(
+    fig: Any, title: str, subtitle: str, caption: str, notice: str | None, h_px: float = 720
+) -> None:
+    """Title, subtitle, caption and notice at fixed distances (design pixels) from the edges
+    of a figure ``h_px`` design pixels high, so larger text (a higher dpi) never collides."""
+    fig.text(0.03, 1 - 32 / h_px, title, fontsize=17, fontweight="bold", color=_INK, va="top")
     if subtitle:
-        fig.text(0.03, 0.905, subtitle, fontsize=11.5, color=_MUTED, va="top")
-    y = 0.02
+        fig.text(0.03, 1 - 68 / h_px, subtitle, fontsize=11.5, color=_MUTED, va="top")
+    y = 14 / h_px
     if caption:
         fig.text(0.03, y, caption, fontsize=9, color=_MUTED, va="bottom")
-        y += 0.035
+        y += 25 / h_px
     if notice:
         fig.text(0.03, y, notice, fontsize=10, color="#8a1c1c", fontweight="bold", va="bottom")
 
@@ -77,6 +81,7 @@ def transition_heatmap(
     cmap: str = "Blues",
     size: tuple[int, int] = (1280, 720),
     dpi: int = 100,
+    unit_noun: str = "units",
 ) -> Path:
     """Draw the k x k transition matrix with the count and the row share in every cell.
 
@@ -91,13 +96,14 @@ def transition_heatmap(
     k = counts.shape[0]
     labels = list(labels)
     fig, ax = _figure(size, dpi)
-    _headings(fig, title, subtitle, caption, notice)
+    _headings(fig, title, subtitle, caption, notice, size[1] * 100 / dpi)
     rows = counts.sum(axis=1)
     share = np.divide(counts, rows[:, None], out=np.zeros_like(counts), where=rows[:, None] > 0)
     cm = colormaps[cmap]
-    # matrix area: leave room for row labels on the left and headings above
-    w_px, h_px = size
-    top, bottom = 0.80, 0.17
+    # matrix area: leave room for row labels on the left and headings above (figure pixels at
+    # the 100-dpi design size, so a larger dpi only makes the text larger)
+    w_px, h_px = size[0] * 100 / dpi, size[1] * 100 / dpi
+    top, bottom = 1 - 150 / h_px, 122 / h_px  # room for headings and the rotated labels
     cell = min((top - bottom) * h_px / k, 0.62 * w_px / k)
     x0 = 0.30 * w_px
     y_top = top * h_px
@@ -142,7 +148,7 @@ def transition_heatmap(
             ax.text(
                 x0 + k * cell / 2,
                 y + cell / 2,
-                "no unit started in this class",
+                f"none of the {unit_noun} started in this class",
                 ha="center",
                 va="center",
                 fontsize=fs * 0.85,
@@ -197,6 +203,23 @@ def transition_heatmap(
         color=_MUTED,
     )
     return _save(fig, Path(path), dpi)
+
+
+def spread_labels(want: Sequence[float], pitch: float, lo: float, hi: float) -> list[float]:
+    """Label positions as close as possible to ``want`` (ascending) but at least ``pitch``
+    apart, kept inside ``[lo, hi]`` where there is room: a forward then a backward pass."""
+    ys = list(want)
+    for i in range(1, len(ys)):
+        ys[i] = max(ys[i], ys[i - 1] + pitch)
+    if ys and ys[-1] > hi:
+        ys[-1] = hi
+        for i in range(len(ys) - 2, -1, -1):
+            ys[i] = min(ys[i], ys[i + 1] - pitch)
+    if ys and ys[0] < lo:
+        ys[0] = lo
+        for i in range(1, len(ys)):
+            ys[i] = max(ys[i], ys[i - 1] + pitch)
+    return ys
 
 
 def _ribbon(
@@ -260,12 +283,14 @@ def class_flow(
     notice: str | None = None,
     size: tuple[int, int] = (1280, 720),
     dpi: int = 100,
+    unit_noun: str = "units",
 ) -> Path:
     """Alluvial-style flow from the class shares of the first period to those of the last.
 
     ``counts[i, j]``: units in class ``i`` in the first period and ``j`` in the last (only
     units with data in both). Bars are stacked with the highest class on top; ribbons take the
-    colour of the class they leave. Classes with no unit get no bar.
+    colour of the class they leave. Classes with no unit get no bar. Labels of thin bars are
+    spread apart so they never overlap, with a leader line to their bar when moved.
     """
     from matplotlib.patches import Rectangle
 
@@ -273,9 +298,9 @@ def class_flow(
     k = counts.shape[0]
     labels = list(labels)
     fig, ax = _figure(size, dpi)
-    _headings(fig, title, subtitle, caption, notice)
+    _headings(fig, title, subtitle, caption, notice, size[1] * 100 / dpi)
     total = counts.sum()
-    w_px, h_px = size
+    w_px, h_px = size[0] * 100 / dpi, size[1] * 100 / dpi  # design pixels (100 dpi)
     ax.set_xlim(0, w_px)
     ax.set_ylim(0, h_px)
     ax.axis("off")
@@ -283,14 +308,14 @@ def class_flow(
         ax.text(
             w_px / 2,
             h_px / 2,
-            "no unit has data in both periods",
+            f"none of the {unit_noun} has data in both periods",
             ha="center",
             va="center",
             fontsize=14,
             color=_MUTED,
         )
         return _save(fig, Path(path), dpi)
-    top, bottom = 0.82 * h_px, 0.16 * h_px
+    top, bottom = h_px - 130, 115.0
     gap = 6.0 if k > 1 else 0.0
     scale = (top - bottom - gap * (k - 1)) / total
     bar_w = 0.035 * w_px
@@ -323,20 +348,26 @@ def class_flow(
             alpha = 0.85 if i == j else 0.6
             _ribbon(ax, xl + bar_w, xr, ly, ry, colours[i], alpha)
     fs = 10.5
+    line = fs * 100 / 72 * 1.35  # label pitch in design pixels
     for side, spans, x, ha, sums in (
         ("l", left, xl, "right", counts.sum(axis=1)),
         ("r", right, xr, "left", counts.sum(axis=0)),
     ):
-        for i, (y0, y1) in enumerate(spans):
-            if sums[i] <= 0:
-                continue
+        shown = [i for i in range(k) if sums[i] > 0]
+        want = [(spans[i][0] + spans[i][1]) / 2 for i in shown]
+        ys = spread_labels(want, line, bottom, top)
+        for i, y in zip(shown, ys):
+            y0, y1 = spans[i]
             ax.add_patch(
                 Rectangle((x, y0), bar_w, y1 - y0, facecolor=colours[i], edgecolor=_INK, lw=0.6)
             )
-            tx = x - 8 if side == "l" else x + bar_w + 8
+            tx = x - 22 if side == "l" else x + bar_w + 22
+            anchor = x - 3 if side == "l" else x + bar_w + 3
+            mid = (y0 + y1) / 2
+            ax.plot([anchor, tx + (4 if side == "l" else -4)], [mid, y], color=_MUTED, lw=0.7)
             ax.text(
                 tx,
-                (y0 + y1) / 2,
+                y,
                 f"{labels[i]}  {_pct(sums[i] / total)}",
                 ha=ha,
                 va="center",
@@ -367,7 +398,7 @@ def class_flow(
     ax.text(
         w_px / 2,
         bottom - 22,
-        f"{int(total):,} units with data in both periods; "
+        f"{int(total):,} {unit_noun} with data in both periods; "
         f"{stayed:.0%} ended in the class they started in",
         ha="center",
         va="top",
