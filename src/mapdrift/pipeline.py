@@ -606,19 +606,7 @@ def _step_brief(state: RunState) -> str:
     from mapdrift.brief.report import write_report
 
     formats = state.section(BriefSpec, "brief").formats
-    inputs = BriefInputs(
-        panel=state.panel,
-        classes=state.classes,
-        changes=state.results.get("changes"),
-        clusters=state.results.get("clusters"),
-        whatsnew=state.results.get("whatsnew"),
-        findings=tuple(state.findings),
-        notice=state.notice,
-        folder=state.staging,
-        spec=state.section(BriefSpec, "brief"),
-        previous=state.run.previous,
-        rebreak=state.run.rebreak,
-    )
+    inputs = BriefInputs.from_run(state)
     brief = build_brief(inputs)
     done = []
     if "html" in formats:

@@ -365,6 +365,7 @@ def payload_from_state(state: Any, *, raster_px: int = DEFAULT_RASTER_PX) -> dic
     (load, classify; changes and clusters when they ran)."""
     from mapdrift.brief.assemble import method
     from mapdrift.brief.content import CAUTIONS
+    from mapdrift.brief.inputs import BriefInputs
     from mapdrift.clusters import ClusterOptions
     from mapdrift.clusters.labels import LABELS
     from mapdrift.config import BriefSpec
@@ -400,7 +401,7 @@ def payload_from_state(state: Any, *, raster_px: int = DEFAULT_RASTER_PX) -> dic
         subtitle=brief.subtitle or panel.meta.unit_label or "",
         source=brief.source or panel.meta.source,
         notice=" ".join(x for x in (state.notice, getattr(state, "view", "")) if x) or None,
-        method=tuple(f"{k}: {v}" for k, v in method(state)),
+        method=tuple(f"{k}: {v}" for k, v in method(BriefInputs.from_run(state))),
         cautions=CAUTIONS,
     )
     return build_payload(panel, state.classes, extras, raster_px=raster_px)

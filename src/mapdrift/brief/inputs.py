@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from mapdrift.config import BriefSpec
 
@@ -60,6 +60,24 @@ class BriefInputs:
         if self.notice is None:
             object.__setattr__(self, "notice", self.classes.warning)
         object.__setattr__(self, "folder", Path(self.folder))
+
+    @classmethod
+    def from_run(cls, state: Any) -> BriefInputs:
+        """The inputs of a pipeline run (its ``RunState`` after the steps ran); the one place
+        that reads the run's working state for the briefing."""
+        return cls(
+            panel=state.panel,
+            classes=state.classes,
+            changes=state.results.get("changes"),
+            clusters=state.results.get("clusters"),
+            whatsnew=state.results.get("whatsnew"),
+            findings=tuple(state.findings),
+            notice=state.notice,
+            folder=state.staging,
+            spec=state.section(BriefSpec, "brief"),
+            previous=state.run.previous,
+            rebreak=state.run.rebreak,
+        )
 
     @property
     def view(self) -> str:
