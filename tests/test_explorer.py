@@ -563,3 +563,92 @@ def test_per_period_breaks_say_so(grid_run, tmp_path, browser):
     p.pg.keyboard.press("Home")
     assert "Breaks differ by period" in p.pg.locator("#md-compare").inner_text()
     assert p.console == [] and p.requests == [p.url]
+
+
+# ------------------------------------------------------------------------------------------
+# the local-cluster view
+# ------------------------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def cluster_run(grid_run, tmp_path_factory):
+    """A full run of the grid (its clusters.csv is the reference) and its explorer page."""
+    from mapdrift.config import load_config
+    from mapdrift.pipeline import run
+
+    cfg = load_config(grid_run / "run.toml").with_values("brief", {"formats": ["explorer"]})
+    res = run(cfg, out=tmp_path_factory.mktemp("clusterrun") / "run")
+    table = pd.read_csv(res.out / "clusters.csv", comment="#", dtype={"unit": str, "period": str})
+    return res.out, table
+
+
+def test_cluster_view_draws_the_palette_look_and_counts_the_csv(browser, cluster_run, explored):
+    from mapdrift import palettes
+
+    out, table = cluster_run
+    _, panel, _ = explored
+    p = Page(browser, out / "explorer.html")
+    p.pg.click("#md-view-clusters")
+    assert p.pg.get_attribute("#md-map", "data-view") == "clusters"
+    pts = {u: p.raster_xy(g) for u, g in zip(panel.units, panel.geometry)}
+    checked = {"high-high": 0, "not significant": 0}
+    p.pg.locator("#md-strip").focus()
+    p.pg.keyboard.press("Home")
+    for j, label in enumerate(panel.period_labels):
+        if j:
+            p.pg.keyboard.press("ArrowRight")
+        assert p.period() == label
+        rows = table[table["period"] == str(label)]
+        # legend counts per label equal the run's clusters.csv for this period
+        items = p.pg.eval_on_selector_all(
+            "#md-legend li",
+            "els => els.map(e => [e.dataset.label, e.querySelector('.n').textContent])",
+        )
+        got = {lab: int(n) for lab, n in items}
+        want = rows["label"].fillna("no data").value_counts().to_dict()
+        assert {k: v for k, v in got.items() if v} == want, (label, got, want)
+        # pixels at interiors: high-high filled with its palette colour, not significant blank
+        units = rows.loc[rows["label"].isin(list(checked)), ["unit", "label"]].to_numpy()
+        px = p.pixels([pts[u] for u, _ in units])
+        for (u, lab), rgba in zip(units, px):
+            assert rgba == _rgb(palettes.CLUSTER_LOOK[lab][0]) + [255], (label, u, lab, rgba)
+            checked[lab] += 1
+    assert checked["high-high"] > 0 and checked["not significant"] > 0, checked
+    # the words of palettes.CLUSTER_WORDS, in the legend and in the hover text
+    words = palettes.CLUSTER_WORDS["high-high"].split("\n")
+    legend = p.pg.locator("#md-legend").inner_text()
+    assert words[0] in legend and words[1] in legend
+    hh = table[table["label"] == "high-high"].iloc[-1]
+    p.pg.keyboard.press("End")
+    p.pg.keyboard.press("Home")
+    j = list(map(str, panel.period_labels)).index(str(hh["period"]))
+    for _ in range(j):
+        p.pg.keyboard.press("ArrowRight")
+    p.pg.mouse.move(*p.client_xy(pts[hh["unit"]]))
+    assert words[0] in p.pg.locator("#md-tip").inner_text()
+    # back to classes: the run's class colours again
+    p.pg.click("#md-view-classes")
+    assert p.pg.get_attribute("#md-map", "data-view") == "classes"
+    assert p.console == [] and p.requests == [p.url]
+
+
+def test_cluster_look_travels_from_palettes(cluster_run):
+    from mapdrift import palettes
+    from mapdrift.clusters.labels import LABELS
+
+    out, _ = cluster_run
+    data = _data(out / "explorer.html")
+    look = data["clusterLook"]
+    assert [x["label"] for x in look] == list(LABELS)
+    for x in look:
+        fill, mark, colour = palettes.CLUSTER_LOOK[x["label"]]
+        assert (x["fill"], x["mark"], x["markColour"]) == (fill, mark, colour)
+        assert "\n".join(t for t in (x["words"], x["term"]) if t) == palettes.CLUSTER_WORDS[x["label"]]
+    # no cluster colour is written into the page's script: they come from the data block
+    from mapdrift.brief.explorer import _asset
+
+    script = _asset("explorer.js").lower()
+    for fill, _, colour in palettes.CLUSTER_LOOK.values():
+        assert fill.lower() not in script and colour.lower() not in script
+    # interior points lie inside their unit on the label raster
+    lab = _unpack(data["arrays"]["label"]).reshape(data["raster"]["height"], -1)
+    x, y = _unpack(data["arrays"]["ptX"]), _unpack(data["arrays"]["ptY"])
+    assert np.array_equal(lab[y, x], np.arange(len(data["units"])))

@@ -197,6 +197,31 @@ def _describe(b: Any) -> str:
     return describe(b)
 
 
+def _cluster_look(labels: Sequence[str]) -> list[dict[str, Any]]:
+    """How the page draws each cluster label, in code order: fill, mark (``"up"``, ``"down"``,
+    ``"ring"`` or None), mark colour, the words and the trade term beneath them, all from
+    :mod:`mapdrift.palettes` so the page and the static maps share one look."""
+    from mapdrift import palettes
+
+    out = []
+    for label in labels:
+        fill, mark, mark_colour = palettes.CLUSTER_LOOK.get(
+            label, (palettes.CLUSTER_BLANK, None, palettes.CLUSTER_BLANK)
+        )
+        words, _, term = palettes.CLUSTER_WORDS.get(label, label).partition("\n")
+        out.append(
+            {
+                "label": label,
+                "fill": fill,
+                "mark": mark,
+                "markColour": mark_colour,
+                "words": words,
+                "term": term,
+            }
+        )
+    return out
+
+
 def build_payload(
     panel: Any,
     classes: Any,
@@ -213,6 +238,7 @@ def build_payload(
     they can still be seen and pointed at.
     """
     from mapdrift import palettes
+    from mapdrift.render.layout import GREY_BOUNDARY
     from mapdrift.render.raster import LabelRaster, fit_transform
 
     ex = extras or ExplorerExtras()
@@ -251,6 +277,13 @@ def build_payload(
         arrays["base"] = pack_array(_period_major(ex.base), "float64")
     if ex.cluster_codes is not None:
         arrays["clusters"] = pack_array(_period_major(ex.cluster_codes), "int8")
+        # where each unit's outlier mark goes: a point inside it (shapely's representative
+        # point, which lies inside even a crescent), in raster pixels
+        pts = panel.geometry.representative_point()
+        px = np.clip(np.floor((pts.x.to_numpy() - transform.x0) / transform.res), 0, transform.width - 1)
+        py = np.clip(np.floor((transform.y1 - pts.y.to_numpy()) / transform.res), 0, transform.height - 1)
+        arrays["ptX"] = pack_array(px.astype(np.int32), "int32")
+        arrays["ptY"] = pack_array(py.astype(np.int32), "int32")
     size, cred, cred_known = _jump_arrays(ex.jumps, units, periods)
     if ex.jumps is not None:
         arrays["jumps"] = pack_array(_period_major(size), "int8")
@@ -292,6 +325,9 @@ def build_payload(
         "nodata": palettes.NODATA,
         "hatch": palettes.NODATA_HATCH,
         "clusterLabels": list(ex.cluster_labels),
+        "clusterLook": _cluster_look(ex.cluster_labels),
+        "clusterBlank": palettes.CLUSTER_BLANK,
+        "clusterLine": GREY_BOUNDARY,
         "jumpThreshold": ex.jump_threshold,
         "credibleKnown": cred_known,
         "smoothing": ex.smoothing,

@@ -15,7 +15,8 @@
   var A = {};                       // typed arrays, unpacked
   var S = {
     period: P - 1, scheme: 'run', k: D.run.k, hover: -1, pinned: -1,
-    selected: [], brush: null, filter: 'all', playing: false, timer: 0, zoom: 1
+    selected: [], brush: null, filter: 'all', playing: false, timer: 0, zoom: 1,
+    view: 'classes', markPx: 10
   };
   var cache = {};                   // classes per scheme/k (Int8Array, period-major)
   var changedAll = {};              // unit-periods whose class differs from the run's, per scheme/k
@@ -60,6 +61,12 @@
   var ND_RGB = hexRgb(D.nodata), HATCH_RGB = hexRgb(D.hatch);
   var ND32 = pack32(ND_RGB), HATCH32 = pack32(HATCH_RGB);
   var ND_F32 = pack32(fade(ND_RGB)), HATCH_F32 = pack32(fade(HATCH_RGB));
+  // the cluster look comes from Python (mapdrift.palettes): fills, marks and words per label
+  var CL = D.clusterLook || [];
+  var CL32 = CL.map(function (l) { return pack32(hexRgb(l.fill)); });
+  var CL_F32 = CL.map(function (l) { return pack32(fade(hexRgb(l.fill))); });
+  function rgbCss(rgb) { return 'rgb(' + rgb.join(',') + ')'; }
+  function clusterView() { return S.view === 'clusters' && !!A.clusters; }
 
   function schemeInfo() {
     if (S.scheme === 'run') {
@@ -131,7 +138,8 @@
   function clusterText(u, j) {
     if (!A.clusters) return null;
     var c = clusterAt(u, j);
-    var t = c < 0 ? 'no data' : (D.clusterLabels[c] || String(c));
+    var l = CL[c];
+    var t = c < 0 ? 'no data' : l ? l.words + (l.term ? ' (' + l.term + ')' : '') : (D.clusterLabels[c] || String(c));
     if (enteredHH(u, j)) t += ' (entered this period)';
     return t;
   }
@@ -159,6 +167,10 @@
       return function (u) { return cls[off + u] === c; };
     }
     if (name === 'nodata') return function (u) { return valueAt(u, j) !== valueAt(u, j); };
+    if (name.indexOf('cluster:') === 0) {
+      var k = +name.slice(8);
+      return function (u) { return clusterAt(u, j) === k; };
+    }
     return null;
   }
   function emphasis() {
@@ -182,8 +194,10 @@
   }
   function redraw() {
     var t0 = performance.now();
-    var info = schemeInfo(), cls = classesNow(), off = S.period * N;
-    var pal = info.colours.map(hexRgb), p32 = pal.map(pack32), f32 = pal.map(function (c) { return pack32(fade(c)); });
+    var cv = clusterView(), info = schemeInfo(), off = S.period * N;
+    var cls = cv ? A.clusters : classesNow();
+    var pal = info.colours.map(hexRgb), p32 = cv ? CL32 : pal.map(pack32);
+    var f32 = cv ? CL_F32 : pal.map(function (c) { return pack32(fade(c)); });
     emph = emphasis();
     lut[0] = 0;
     var nd = [];
@@ -212,11 +226,74 @@
       }
     }
     mapCtx.putImageData(mapImg, 0, 0);
+    if (cv) drawClusterMarks(mapCtx, off);
     var ms = performance.now() - t0;
     performance.measure('md-redraw', { start: t0, duration: ms });
     $('md-map').dataset.redrawMs = ms.toFixed(2);
     $('md-map').dataset.period = D.periods[S.period];
     $('md-map').dataset.scheme = S.scheme + ':' + (S.scheme === 'run' ? D.run.k : S.k);
+    $('md-map').dataset.view = cv ? 'clusters' : 'classes';
+  }
+
+  // ---------------------------------------------------------------- cluster marks
+  // an outlier is a triangle (up: high among low, down: low among high) and a unit without
+  // neighbours a small ring, at the unit's interior point, at a fixed size on screen
+  function markPath(ctx, mark, x, y, s) {
+    if (mark === 'up' || mark === 'down') {
+      var d = mark === 'up' ? 1 : -1;
+      ctx.moveTo(x, y - d * s * 0.62); ctx.lineTo(x - s * 0.6, y + d * s * 0.42); ctx.lineTo(x + s * 0.6, y + d * s * 0.42);
+      ctx.closePath();
+    } else if (mark === 'ring') {
+      ctx.moveTo(x + s * 0.34, y); ctx.arc(x, y, s * 0.34, 0, 2 * Math.PI);
+    }
+  }
+  function paintMarks(ctx, mark, colour, pts, s) {
+    if (!pts.length) return;
+    ctx.beginPath();
+    for (var i = 0; i < pts.length; i += 2) markPath(ctx, mark, pts[i], pts[i + 1], s);
+    ctx.lineJoin = 'round';
+    if (mark === 'ring') {
+      ctx.strokeStyle = D.clusterBlank; ctx.lineWidth = Math.max(2.5, s * 0.34); ctx.stroke();
+      ctx.strokeStyle = colour; ctx.lineWidth = Math.max(1.2, s * 0.16); ctx.stroke();
+    } else {
+      // a thin paper-coloured halo keeps a mark apart from a neighbour's fill
+      ctx.strokeStyle = D.clusterBlank; ctx.lineWidth = Math.max(1.5, s * 0.16); ctx.stroke();
+      ctx.fillStyle = colour; ctx.fill();
+    }
+  }
+  function drawClusterMarks(ctx, off) {
+    // one path per label and emphasis, from the precomputed interior points (one pass)
+    var groups = {}, codes = A.clusters, s = S.markPx;
+    for (var u = 0; u < N; u++) {
+      var c = codes[off + u], l = c >= 0 ? CL[c] : null;
+      if (!l || !l.mark) continue;
+      var key = c + (emph && emph[u] !== 1 ? 'f' : '');
+      (groups[key] = groups[key] || []).push(A.ptX[u] + 0.5, A.ptY[u] + 0.5);
+    }
+    Object.keys(groups).forEach(function (key) {
+      var l = CL[parseInt(key, 10)], rgb = hexRgb(l.markColour);
+      paintMarks(ctx, l.mark, rgbCss(key.slice(-1) === 'f' ? fade(rgb) : rgb), groups[key], s);
+    });
+  }
+  function swatch(look) {
+    // the legend's sample: the fill, with the mark drawn as on the map
+    var cv = el('canvas', null, 'sw'), dpr = window.devicePixelRatio || 1;
+    cv.width = Math.round(22 * dpr); cv.height = Math.round(16 * dpr);
+    var ctx = cv.getContext('2d'); ctx.scale(dpr, dpr);
+    ctx.fillStyle = look.fill; ctx.fillRect(0, 0, 22, 16);
+    if (look.mark) paintMarks(ctx, look.mark, look.markColour, [11, 8], 12);
+    return cv;
+  }
+  var cCounts = null; // [P][labels + 1] units per cluster label and no data
+  function clusterCounts() {
+    if (!A.clusters) return;
+    var L = CL.length;
+    cCounts = [];
+    for (var j = 0; j < P; j++) {
+      var c = new Array(L + 1).fill(0), off = j * N;
+      for (var u = 0; u < N; u++) { var x = A.clusters[off + u]; c[x < 0 || x >= L ? L : x]++; }
+      cCounts.push(c);
+    }
   }
 
   var bx0, by0, bx1, by1;            // bounding box of each unit in raster pixels
@@ -234,8 +311,12 @@
     }
   }
   function drawLines() {
+    // white boundaries between classes; grey ones on the cluster map, where most units are
+    // almost paper and would otherwise run together
     var cv = $('md-lines'), ctx = cv.getContext('2d'), img = ctx.createImageData(W, H);
-    var px = new Int32Array(img.data.buffer), lab = A.label, line = (180 << 24) | 0xffffff;
+    var g = hexRgb(D.clusterLine || '#ffffff');
+    var line = clusterView() ? pack32(g) : (180 << 24) | 0xffffff;
+    var px = new Int32Array(img.data.buffer), lab = A.label;
     var i = 0;
     for (var y = 0; y < H; y++) {
       for (var x = 0; x < W; x++, i++) {
@@ -286,6 +367,7 @@
     var availW = wrap.clientWidth - 2, availH = Math.max(window.innerHeight * 0.72, 240);
     var base = Math.min(availW, availH * W / H);
     var w = Math.floor(base * S.zoom), h = Math.floor(w * H / W);
+    S.markPx = Math.max(6, Math.round(11 * W / Math.max(base, 1))); // about 11 screen px at 1x
     stack.style.width = w + 'px'; stack.style.height = h + 'px';
     stack.classList.toggle('pixelated', w > W * 1.5);
     $('md-zoom-level').textContent = S.zoom + '\u00d7';
@@ -363,9 +445,11 @@
     var info = schemeInfo(), k = info.colours.length, top = 4, bottom = 18, bh = g.h - top - bottom;
     var colW = g.w / P, gap = Math.min(4, colW * 0.2);
     ctx.clearRect(0, 0, g.w, g.h);
+    var clv = clusterView();
     for (var j = 0; j < P; j++) {
       var x = j * colW + gap / 2, w = colW - gap, y = top + bh, c = counts[j];
-      for (var i = 0; i <= k; i++) {
+      if (clv) { stripClusterBar(ctx, j, x, w, top, bh); }
+      else for (var i = 0; i <= k; i++) {
         var hgt = bh * c[i] / Math.max(N, 1);
         ctx.fillStyle = i < k ? info.colours[i] : D.nodata;
         ctx.fillRect(x, y - hgt, w, hgt);
@@ -385,14 +469,70 @@
     }
     var strip = $('md-strip');
     strip.setAttribute('aria-valuemin', '0'); strip.setAttribute('aria-valuemax', String(P - 1));
-    strip.setAttribute('aria-valuenow', String(S.period)); strip.setAttribute('aria-valuetext', D.periods[S.period]);
+    strip.setAttribute('aria-valuenow', String(S.period)); strip.setAttribute('aria-valuetext', D.periods[S.period] + (clv ? ': ' + coreShares(S.period) : ''));
+    strip.title = clv ? 'Bars: share of units in high-high (top) and low-low (bottom) cores per period. ' + D.periods[S.period] + ': ' + coreShares(S.period) : '';
+  }
+
+  function coreScale() {
+    // the bars' top: the largest share of units in the two cores over all periods, rounded
+    // up to 5%, so that small shares still show (the compare line says the scale)
+    var m = 0;
+    for (var j = 0; j < P; j++) m = Math.max(m, (cCounts[j][0] + (CL[1] ? cCounts[j][1] : 0)) / Math.max(N, 1));
+    return Math.min(1, Math.max(0.05, Math.ceil(m * 20) / 20));
+  }
+  function coreShares(j) {
+    return [0, 1].filter(function (i) { return CL[i]; }).map(function (i) {
+      return CL[i].term + ' ' + Math.round(100 * cCounts[j][i] / Math.max(N, 1)) + '%';
+    }).join(', ');
+  }
+  function stripClusterBar(ctx, j, x, w, top, bh) {
+    // the period's shares of the two cores: low-low from the bottom, high-high above it, the
+    // rest of the units blank (outlined so an empty period still shows its bar)
+    var c = cCounts[j], y = top + bh, scale = coreScale();
+    ctx.fillStyle = D.clusterBlank; ctx.fillRect(x, top, w, bh);
+    ctx.strokeStyle = D.clusterLine; ctx.lineWidth = 1; ctx.strokeRect(x + 0.5, top + 0.5, w - 1, bh - 1);
+    [1, 0].forEach(function (i) {
+      if (!CL[i]) return;
+      var hgt = bh * c[i] / Math.max(N, 1) / scale;
+      ctx.fillStyle = CL[i].fill; ctx.fillRect(x, y - hgt, w, hgt); y -= hgt;
+    });
   }
 
   // ---------------------------------------------------------------- legend
+  function legendItems() {
+    // [swatch look or colour, words, trade term, count, filter name] for the current view
+    var j = S.period, items = [];
+    if (clusterView()) {
+      var cc = cCounts[j];
+      CL.forEach(function (l, i) { items.push([l, l.words, l.term, cc[i], 'cluster:' + i]); });
+      items.push([null, 'no data', '', cc[CL.length], 'cluster:-1']);
+      return items;
+    }
+    var info = schemeInfo(), labels = labelsAt(info, j), c = counts[j];
+    info.colours.forEach(function (col, i) { if (i < labels.length) items.push([col, labels[i], '', c[i], 'class:' + i]); });
+    items.push([null, 'no data', '', c[info.colours.length], 'nodata']);
+    return items;
+  }
   function drawLegend() {
-    var ul = $('md-legend'), info = schemeInfo(), labels = labelsAt(info, S.period), c = counts[S.period];
+    var ul = $('md-legend');
     clear(ul);
     $('md-legend-period').textContent = D.periods[S.period];
+    ul.dataset.view = clusterView() ? 'clusters' : 'classes';
+    if (clusterView()) {
+      legendItems().forEach(function (it) {
+        var li = el('li'), name = el('span');
+        li.appendChild(it[0] ? swatch(it[0]) : el('span', null, 'sw nd'));
+        name.appendChild(el('span', it[1]));
+        if (it[2]) name.appendChild(el('span', it[2], 'term'));
+        li.appendChild(name); li.appendChild(el('span', it[3], 'n'));
+        li.dataset.label = it[0] ? it[0].label : 'no data';
+        if (S.filter === it[4]) li.classList.add('on');
+        li.addEventListener('click', function () { setFilter(S.filter === it[4] ? 'all' : it[4]); });
+        ul.appendChild(li);
+      });
+      return;
+    }
+    var info = schemeInfo(), labels = labelsAt(info, S.period), c = counts[S.period];
     info.colours.forEach(function (col, i) {
       if (i >= labels.length) return;
       var li = el('li'), sw = el('span', null, 'sw');
@@ -513,6 +653,10 @@
     var info = schemeInfo(), labels = labelsAt(info, j);
     labels.forEach(function (l, i) { opts.push(['class:' + i, 'class ' + (i + 1) + ' (' + l + ')', c[i]]); });
     opts.push(['nodata', 'no data', c[info.colours.length]]);
+    if (clusterView()) {
+      CL.forEach(function (l, i) { opts.push(['cluster:' + i, l.words + (l.term ? ' (' + l.term + ')' : ''), cCounts[j][i]]); });
+      opts.push(['cluster:-1', 'no cluster data', cCounts[j][CL.length]]);
+    }
     opts.forEach(function (o) {
       var op = el('option', o[1] + ' \u2014 ' + o[2]); op.value = o[0]; sel.appendChild(op);
     });
@@ -642,7 +786,12 @@
     var holdTxt = !pooled ? 'Breaks differ by period: frames are not comparable.' :
       hold.length === 0 ? 'One set of breaks for every period, and every class is used in every period.' :
         'One set of breaks for every period, but some classes are empty in ' + hold.slice(0, 4).join(', ') + (hold.length > 4 ? ' and ' + (hold.length - 4) + ' more' : '') + '.';
-    if (S.scheme === 'run') {
+    if (clusterView()) {
+      txt = 'Showing local clusters in ' + D.periods[j] + ': ' + coreShares(j) + ' of units. Only the cores are filled; ' +
+        'triangles mark outliers. The bars under the map show each period\u2019s cores on a scale up to ' +
+        Math.round(coreScale() * 100) + '% of units.';
+      p.dataset.changed = '0';
+    } else if (S.scheme === 'run') {
       txt = 'Showing the run\u2019s classes: ' + info.describe + '. ' + holdTxt;
       p.dataset.changed = '0';
     } else {
@@ -683,6 +832,14 @@
     S.period = j; update();
     performance.measure('md-period-change', { start: t0, duration: performance.now() - t0 });
   }
+  function setView(v) {
+    if (v === S.view || (v === 'clusters' && !A.clusters)) return;
+    S.view = v;
+    ['classes', 'clusters'].forEach(function (x) { $('md-view-' + x).setAttribute('aria-pressed', String(x === v)); });
+    if (S.filter.indexOf('cluster:') === 0 && v !== 'clusters') S.filter = 'all';
+    if (bx1) drawLines();
+    update();
+  }
   function pin(u) { S.pinned = (u === S.pinned) ? -1 : u; drawMarks(); drawHist(); renderInspect(); }
   function toggleSelect(u) {
     var i = S.selected.indexOf(u);
@@ -699,8 +856,8 @@
 
   // ---------------------------------------------------------------- export
   function exportPng() {
-    var info = schemeInfo(), labels = labelsAt(info, S.period), c = counts[S.period];
-    var side = 360, head = 96, foot = 56, w = W + side + 40, h = Math.max(H, 40 + 26 * (labels.length + 2)) + head + foot;
+    var info = schemeInfo(), items = legendItems();
+    var side = 360, head = 96, foot = 56, w = W + side + 40, h = Math.max(H, 40 + 26 * (items.length + 2)) + head + foot;
     var cv = document.createElement('canvas'); cv.width = w; cv.height = h;
     var ctx = cv.getContext('2d');
     ctx.fillStyle = '#fff'; ctx.fillRect(0, 0, w, h);
@@ -710,14 +867,15 @@
     var x = W + 40, y = head + 10;
     ctx.fillStyle = '#1f2430'; ctx.font = 'bold 44px system-ui, sans-serif'; ctx.fillText(D.periods[S.period], x, y + 40);
     y += 70; ctx.font = '16px system-ui, sans-serif';
-    labels.forEach(function (l, i) {
-      ctx.fillStyle = info.colours[i]; ctx.fillRect(x, y, 30, 18);
-      ctx.strokeStyle = 'rgba(0,0,0,.3)'; ctx.strokeRect(x + 0.5, y + 0.5, 29, 17);
-      ctx.fillStyle = '#1f2430'; ctx.fillText(l + '   (' + c[i] + ')', x + 40, y + 15); y += 26;
+    items.forEach(function (it) {
+      var look = it[0] && typeof it[0] === 'object' ? it[0] : null;
+      ctx.fillStyle = look ? look.fill : it[0] || D.nodata; ctx.fillRect(x, y, 30, 18);
+      if (look && look.mark) paintMarks(ctx, look.mark, look.markColour, [x + 15, y + 9], 14);
+      ctx.strokeStyle = 'rgba(0,0,0,.3)'; ctx.lineWidth = 1; ctx.strokeRect(x + 0.5, y + 0.5, 29, 17);
+      ctx.fillStyle = '#1f2430'; ctx.fillText(it[1] + (it[2] ? ' \u00b7 ' + it[2] : '') + '   (' + it[3] + ')', x + 40, y + 15); y += 26;
     });
-    ctx.fillStyle = D.nodata; ctx.fillRect(x, y, 30, 18); ctx.fillStyle = '#1f2430'; ctx.fillText('no data   (' + c[info.colours.length] + ')', x + 40, y + 15);
     ctx.fillStyle = '#5d6677'; ctx.font = '14px system-ui, sans-serif';
-    ctx.fillText(info.describe + (D.source ? ' \u00b7 Source: ' + D.source : ''), 20, h - 30);
+    ctx.fillText((clusterView() ? 'Local clusters (local Moran)' : info.describe) + (D.source ? ' \u00b7 Source: ' + D.source : ''), 20, h - 30);
     if (D.notice) ctx.fillText(D.notice, 20, h - 10);
     cv.toBlob(function (blob) {
       var a = document.createElement('a');
@@ -814,6 +972,9 @@
     $('md-filter').addEventListener('change', function (e) { setFilter(e.target.value); });
     $('md-clear').addEventListener('click', function () { S.brush = null; S.selected = []; S.filter = 'all'; drawMarks(); update(); });
     $('md-export').addEventListener('click', exportPng);
+    ['classes', 'clusters'].forEach(function (v) {
+      $('md-view-' + v).addEventListener('click', function () { setView(v); });
+    });
     var pending = 0;
     window.addEventListener('resize', function () {
       clearTimeout(pending);
@@ -835,6 +996,8 @@
       mapImg = mapCtx.createImageData(W, H);
       mapPx = new Int32Array(mapImg.data.buffer);
       lut = new Int32Array(N + 1);
+      clusterCounts();
+      $('md-views').hidden = !A.clusters;
       texts();
       layoutMap();
       events();
