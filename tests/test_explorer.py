@@ -624,6 +624,9 @@ def test_cluster_view_draws_the_palette_look_and_counts_the_csv(browser, cluster
         p.pg.keyboard.press("ArrowRight")
     p.pg.mouse.move(*p.client_xy(pts[hh["unit"]]))
     assert words[0] in p.pg.locator("#md-tip").inner_text()
+    with p.pg.expect_download() as dl:  # the saved view carries the cluster legend
+        p.pg.click("#md-export")
+    assert Path(dl.value.path()).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     # back to classes: the run's class colours again
     p.pg.click("#md-view-classes")
     assert p.pg.get_attribute("#md-map", "data-view") == "classes"

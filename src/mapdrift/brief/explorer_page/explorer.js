@@ -367,7 +367,7 @@
     var availW = wrap.clientWidth - 2, availH = Math.max(window.innerHeight * 0.72, 240);
     var base = Math.min(availW, availH * W / H);
     var w = Math.floor(base * S.zoom), h = Math.floor(w * H / W);
-    S.markPx = Math.max(6, Math.round(11 * W / Math.max(base, 1))); // about 11 screen px at 1x
+    S.markPx = Math.max(6, Math.round(13 * W / Math.max(base, 1))); // about 13 screen px at 1x
     stack.style.width = w + 'px'; stack.style.height = h + 'px';
     stack.classList.toggle('pixelated', w > W * 1.5);
     $('md-zoom-level').textContent = S.zoom + '\u00d7';
