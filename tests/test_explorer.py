@@ -644,7 +644,9 @@ def test_cluster_look_travels_from_palettes(cluster_run):
     for x in look:
         fill, mark, colour = palettes.CLUSTER_LOOK[x["label"]]
         assert (x["fill"], x["mark"], x["markColour"]) == (fill, mark, colour)
-        assert "\n".join(t for t in (x["words"], x["term"]) if t) == palettes.CLUSTER_WORDS[x["label"]]
+        assert (
+            "\n".join(t for t in (x["words"], x["term"]) if t) == palettes.CLUSTER_WORDS[x["label"]]
+        )
     # no cluster colour is written into the page's script: they come from the data block
     from mapdrift.brief.explorer import _asset
 
@@ -655,3 +657,51 @@ def test_cluster_look_travels_from_palettes(cluster_run):
     lab = _unpack(data["arrays"]["label"]).reshape(data["raster"]["height"], -1)
     x, y = _unpack(data["arrays"]["ptX"]), _unpack(data["arrays"]["ptY"])
     assert np.array_equal(lab[y, x], np.arange(len(data["units"])))
+
+
+def test_outliers_and_isolated_units_are_marks_on_blank_units(browser, explored, tmp_path):
+    # planted labels (our own test data): one unit of each outlier kind and one without
+    # neighbours in the last period; their interiors carry the mark colour of palettes, a
+    # corner of the same unit stays blank, and the legend counts the planted labels
+    from mapdrift import palettes
+    from mapdrift.brief.explorer import ExplorerExtras, build_payload, write_explorer
+    from mapdrift.clusters.labels import LABELS
+
+    _, panel, classes = explored
+    codes = np.full((panel.n_units, panel.n_periods), LABELS.index("not significant"), np.int8)
+    planted = {7: "high-low", 10: "low-high", 22: "isolated", 30: "low-low"}
+    for u, lab in planted.items():
+        codes[u, -1] = LABELS.index(lab)
+    codes[3, -1] = -1
+    payload = build_payload(
+        panel, classes, ExplorerExtras(cluster_codes=codes, cluster_labels=LABELS), raster_px=600
+    )
+    path = write_explorer(payload, tmp_path / "planted.html")
+    p = Page(browser, path)
+    p.pg.click("#md-view-clusters")
+    p.pg.locator("#md-strip").focus()
+    p.pg.keyboard.press("End")
+    r = p.data["raster"]
+    for u, lab in planted.items():
+        fill, mark, colour = palettes.CLUSTER_LOOK[lab]
+        g = panel.geometry.iloc[u]
+        x0, _, _, y1 = g.bounds
+        corner = (int((x0 - r["x0"]) / r["res"]) + 3, int((r["y1"] - y1) / r["res"]) + 3)
+        centre = p.raster_xy(g)
+        if mark == "ring":  # an open ring: its line lies a few pixels off the centre
+            centre_px, corner_px = p.pixels([centre, corner])
+            assert centre_px[:3] == _rgb(fill) and corner_px[:3] == _rgb(fill), lab
+            near = p.pixels([(centre[0] + dx, centre[1]) for dx in range(-8, 9)])
+            assert min(sum(q[:3]) for q in near) < 3 * 150, near  # the ring's dark line
+            continue
+        centre_px, corner_px = p.pixels([centre, corner])
+        assert centre_px[:3] == _rgb(colour), (lab, centre_px)
+        assert corner_px[:3] == _rgb(fill), (lab, corner_px)
+    items = p.pg.eval_on_selector_all(
+        "#md-legend li",
+        "els => els.map(e => [e.dataset.label, +e.querySelector('.n').textContent])",
+    )
+    got = dict(items)
+    assert got["no data"] == 1 and got["not significant"] == panel.n_units - len(planted) - 1
+    assert all(got[lab] == 1 for lab in planted.values())
+    assert p.console == [] and p.requests == [p.url]

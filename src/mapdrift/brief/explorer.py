@@ -280,8 +280,12 @@ def build_payload(
         # where each unit's outlier mark goes: a point inside it (shapely's representative
         # point, which lies inside even a crescent), in raster pixels
         pts = panel.geometry.representative_point()
-        px = np.clip(np.floor((pts.x.to_numpy() - transform.x0) / transform.res), 0, transform.width - 1)
-        py = np.clip(np.floor((transform.y1 - pts.y.to_numpy()) / transform.res), 0, transform.height - 1)
+        px = np.clip(
+            np.floor((pts.x.to_numpy() - transform.x0) / transform.res), 0, transform.width - 1
+        )
+        py = np.clip(
+            np.floor((transform.y1 - pts.y.to_numpy()) / transform.res), 0, transform.height - 1
+        )
         arrays["ptX"] = pack_array(px.astype(np.int32), "int32")
         arrays["ptY"] = pack_array(py.astype(np.int32), "int32")
     size, cred, cred_known = _jump_arrays(ex.jumps, units, periods)
