@@ -261,19 +261,28 @@
       ctx.fillStyle = colour; ctx.fill();
     }
   }
+  var sprites = {};  // one small canvas per label, emphasis and mark size, stamped per unit
+  function sprite(c, faded, s) {
+    var key = c + (faded ? 'f' : '') + ':' + s;
+    if (!sprites[key]) {
+      var half = Math.ceil(s * 0.8) + 2, cv = document.createElement('canvas');
+      cv.width = cv.height = 2 * half + 1;
+      var l = CL[c], rgb = hexRgb(l.markColour);
+      paintMarks(cv.getContext('2d'), l.mark, rgbCss(faded ? fade(rgb) : rgb), [half + 0.5, half + 0.5], s);
+      sprites[key] = { cv: cv, half: half };
+    }
+    return sprites[key];
+  }
   function drawClusterMarks(ctx, off) {
-    // one path per label and emphasis, from the precomputed interior points (one pass)
-    var groups = {}, codes = A.clusters, s = S.markPx;
+    // one pass over the units: stamp the mark's sprite at each precomputed interior point
+    // (whole-pixel offsets, so the stamp is copied, never resampled)
+    var codes = A.clusters, s = S.markPx;
     for (var u = 0; u < N; u++) {
       var c = codes[off + u], l = c >= 0 ? CL[c] : null;
       if (!l || !l.mark) continue;
-      var key = c + (emph && emph[u] !== 1 ? 'f' : '');
-      (groups[key] = groups[key] || []).push(A.ptX[u] + 0.5, A.ptY[u] + 0.5);
+      var sp = sprite(c, emph && emph[u] !== 1, s);
+      ctx.drawImage(sp.cv, A.ptX[u] - sp.half, A.ptY[u] - sp.half);
     }
-    Object.keys(groups).forEach(function (key) {
-      var l = CL[parseInt(key, 10)], rgb = hexRgb(l.markColour);
-      paintMarks(ctx, l.mark, rgbCss(key.slice(-1) === 'f' ? fade(rgb) : rgb), groups[key], s);
-    });
   }
   function swatch(look) {
     // the legend's sample: the fill, with the mark drawn as on the map
