@@ -612,6 +612,18 @@ def test_cluster_view_draws_the_palette_look_and_counts_the_csv(browser, cluster
             assert rgba == _rgb(palettes.CLUSTER_LOOK[lab][0]) + [255], (label, u, lab, rgba)
             checked[lab] += 1
     assert checked["high-high"] > 0 and checked["not significant"] > 0, checked
+    # a click on a legend entry keeps that label's units: the list is the CSV's high-high units
+    hh_rows = table[table["label"] == "high-high"]
+    busiest = hh_rows["period"].value_counts().idxmax()
+    last = hh_rows[hh_rows["period"] == busiest]
+    p.pg.keyboard.press("Home")
+    for _ in range(list(map(str, panel.period_labels)).index(busiest)):
+        p.pg.keyboard.press("ArrowRight")
+    p.pg.click("#md-legend li[data-label='high-high']")
+    listed = set(p.pg.eval_on_selector_all("#md-list li", "els => els.map(e => e.dataset.unit)"))
+    assert len(last) > 0 and listed == set(last["unit"])
+    p.pg.click("#md-legend li[data-label='high-high']")
+    assert p.pg.get_attribute("#md-list", "data-count") == "0"
     # the words of palettes.CLUSTER_WORDS, in the legend and in the hover text
     words = palettes.CLUSTER_WORDS["high-high"].split("\n")
     legend = p.pg.locator("#md-legend").inner_text()
