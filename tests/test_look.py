@@ -320,3 +320,15 @@ def test_slide_text_never_below_the_floor_and_pictures_fill_the_box(tmp_path, mo
     x0, y0, x1, y1 = r.images[0]
     assert (x1 - x0, y1 - y0) == sl.PICTURE_BOX
     assert (x1 - x0) / sl.W >= 0.9
+
+
+def test_rings_only_while_dots_are_few():
+    # our own rule (common practice, no source): rings mark a few tiny units among larger ones;
+    # when most units are dots (a nation of tracts at slide size) rings would cover the map
+    from mapdrift.render.raster import RING_MAX_SHARE, rings_shown
+
+    assert rings_shown(3, 150)
+    assert not rings_shown(0, 150)
+    assert not rings_shown(75_913, 85_000)
+    assert rings_shown(int(RING_MAX_SHARE * 1000), 1000)
+    assert not rings_shown(int(RING_MAX_SHARE * 1000) + 1, 1000)

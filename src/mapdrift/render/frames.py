@@ -33,7 +33,7 @@ from mapdrift.palettes import CLUSTER_BLANK, NODATA, NODATA_HATCH
 from mapdrift.render import furniture as fur
 from mapdrift.render import layout as lay
 from mapdrift.render.pixels import hatch_alpha, pack_rgb, unpack_rgb
-from mapdrift.render.raster import LabelRaster, ObjectCache, metres_per_unit
+from mapdrift.render.raster import LabelRaster, ObjectCache, metres_per_unit, rings_shown
 from mapdrift.render.sprites import SpriteCache, composite
 
 __all__ = ["FrameRenderer", "pack_rgb", "render_frames", "unit_rings_px", "unpack_rgb"]
@@ -272,7 +272,9 @@ class FrameRenderer:
             boundaries=self._visible_rings() if bw else None,
             boundary_width=bw or 0.0,
             nodata_hatch=False,
-            dots=self.raster.dot_centres,
+            dots=self.raster.dot_centres
+            if rings_shown(len(self.raster.dot_centres), len(self.raster.area_px))
+            else None,
             dot_px=self._min_unit_px,
         )
         over8 = np.array(_rgba(fig))  # uint8 [H, W, 4]; float work only where it is drawn

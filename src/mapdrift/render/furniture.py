@@ -177,8 +177,8 @@ def draw_static(
     With ``nodata_hatch`` False the no-data swatch is left flat (the raster path paints the
     hatching itself so that swatch and map match pixel for pixel).
     """
-    from matplotlib.collections import LineCollection
-    from matplotlib.patches import Circle, Polygon, Rectangle
+    from matplotlib.collections import EllipseCollection, LineCollection
+    from matplotlib.patches import Polygon, Rectangle
 
     s, t, m = layout.s, layout.t, layout.margin
     kw = {"family": FONT}
@@ -208,16 +208,23 @@ def draw_static(
             )
         )
     if dots is not None and len(dots) and dot_px > 0:
-        for cx, cy in dots:
-            ax.add_patch(
-                Circle(
-                    (cx + layout.transform.left, cy + layout.transform.top),
-                    dot_px / 2 + 0.4,
-                    fill=False,
-                    edgecolor=OUTLINE,
-                    linewidth=0.6,
-                )
-            )
+        # one collection for every ring: the cost stays flat when most units are tiny (a patch
+        # per unit took 70 s at 85,000 tracts)
+        d = np.full(len(dots), dot_px + 0.8)
+        ax.add_collection(
+            EllipseCollection(
+                d,
+                d,
+                np.zeros(len(dots)),
+                units="xy",
+                offsets=np.asarray(dots, float) + (layout.transform.left, layout.transform.top),
+                offset_transform=ax.transData,
+                facecolors="none",
+                edgecolors=OUTLINE,
+                linewidths=0.6,
+            ),
+            autolim=False,
+        )
     # legend header
     px, pw = layout.panel_x, layout.panel_w
     head_y = layout.legend_top

@@ -181,6 +181,16 @@ def scanline_fill(geoms: Any, transform: MapTransform, ss: int = 1) -> np.ndarra
     return out.reshape(h, w)
 
 
+#: Rings mark a few tiny units among larger ones; when dots are more than this share of the
+#: units (a nation of tracts at slide size) rings would cover the map, so they are left out.
+RING_MAX_SHARE = 0.05
+
+
+def rings_shown(n_dots: int, n_units: int) -> bool:
+    """Whether tiny units drawn as dots also get a ring (only while they are few)."""
+    return 0 < n_dots <= RING_MAX_SHARE * max(n_units, 1)
+
+
 @dataclass(eq=False)
 class LabelRaster:
     """Unit index per pixel of a map box, with sub-pixel detail for antialiased edges.
@@ -262,8 +272,13 @@ class LabelRaster:
                     "units-drawn-as-dots",
                     f"{tiny.size:,} units are under {min_unit_px:g} pixels across at "
                     f"{size_text or 'this size'} (e.g. {examples([ids[i] for i in tiny], 4)}); "
-                    f"they are drawn as {min_unit_px:g}-pixel dots with a ring so they stay "
-                    "visible",
+                    f"they are drawn as {min_unit_px:g}-pixel dots"
+                    + (
+                        " with a ring so they stay visible"
+                        if rings_shown(len(fields["dots"]), n)
+                        else " (no rings: at this size they are most of the map; a larger "
+                        "--size shows them as areas)"
+                    ),
                     tuple(ids[i] for i in tiny),
                 )
             )
