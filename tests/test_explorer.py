@@ -92,7 +92,7 @@ def test_cluster_labels_match_the_cluster_module():
     from mapdrift.brief import explorer
     from mapdrift.clusters.labels import LABELS
 
-    assert explorer._CLUSTER_LABELS_DEFAULT == LABELS
+    assert explorer.ExplorerExtras().cluster_labels == LABELS
 
 
 # ------------------------------------------------------------------------------------------

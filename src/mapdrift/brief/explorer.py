@@ -33,6 +33,7 @@ from typing import Any
 import numpy as np
 
 from mapdrift.atomic import write_text
+from mapdrift.clusters.labels import LABELS
 
 __all__ = [
     "COMPARE_SCHEMES",
@@ -54,16 +55,6 @@ COMPARE_K: tuple[int, ...] = tuple(range(2, 10))
 #: stays crisp when zoomed 2x.
 DEFAULT_RASTER_PX = 2048
 
-# cluster label codes as in mapdrift.clusters.labels.LABELS (kept in step by a test)
-_CLUSTER_LABELS_DEFAULT = (
-    "high-high",
-    "low-low",
-    "high-low",
-    "low-high",
-    "not significant",
-    "isolated",
-)
-
 
 @dataclass(frozen=True)
 class ExplorerExtras:
@@ -80,7 +71,7 @@ class ExplorerExtras:
     jumps: Any = None
     jump_threshold: int | None = None
     cluster_codes: np.ndarray | None = None
-    cluster_labels: tuple[str, ...] = _CLUSTER_LABELS_DEFAULT
+    cluster_labels: tuple[str, ...] = LABELS
     neighbours: tuple[np.ndarray, np.ndarray] | None = None
     raw_values: np.ndarray | None = None
     smoothing: str | None = None
@@ -407,7 +398,6 @@ def payload_from_state(state: Any, *, raster_px: int = DEFAULT_RASTER_PX) -> dic
     from mapdrift.brief.content import CAUTIONS
     from mapdrift.brief.inputs import BriefInputs
     from mapdrift.clusters import ClusterOptions
-    from mapdrift.clusters.labels import LABELS
     from mapdrift.config import BriefSpec
 
     panel = state.panel
