@@ -33,10 +33,15 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
-import scipy.sparse as sp
 
+from mapdrift._lazy import lazy_module
 from mapdrift.errors import ConfigError
 from mapdrift.findings import Finding
+
+if TYPE_CHECKING:  # imported on first use (see mapdrift._lazy)
+    import scipy.sparse as sp
+else:
+    sp = lazy_module("scipy.sparse")
 
 if TYPE_CHECKING:
     from mapdrift.panel import Panel

@@ -38,10 +38,15 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-import scipy.sparse as sp
 
+from mapdrift._lazy import lazy_module
 from mapdrift.errors import ConfigError
 from mapdrift.findings import Finding, examples, plural
+
+if TYPE_CHECKING:  # imported on first use (see mapdrift._lazy)
+    import scipy.sparse as sp
+else:
+    sp = lazy_module("scipy.sparse")
 
 if TYPE_CHECKING:
     import geopandas as gpd

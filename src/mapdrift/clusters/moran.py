@@ -13,13 +13,20 @@ with the same set of units share one set of random permutations (drawn once from
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
-import scipy.sparse as sp
-from scipy import special  # not scipy.stats: its import costs 1-2 s at start-up
 
+from mapdrift._lazy import lazy_module
 from mapdrift.clusters._groups import period_groups
 from mapdrift.weights import SpatialWeights
+
+if TYPE_CHECKING:  # imported on first use (see mapdrift._lazy)
+    import scipy.sparse as sp
+    from scipy import special
+else:
+    sp = lazy_module("scipy.sparse")
+    special = lazy_module("scipy.special")
 
 __all__ = ["MoranGlobal", "moran_global", "moran_global_panel", "permutation_p"]
 

@@ -16,12 +16,17 @@ from __future__ import annotations
 
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from scipy import special  # not scipy.stats: its import costs 1-2 s at start-up
 
+from mapdrift._lazy import lazy_module
 from mapdrift.clusters.multiple import adjust
+
+if TYPE_CHECKING:  # imported on first use (see mapdrift._lazy)
+    from scipy import special
+else:
+    special = lazy_module("scipy.special")
 
 __all__ = ["TrendResult", "mann_kendall", "period_times", "theil_sen", "trends"]
 
