@@ -248,7 +248,7 @@ def _child(kind: str, *args: str) -> tuple[dict, float]:
 
 
 def _mapdrift(*args: str) -> list[str]:
-    return [sys.executable, "-c", "from mapdrift.cli import main; main()", *args]
+    return [sys.executable, "-c", "from mapdrift.cli import console; console()", *args]
 
 
 def bench_size(n: int, periods: int, a: argparse.Namespace, root: Path) -> None:

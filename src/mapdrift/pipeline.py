@@ -26,6 +26,7 @@ from typing import Any
 from mapdrift.config import BriefSpec, ClassSpec, Config, RunSpec, merge
 from mapdrift.errors import ConfigError, InputError, MapdriftError, StepError
 from mapdrift.findings import Finding, plural, units_of
+from mapdrift.pngwrite import background_writes
 
 __all__ = ["STEPS", "RunResult", "RunState", "default_out", "prepare_out", "run", "run_inputs"]
 
@@ -391,12 +392,9 @@ def _step_animate(state: RunState) -> str:
         **text,
     )
     try:
-        from PIL import Image
+        from mapdrift.pngwrite import write_png
 
-        from mapdrift.atomic import atomic_path
-
-        with atomic_path(state.path("poster.png")) as tmp:
-            Image.fromarray(r.frame(p.n_periods - 1)).save(tmp, format="PNG")
+        write_png(r.frame(p.n_periods - 1), state.path("poster.png"))
     finally:
         r.close()
     small_multiples(
@@ -791,7 +789,10 @@ def _run_steps(
             if on_start is not None:
                 on_start(name)
             try:
-                summary = step(state)
+                # pictures are deflated on the second core while the step draws the next; all
+                # of a step's files exist when it ends (later steps read them)
+                with background_writes():
+                    summary = step(state)
             except MapdriftError as exc:
                 log.info("step %s failed: %s", name, exc)  # the CLI prints the error itself
                 raise type(exc)(f"step {name!r} failed: {exc}") from exc

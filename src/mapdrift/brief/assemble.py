@@ -21,6 +21,7 @@ from mapdrift.brief.slides import Slide
 from mapdrift.brief.whatsnew import previous_name
 from mapdrift.config import BriefSpec
 from mapdrift.findings import examples, plural, units_of
+from mapdrift.pngwrite import write_png
 
 if TYPE_CHECKING:
     from pathlib import Path
@@ -492,10 +493,7 @@ def _slide_pictures(state: BriefInputs, folder: Path) -> dict[str, Path]:
         size=PICTURE_BOX, units=list(p.units),
     )  # fmt: skip
     try:
-        from PIL import Image
-
-        out["poster.png"] = folder / "poster.png"
-        Image.fromarray(r.frame(p.n_periods - 1)).save(out["poster.png"], format="PNG")
+        out["poster.png"] = write_png(r.frame(p.n_periods - 1), folder / "poster.png")
     finally:
         r.close()
     if not c.per_period:
@@ -554,7 +552,12 @@ def build_slides(state: BriefInputs, brief: Brief, pictures: Path | None = None)
             )
         )
     noun = _noun(state)
-    drawn = _slide_pictures(state, pictures) if pictures is not None else {}
+    drawn: dict[str, Path] = {}
+    if pictures is not None:
+        from mapdrift.pngwrite import background_writes
+
+        with background_writes():  # encoded beside the drawing; all written before pasting
+            drawn = _slide_pictures(state, pictures)
 
     def pic(name: str) -> Path:
         return drawn.get(name, d / name)

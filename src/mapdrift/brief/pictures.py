@@ -21,6 +21,8 @@ from typing import Any
 
 import numpy as np
 
+from mapdrift.pngwrite import write_png
+
 __all__ = [
     "CHANGE_PICTURES",
     "CLUSTER_PICTURES",
@@ -456,7 +458,7 @@ def multiples_pages(
             d.text((lx + 56, ly), lab, font=font, fill=(31, 31, 31))
             ly += int(text_px * 1.6)
         path = folder / f"{stem}-{page + 1}.png"
-        img.save(path, format="PNG")
+        write_png(img, path)
         out.append((path, tuple(str(period_labels[j]) for j in js)))
     return out
 

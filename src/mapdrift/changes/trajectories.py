@@ -328,13 +328,14 @@ def change_categories(net_change: np.ndarray, k: int, cap: int = 3) -> tuple[np.
 def rank_mobility(
     values: np.ndarray, steps: Sequence[tuple[int, int]], period_labels: Sequence[str]
 ) -> pd.DataFrame:
-    """Kendall's tau-b (scipy) of the values between each step's periods and first-to-last.
+    """Kendall's tau-b of the values between each step's periods and first-to-last.
 
     Units missing (NaN) in either period are left out; fewer than 3 units give NaN. A tau near 1
     means units kept their rank order; lower values mean more reshuffling.
     """
     import pandas as pd
-    from scipy.stats import kendalltau
+
+    from mapdrift.changes.kendall import kendall_tau_b
 
     values = np.asarray(values, dtype=np.float64)
     n_p = values.shape[1]
@@ -347,8 +348,7 @@ def rank_mobility(
         ok = ~(np.isnan(x) | np.isnan(y))
         n = int(ok.sum())
         if n >= 3:
-            res = kendalltau(x[ok], y[ok])
-            tau, p = float(res.statistic), float(res.pvalue)
+            tau, p = kendall_tau_b(x[ok], y[ok])
         else:
             tau = p = float("nan")
         rows.append(

@@ -8,7 +8,7 @@ with ``--debug``. Importing this package must not import matplotlib, geopandas o
 
 from __future__ import annotations
 
-from mapdrift.cli._app import app, main
+from mapdrift.cli._app import app, console, main
 
 # Command modules register themselves on `app` when imported.
 from mapdrift.cli import check as _check  # noqa: E402,F401  isort: skip
@@ -20,4 +20,4 @@ from mapdrift.cli import run as _run  # noqa: E402,F401  isort: skip
 from mapdrift.cli import demo as _demo  # noqa: E402,F401  isort: skip
 from mapdrift.cli import explore as _explore  # noqa: E402,F401  isort: skip
 
-__all__ = ["app", "main"]
+__all__ = ["app", "console", "main"]

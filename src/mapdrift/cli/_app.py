@@ -100,8 +100,23 @@ def command(name: str, **kwargs: Any) -> Callable[[F], F]:
     return decorator
 
 
+def console() -> None:
+    """The ``mapdrift`` console script: :func:`main`, then exit with its code.
+
+    Before the interpreter exits, every object left is frozen out of the garbage collector
+    (``gc.freeze``): the final collection of a run's objects took about 0.4 s of a 8 s demo,
+    for memory the operating system takes back anyway.
+    """
+    import gc
+    import sys
+
+    code = main()
+    gc.freeze()
+    sys.exit(code)
+
+
 def main(argv: list[str] | None = None) -> int:
-    """Entry point of the console script; returns the exit code."""
+    """Run the command line in this process; returns the exit code (used by tests too)."""
     try:
         rv = app(args=argv, standalone_mode=False)
     except MapdriftError as exc:  # raised outside a command (e.g. in the callback)

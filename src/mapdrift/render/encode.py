@@ -22,6 +22,7 @@ import numpy as np
 from mapdrift.atomic import atomic_path
 from mapdrift.colour import hex_to_rgb8
 from mapdrift.errors import ConfigError, EncoderError, OutputExistsError
+from mapdrift.pngwrite import write_png
 
 __all__ = ["FixedPalette", "pad_even", "write_gif", "write_mp4", "write_png_frames"]
 
@@ -401,7 +402,6 @@ def write_png_frames(
     force: bool = False,
 ) -> list[Path]:
     """Write ``frame_000_<period>.png``, ... into ``folder``; returns the paths in order."""
-    from PIL import Image
 
     folder = Path(folder)
     names = [folder / f"frame_{j:03d}_{_safe(p)}.png" for j, p in enumerate(period_labels)]
@@ -414,7 +414,5 @@ def write_png_frames(
     folder.mkdir(parents=True, exist_ok=True)
     out: list[Path] = []
     for p, frame in zip(names, frames):
-        with atomic_path(p) as tmp:
-            Image.fromarray(frame).save(tmp, format="PNG", compress_level=6)
-        out.append(p)
+        out.append(write_png(frame, p))
     return out

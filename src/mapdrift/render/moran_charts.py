@@ -13,8 +13,6 @@ from pathlib import Path
 
 import numpy as np
 
-from mapdrift.atomic import atomic_path
-
 __all__ = ["moran_line_chart"]
 
 _INK = "#222222"
@@ -83,7 +81,6 @@ def moran_line_chart(
         fig.text(0.08, 0.885, subtitle, fontsize=13, color=_MUTED, va="baseline")
     if caption:
         fig.text(0.08, 0.04, caption, fontsize=10, color=_MUTED, va="baseline", wrap=True)
-    fmt = path.suffix.lower().lstrip(".") or "png"
-    with atomic_path(path) as tmp:
-        fig.savefig(tmp, format=fmt, dpi=dpi, facecolor="white")
-    return path
+    from mapdrift.pngwrite import write_figure
+
+    return write_figure(fig, path, dpi=dpi)

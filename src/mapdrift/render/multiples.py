@@ -23,6 +23,7 @@ import numpy as np
 from mapdrift.atomic import atomic_path
 from mapdrift.errors import ConfigError, OutputExistsError
 from mapdrift.palettes import NODATA, NODATA_HATCH
+from mapdrift.pngwrite import write_png
 from mapdrift.render import layout as lay
 from mapdrift.render.raster import LabelRaster, fit_transform, metres_per_unit
 
@@ -388,7 +389,6 @@ class _Panels:
 
 def _save_png(fig: Any, panels: _Panels, cells: list[Any], path: Path, dpi: float) -> None:
     """Texts and lines drawn once (transparent) at ``dpi`` over the pasted panel images."""
-    from PIL import Image
 
     ppx = dpi / 72.0
     fig.patch.set_alpha(0.0)
@@ -405,6 +405,5 @@ def _save_png(fig: Any, panels: _Panels, cells: list[Any], path: Path, dpi: floa
         page[top : top + h, left : left + w] = img[:h, :w]
     a = over[..., 3:4].astype(np.uint16)
     page = ((over[..., :3].astype(np.uint16) * a + page * (255 - a) + 127) // 255).astype(np.uint8)
-    with atomic_path(path) as tmp:
-        Image.fromarray(page).save(tmp, format="PNG", compress_level=6)
+    write_png(page, path)
     fig.set_dpi(72)

@@ -188,11 +188,9 @@ def static_map(
     )
     try:
         if suffix == ".png":
-            from PIL import Image
+            from mapdrift.pngwrite import write_png
 
-            with atomic_path(path) as tmp:
-                Image.fromarray(r.frame(0)).save(tmp, format="PNG", compress_level=6)
-            return path
+            return write_png(r.frame(0), path)
         _vector(r, geometry, path, outline_units)
     finally:
         r.close()

@@ -20,8 +20,6 @@ from typing import Any
 
 import numpy as np
 
-from mapdrift.atomic import atomic_path
-
 __all__ = ["class_flow", "spread_labels", "transition_heatmap"]
 
 _INK = "#222222"
@@ -62,11 +60,9 @@ def _pct(x: float) -> str:
 
 
 def _save(fig: Any, path: Path, dpi: int) -> Path:
-    path = Path(path)
-    fmt = path.suffix.lstrip(".").lower() or "png"
-    with atomic_path(path) as tmp:
-        fig.savefig(tmp, format=fmt, dpi=dpi, facecolor="white")
-    return path
+    from mapdrift.pngwrite import write_figure
+
+    return write_figure(fig, path, dpi=dpi)
 
 
 def transition_heatmap(
