@@ -50,10 +50,9 @@ def test_encoding_happens_off_the_calling_thread(tmp_path, monkeypatch):
 def test_a_failed_write_is_raised_at_the_exit(tmp_path):
     blocker = tmp_path / "blocker"
     blocker.write_text("a file where a folder should be")
-    with pytest.raises(OSError):
-        with background_writes():
-            write_png(_pictures(1)[0], tmp_path / "fine.png")
-            write_png(_pictures(1)[0], blocker / "x.png")
+    with pytest.raises(OSError), background_writes():
+        write_png(_pictures(1)[0], tmp_path / "fine.png")
+        write_png(_pictures(1)[0], blocker / "x.png")
     assert (tmp_path / "fine.png").is_file()  # the other writes finished
 
 
