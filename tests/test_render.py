@@ -304,3 +304,32 @@ def test_units_below_the_outline_size_are_not_outlined():
     none = box_pixels([])
     np.testing.assert_array_equal(box_pixels([1]), none)  # the tiny unit: no outline
     assert (box_pixels([0]) != none).any()  # the large one is outlined
+
+
+def test_word_wrap_takes_as_many_words_as_fit_measured_by_the_frame_font():
+    # the greedy rule (common practice, no source): each line is the longest run of words,
+    # the first always, whose measured width fits; checked against measuring every prefix
+    import random
+
+    from mapdrift.render import layout as lay
+
+    def prefix_greedy(text, size, width, weight):
+        lines, cur = [], ""
+        for word in text.split():
+            trial = f"{cur} {word}".strip()
+            if not cur or lay._text_width(trial, size, weight) <= width:
+                cur = trial
+            else:
+                lines.append(cur)
+                cur = word
+        return [*lines, cur]
+
+    rng = random.Random(4)
+    vocab = ["rate", "per", "1,000", "parcels", "Tract", "000123", "fell;", "WWWW", "iiii", ","]
+    vocab += ["2019-2023", "high-high", "rose", "in"]
+    for _ in range(150):
+        text = " ".join(rng.choice(vocab) for _ in range(rng.randint(0, 30)))
+        size, width = rng.choice([10.5, 13.3, 22.0]), rng.choice([40, 150, 500])
+        bold = rng.random() < 0.3
+        got = lay._wrap_px(text, size, width, bold=bold)
+        assert got == prefix_greedy(text, size, width, "bold" if bold else "normal")
