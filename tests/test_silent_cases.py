@@ -70,11 +70,15 @@ def test_huge_values_give_the_same_moran_as_esda(layer_file, table_file):
 def test_zero_area_and_identical_polygons_are_reported(layer_file):
     g = grid_layer(3)
     g.loc[4, "geometry"] = g.loc[3, "geometry"]  # unit 00005 copies 00004
+    # 00007 is 00006 drawn the other way round from another vertex: the same polygon
+    ring = list(g.loc[5, "geometry"].exterior.coords)[:-1]
+    g.loc[6, "geometry"] = Polygon((ring[2:] + ring[:2])[::-1])
     g.loc[8, "geometry"] = Polygon([(0, 0), (1000, 0), (1000, 0), (0, 0)])  # a flat sliver
     panel = load_panel(_spec(layer_file(gdf=_with_values(g))))
     found = {f.code: f for f in panel.findings}
-    assert set(found["geometry-duplicate"].units) == {"00004", "00005"}
+    assert set(found["geometry-duplicate"].units) == {"00004", "00005", "00006", "00007"}
     assert "00004 = 00005" in found["geometry-duplicate"].message
+    assert "00006 = 00007" in found["geometry-duplicate"].message
     flat = found.get("geometry-zero-area") or found.get("geometry-empty")
     assert flat is not None and "00009" in flat.units
 

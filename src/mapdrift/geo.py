@@ -206,6 +206,13 @@ def _degenerate(geom: np.ndarray, empty: np.ndarray, ids: list[str], path: Path)
         )
     idx = np.flatnonzero(drawn & ~zero)
     if len(idx) > 1:
+        # identical polygons share their bounds and vertex count whatever their vertex order:
+        # only units sharing both are compared exactly (normalised WKB), not all 240,000
+        g = np.asarray(geom[idx], dtype=object)
+        cheap = np.column_stack([shapely.bounds(g), shapely.get_num_coordinates(g)])
+        _, inverse, counts = np.unique(cheap, axis=0, return_inverse=True, return_counts=True)
+        idx = idx[counts[inverse.ravel()] > 1]
+    if len(idx) > 1:
         import pandas as pd
 
         keys = pd.Series(shapely.to_wkb(shapely.normalize(geom[idx]), output_dimension=2))
