@@ -167,3 +167,15 @@ def test_homogeneity_rejects_two_chains_accepts_one():
     halves = _simulate([A] * 4 + [B] * 4, 400, rng)
     t = homogeneity_test(count_transitions(halves, 3, periods=periods).by_step)
     assert t.p_LR < 1e-6 and t.p_Q < 1e-6
+
+
+def test_homogeneity_of_exactly_proportional_regimes_is_p_one():
+    # the same row shares in every regime: both statistics are 0 (up to rounding, which can
+    # leave -1e-14) and chi2.sf(0, df) = 1 (scipy.stats, the reference)
+    from scipy.stats import chi2
+
+    base = np.array([[7.0, 3.0, 1.0], [2.0, 9.0, 4.0], [1.0, 2.0, 11.0]])
+    for scale in (1.0, 3.0, 7.0 / 3.0, 1e-3 + 1.0, 13.0):
+        res = homogeneity_test(np.stack([base, base * scale, base * 0.1 * scale]))
+        assert res.p_Q == pytest.approx(float(chi2.sf(max(res.Q, 0.0), res.df)))
+        assert res.p_LR == pytest.approx(1.0) and res.p_Q == pytest.approx(1.0)

@@ -350,3 +350,18 @@ def test_views_and_smoothing_combine_with_eb():
     assert any(f.code == "clusters-eb-not-combined" for f in idx.findings)
     sm = analyse_clusters(p, None, ClusterOptions(smooth="eb"))
     assert sm.trend_input == "the smoothed rates" and sm.inputs.startswith("EB standardised")
+
+
+def test_poisson_change_p_for_counts_beyond_32_bits_matches_scipy_binom():
+    # scipy.stats.binom (the reference) takes any count; the tails must not turn to NaN past
+    # 2**31 events (an int limit of scipy.special.bdtr)
+    n1 = np.array([1.07e9, 3.1e9, 2.2e9, 5e9])
+    n2 = np.array([1.08e9, 3.0e9, 2.2e9 + 4e4, 5e9 + 1])
+    b1 = np.array([1.0, 2.0, 1.0, 1.0])
+    b2 = np.array([1.0, 2.0, 1.0, 1.0])
+    p = poisson_change_p(n1, b1, n2, b2)
+    q = b2 / (b1 + b2)
+    n = n1 + n2
+    ref = np.minimum(1, 2 * np.minimum(stats.binom.cdf(n2, n, q), stats.binom.sf(n2 - 1, n, q)))
+    assert not np.isnan(p).any()
+    assert np.allclose(p, ref, rtol=1e-9, atol=1e-300)

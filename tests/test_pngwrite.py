@@ -4,6 +4,7 @@ errors raised there. Pictures are read back with Pillow (the reference decoder).
 from __future__ import annotations
 
 import threading
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -74,3 +75,34 @@ def test_write_figure_png_matches_savefig_pixels(tmp_path):
     assert np.array_equal(ours, ref)
     write_figure(fig, tmp_path / "chart.svg", dpi=100)
     assert (tmp_path / "chart.svg").read_text().lstrip().startswith("<?xml")
+
+
+def test_reading_the_umask_never_changes_it(monkeypatch):
+    # PNGs are written from a worker thread; os.umask(0) there would, for an instant, make the
+    # main thread's new files world-writable (common practice, no source: read /proc instead)
+    import os
+
+    from mapdrift import atomic
+
+    if not os.path.exists("/proc/self/status"):
+        pytest.skip("no /proc here: the umask read at import is used")
+    expected = atomic._umask()
+
+    def forbidden(_mask):
+        raise AssertionError("os.umask called while writing")
+
+    monkeypatch.setattr(os, "umask", forbidden)
+    assert atomic._umask() == expected
+    with background_writes():
+        path = write_png(_pictures(1)[0], Path(os.environ.get("TMPDIR", "/tmp")) / "umask.png")
+    assert path.is_file()
+    path.unlink()
+
+
+def test_frames_are_on_disk_when_write_png_frames_returns_even_in_a_block(tmp_path):
+    from mapdrift.render.encode import write_png_frames
+
+    pics = _pictures(4)
+    with background_writes():
+        paths = write_png_frames(pics, tmp_path / "frames", ["2001", "2002", "2003", "2004"])
+        assert all(p.stat().st_size > 0 for p in paths)  # readable inside the caller's block

@@ -85,16 +85,16 @@ def _exact_p(n: int, discordant: int) -> float:
     c = min(discordant, tot - discordant)
     if n <= 2 or 4 * c == n * (n - 1):
         return 1.0
-    counts = np.zeros(c + 1)
-    counts[0] = 1.0
-    for j in range(2, n + 1):  # inserting item j adds 0..j-1 inversions
-        counts = np.cumsum(counts)
-        if j <= c:
-            counts[j:] -= counts[: c + 1 - j].copy()
-    if n < 171:
+    if c <= 1:  # one order has no inversion and n - 1 orders have one: P(D <= c) = (1 or n) / n!
+        p = 2.0 * math.exp(math.log(1 if c == 0 else n) - math.lgamma(n + 1))
+    else:  # only reached for n <= 33 (see kendall_tau_b): the counts, item by item
+        counts = np.zeros(c + 1)
+        counts[0] = 1.0
+        for j in range(2, n + 1):  # inserting item j adds 0..j-1 inversions
+            counts = np.cumsum(counts)
+            if j <= c:
+                counts[j:] -= counts[: c + 1 - j].copy()
         p = 2.0 * counts.sum() / math.factorial(n)
-    else:  # n! overflows a float; exact p is only used with few pairs in the tail here
-        p = 2.0 * math.exp(math.log(counts.sum()) - math.lgamma(n + 1))
     return float(min(max(p, 0.0), 1.0))
 
 

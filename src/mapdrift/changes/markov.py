@@ -382,7 +382,9 @@ def homogeneity_test(
         Q,
         LR,
         df,
-        float(chdtrc(df, Q)),
-        float(chdtrc(df, LR)),
+        # rounding can leave a statistic at -1e-14 where the tables match exactly; chdtrc would
+        # give NaN there (scipy.stats' chi2.sf gives 1)
+        float(chdtrc(df, max(Q, 0.0))),
+        float(chdtrc(df, max(LR, 0.0))),
         tuple(per_row),
     )

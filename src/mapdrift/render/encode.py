@@ -22,7 +22,7 @@ import numpy as np
 from mapdrift.atomic import atomic_path
 from mapdrift.colour import hex_to_rgb8
 from mapdrift.errors import ConfigError, EncoderError, OutputExistsError
-from mapdrift.pngwrite import write_png
+from mapdrift.pngwrite import background_writes, write_png
 
 __all__ = ["FixedPalette", "pad_even", "write_gif", "write_mp4", "write_png_frames"]
 
@@ -413,6 +413,7 @@ def write_png_frames(
                 )
     folder.mkdir(parents=True, exist_ok=True)
     out: list[Path] = []
-    for p, frame in zip(names, frames):
-        out.append(write_png(frame, p))
+    with background_writes():  # every frame is on disk when this returns (callers stat them)
+        for p, frame in zip(names, frames):
+            out.append(write_png(frame, p))
     return out
