@@ -627,10 +627,10 @@ def build_slides(state: BriefInputs, brief: Brief, pictures: Path | None = None)
         up, down = int((net > 0).sum()), int((net < 0).sum())
         n_jump = int(ch.units["jump"].sum())
         stay = np.trace(ch.transitions.counts) / max(ch.transitions.counts.sum(), 1)
-        beyond = " beyond count noise" if ch.tested else ""
         change_title = (
-            f"{noun_for(up, noun)} rose and {down:,} fell a class or more{beyond}, "
-            f"{first} to {last}"
+            f"{noun_for(up, noun)} rose and {down:,} fell beyond count noise, {first} to {last}"
+            if ch.tested
+            else f"{noun_for(up, noun)} rose and {down:,} fell a class or more, {first} to {last}"
         )
         flag_title = f"{noun_for(n_jump, noun)} jumped {ch.options.jump}+ classes in one step"
         trans_title = f"{stay:.0%} of steps stay in their class"
