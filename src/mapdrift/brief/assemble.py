@@ -69,7 +69,7 @@ def headline(state: BriefInputs) -> list[tuple[str, str]]:
         if ch.tested:
             out.append(
                 (
-                    f"{u} whose class moved from {per[0]} to {per[-1]} within count noise",
+                    f"{u} whose class moved from {per[0]} to {per[-1]} within {ch.noise_words}",
                     f"{ch.n_net_noise:,}",
                 )
             )
@@ -285,6 +285,15 @@ def build_brief(state: BriefInputs) -> Brief:
                 f"Which {noun} changed",
                 paragraphs=(
                     f"Net class change from {per[0]} to {per[-1]}, and the {noun} whose path is worth a look (jumps, spikes, stayed in the top or bottom class).",
+                    *(
+                        (
+                            f"The change map shows only moves beyond {ch.noise_words}: each unit's {per[0]} and {per[-1]} {'counts' if ch.noise_test == 'poisson' else 'values'} were compared with the same test as the jumps; {noun_for(ch.n_net_noise, noun)} whose class moved within {ch.noise_words} are drawn as no credible change (units.csv: net_change_credible).",
+                        )
+                        if ch.tested
+                        else (
+                            "Class moves were not tested against noise (no counts given): a move of a unit with few events may be noise.",
+                        )
+                    ),
                 ),
                 figures=(
                     _fig(state, "change_map.png", f"Class change {per[0]} to {per[-1]}"),
@@ -628,7 +637,7 @@ def build_slides(state: BriefInputs, brief: Brief, pictures: Path | None = None)
         n_jump = int(ch.units["jump"].sum())
         stay = np.trace(ch.transitions.counts) / max(ch.transitions.counts.sum(), 1)
         change_title = (
-            f"{noun_for(up, noun)} rose and {down:,} fell beyond count noise, {first} to {last}"
+            f"{noun_for(up, noun)} rose and {down:,} fell beyond {ch.noise_words}, {first} to {last}"
             if ch.tested
             else f"{noun_for(up, noun)} rose and {down:,} fell a class or more, {first} to {last}"
         )

@@ -179,7 +179,7 @@ def change_pictures(
         from mapdrift.clusters.multiple import describe
 
         change_caption = (
-            f"{result.n_net_noise:,} {noun} whose class moved within count noise are shown as no "
+            f"{result.n_net_noise:,} {noun} whose class moved within {result.noise_words} are shown as no "
             f"credible change ({how} of {first} against {last}, "
             f"{describe(result.options.alpha, result.options.correction)} over all {noun}; "
             "see units.csv)." + (f" {source}" if source else "")

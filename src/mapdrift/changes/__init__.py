@@ -170,6 +170,11 @@ class ChangeResult:
         return net
 
     @property
+    def noise_words(self) -> str:
+        """What a move within noise is within: "count noise", or "the margins of error"."""
+        return "the margins of error" if self.noise_test == "moe" else "count noise"
+
+    @property
     def n_net_noise(self) -> int:
         """Units whose first-to-last class move is within count noise."""
         net = np.asarray(self.net_change, dtype=np.float64)
