@@ -166,3 +166,32 @@ def test_run_usage_and_output_exists(runner, tmp_path):
     r = runner.invoke(app, ["run", str(DEMO / "demo.toml"), "--out", str(out)])
     assert r.exit_code == 3 and "--force" in r.output
     assert (out / "report.html").read_text() == "last year's"
+
+
+def test_closed_stdout_pipe_ends_quietly():
+    # `mapdrift check ... | head -1`: a reader that goes away ends the command without a
+    # traceback or "internal error", exit 141 as for SIGPIPE (common practice, no source).
+    args = ["check", "--config", str(DEMO / "demo.toml"), "--min-base", "4000"]
+    code = "import sys; from mapdrift.cli import console; console()"
+    proc = subprocess.Popen(
+        [sys.executable, "-c", code, *args],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+    )
+    proc.stdout.close()  # the reader is gone before the first line is written
+    err = proc.stderr.read().decode()
+    proc.wait(timeout=120)
+    assert proc.returncode in (0, 141), err
+    assert "internal error" not in err and "Traceback" not in err and "Broken" not in err
+
+
+def test_global_flags_after_the_command(runner, layer_file):
+    # the error hints say "run with --debug": it must work after the command name too
+    missing = str(layer_file(n_side=2).with_name("nope.gpkg"))
+    r = runner.invoke(app, ["check", missing, "--debug"])
+    assert r.exit_code != 0 and r.exception is not None and "No such option" not in r.output
+    r = runner.invoke(app, ["check", missing, "-q"])
+    assert r.exit_code == 1 and "No such option" not in r.output
+    for cmd in ("check", "breaks", "animate", "changes", "clusters", "run", "demo", "explore"):
+        out = runner.invoke(app, [cmd, "--help"]).output
+        assert "--debug" in out and "--quiet" in out and "--verbose" in out, cmd
