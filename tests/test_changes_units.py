@@ -147,6 +147,7 @@ def test_flag_categories_for_the_map():
     assert {"changes-spikes", "changes-jumps", "changes-gap-skipped"} <= codes
     spikes = next(f for f in res.findings if f.code == "changes-spikes")
     assert spikes.units == ("spike",)
+    assert spikes.message.startswith("1 unit jumped and came straight back")  # not "1 units"
 
 
 def test_bad_options_are_clear():

@@ -187,6 +187,10 @@ def test_rates_from_counts(layer_file, table_file):
     assert p.values[0, 0] == pytest.approx(5.0) and p.values[3, 0] == pytest.approx(5.0)
     assert np.isnan(p.values[2, 0])
     assert "rates-zero-base" in codes(p) and find(p, "rates-small-base").units == ("00002",)
+    # the hint names only what exists: --smooth on `clusters`, the config key / --set for `run`
+    hint = find(p, "rates-small-base").message
+    assert "mapdrift clusters --smooth eb" in hint and "--set clusters.smooth=eb" in hint
+    assert "(--smooth" not in hint
     assert p.numerator is not None and p.denominator[0, 0] == 1000
 
 

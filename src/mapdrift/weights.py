@@ -448,9 +448,13 @@ def build_weights(
         shown = ", ".join(_unit_ids(ids, island_idx[:5]))
         if islands == "nearest":
             m = _attach_nearest(geoms, m, island_idx)
-            what = 'linked to the nearest unit (--islands nearest; --islands exclude or [clusters] islands = "exclude" leaves them out)'
+            what = (
+                "linked to the nearest unit; to leave them out pass `mapdrift clusters "
+                '--islands exclude`, or for `mapdrift run` set [clusters] islands = "exclude" '
+                "(--set clusters.islands=exclude)"
+            )
         else:
-            what = "left without neighbours and labelled isolated (--islands exclude)"
+            what = "left without neighbours and labelled isolated (islands = exclude)"
         findings.append(
             Finding(
                 "warning",

@@ -18,6 +18,7 @@ from mapdrift.cli._app import command
 from mapdrift.cli._data import load_data, summarise
 from mapdrift.cli._options import class_options, input_options
 from mapdrift.cli._print import echo, print_findings
+from mapdrift.findings import plural
 
 
 class Relative(str, Enum):
@@ -144,11 +145,11 @@ def changes(
     u = result.units
     noise = int(((u["n_noise_moves"] > 0) & ~u["jump"]).sum())
     echo(
-        f"flagged: {int(u['jump'].sum())} units {'credibly ' if result.tested else ''}jumped "
+        f"flagged: {plural(int(u['jump'].sum()), 'unit')} {'credibly ' if result.tested else ''}jumped "
         f"{options.jump}+ classes"
-        + (f" ({noise} more moved within count noise)" if result.tested else "")
-        + f", {int(u['spike'].sum())} spikes, {int(u['stayed_top'].sum())} stayed in top class, "
-        f"{int(u['stayed_bottom'].sum())} stayed in bottom class"
+        + (f" ({noise:,} more moved within count noise)" if result.tested else "")
+        + f", {plural(int(u['spike'].sum()), 'spike')}, {int(u['stayed_top'].sum()):,} stayed in "
+        f"top class, {int(u['stayed_bottom'].sum()):,} stayed in bottom class"
     )
     echo(result.noise_text)
     if cls.warning:  # (result.warning also names the view, said in the summary above)
