@@ -195,3 +195,14 @@ def test_global_flags_after_the_command(runner, layer_file):
     for cmd in ("check", "breaks", "animate", "changes", "clusters", "run", "demo", "explore"):
         out = runner.invoke(app, [cmd, "--help"]).output
         assert "--debug" in out and "--quiet" in out and "--verbose" in out, cmd
+
+
+def test_values_without_manual_scheme_is_a_usage_error(runner):
+    # --values are manual bounds: fitting quantiles instead would ignore them silently
+    args = ["breaks", "--config", str(DEMO / "demo.toml"), "--values", "1,2,3"]
+    r = runner.invoke(app, args)
+    assert r.exit_code == 2 and "--scheme manual" in r.output and "1,2,3" in r.output
+    assert len(r.output.strip().splitlines()) == 1
+    r = runner.invoke(app, [*args, "--scheme", "manual"])
+    assert r.exit_code == 0, r.output
+    assert "manual" in r.output

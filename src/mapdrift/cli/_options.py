@@ -288,7 +288,11 @@ _CLASS_PARAMS = [
         "values",
         Optional[str],
         _opt(
-            None, "--values", help="Manual scheme: upper bounds, e.g. '0,2,5,10'.", panel="Classes"
+            None,
+            "--values",
+            help="Upper bounds of the classes, e.g. '0,2,5,10'; needs --scheme manual (with "
+            "another scheme it is an error, never ignored).",
+            panel="Classes",
         ),
     ),
     _param(

@@ -82,7 +82,9 @@ def run_cmd(
     basis: Optional[str] = _o(None, "--basis", help="pooled, per-period or period:YEAR."),
     breaks_file: Optional[Path] = _o(None, "--breaks-file", help="Reuse saved breaks."),
     values: Optional[str] = _o(
-        None, "--values", help="Manual scheme: upper bounds, e.g. '0,2,5,10'."
+        None,
+        "--values",
+        help="Upper bounds of the classes, e.g. '0,2,5,10'; needs --scheme manual.",
     ),
     jump: Optional[int] = _o(None, "--jump", help="Classes moved in one step that flag a jump."),
     weights: Optional[str] = _o(
