@@ -357,3 +357,25 @@ def test_rows_without_id_or_period_are_counted(layer_file, table_file):
     p = load_panel(spec(layer, table_file(csv)))
     assert find(p, "ids-blank-rows").message.endswith("1 row with no unit ID left out")
     assert "1 row with no period" in find(p, "periods-blank-rows").message
+
+
+def test_regex_pattern_never_becomes_the_title(layer_file, table_file):
+    # --columns '(\d{4})' matches 2018, 2019, ...: the pattern itself is no name for a title
+    # or legend; a plain word and a note naming --variable instead
+    layer = layer_file(n_side=2)
+    ids = [f"{i + 1:05d}" for i in range(4)]
+    rows = [{"unit_id": u, "2018": 1.0 + i, "2019": 2.0 + i} for i, u in enumerate(ids)]
+    table = table_file(rows)
+    p = load_panel(InputSpec(geometry=layer, table=table, id="unit_id", columns=r"(\d{4})"))
+    assert p.meta.variable == "value"
+    assert "--variable" in find(p, "variable-unnamed").message
+    # a name the user gave, or a plain pattern's words, stay as written
+    p = load_panel(
+        InputSpec(geometry=layer, table=table, id="unit_id", columns=r"(\d{4})", variable="Rate")
+    )
+    assert p.meta.variable == "Rate" and "variable-unnamed" not in codes(p)
+    rows = [{"unit_id": u, "rate_2018": 1.0, "rate_2019": 2.0} for u in ids]
+    p = load_panel(
+        InputSpec(geometry=layer, table=table_file(rows, "w.csv"), id="unit_id", columns="rate_*")
+    )
+    assert p.meta.variable == "rate" and "variable-unnamed" not in codes(p)
