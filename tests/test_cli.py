@@ -206,3 +206,17 @@ def test_values_without_manual_scheme_is_a_usage_error(runner):
     r = runner.invoke(app, [*args, "--scheme", "manual"])
     assert r.exit_code == 0, r.output
     assert "manual" in r.output
+
+
+def test_help_texts_are_consistent(runner):
+    # every default written as [default: ...], placeholders readable, the seed's real value;
+    # exit codes of Ctrl-C (130) and a closed pipe (141) listed
+    from mapdrift.clusters.core import DEFAULT_SEED
+
+    top = runner.invoke(app, ["--help"]).output
+    assert "130" in top and "141" in top
+    for cmd in ("check", "breaks", "animate", "changes", "clusters", "run", "demo", "explore"):
+        out = runner.invoke(app, [cmd, "--help"]).output
+        assert "(default:" not in out and "<list" not in out and "default: fixed" not in out, cmd
+    assert f"[default: {DEFAULT_SEED}]" in runner.invoke(app, ["clusters", "--help"]).output
+    assert "--append <path>" in runner.invoke(app, ["check", "--help"]).output

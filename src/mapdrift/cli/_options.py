@@ -205,6 +205,7 @@ _INPUT_PARAMS = [
         _opt(
             None,
             "--append",
+            metavar="<path>",
             help="Another table of the same columns to add (repeatable), e.g. next year's release.",
         ),
     ),

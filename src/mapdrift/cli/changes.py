@@ -44,22 +44,22 @@ def changes(
     config: Any = None,
     out: Path = typer.Option(..., "--out", help="Folder for the tables, charts and maps."),
     jump: Optional[int] = typer.Option(
-        None, "--jump", help="Flag moves of this many classes or more in one step (default: 2)."
+        None, "--jump", help="Flag moves of this many classes or more in one step [default: 2]."
     ),
     spike_window: Optional[int] = typer.Option(
         None,
         "--spike-window",
-        help="A jump undone within this many periods is a spike, often a data error (default: 2).",
+        help="A jump undone within this many periods is a spike, often a data error [default: 2].",
     ),
     persist: Optional[int] = typer.Option(
         None,
         "--persist",
-        help="Flag units in the top/bottom class for each of the last N periods (default: 3).",
+        help="Flag units in the top/bottom class for each of the last N periods [default: 3].",
     ),
     bridge_gaps: Optional[bool] = typer.Option(
         None,
         "--bridge-gaps/--no-bridge-gaps",
-        help="Count steps across missing periods (e.g. 2016 -> 2018) (default: no).",
+        help="Count steps across missing periods (e.g. 2016 -> 2018) [default: no].",
     ),
     relative: Optional[Relative] = typer.Option(
         None,
@@ -71,12 +71,12 @@ def changes(
         None,
         "--weights",
         help="Neighbours for the spatially conditioned transitions: queen, rook, knn:6, "
-        "distance:2500 (metres), fuzzy, or a .gal/.gwt file (default: queen).",
+        "distance:2500 (metres), fuzzy, or a .gal/.gwt file [default: queen].",
     ),
     spatial: Optional[bool] = typer.Option(
         None,
         "--spatial/--no-spatial",
-        help="Compute transitions conditioned on the neighbours' class (default: yes).",
+        help="Compute transitions conditioned on the neighbours' class [default: yes].",
     ),
     pictures: bool = typer.Option(
         True, "--pictures/--no-pictures", help="Draw the charts and maps (PNG)."

@@ -59,9 +59,10 @@ def run_cmd(
     previous: Optional[Path] = _o(
         None, "--previous", help="Last year's run folder: reuse its breaks and report what is new."
     ),
-    append: Optional[list[Path]] = _o(
+    append: Optional[list[Path]] = typer.Option(
         None,
         "--append",
+        metavar="<path>",
         help="Another values table to add, e.g. next year's release (repeatable; added to the "
         "config's [inputs] append). Long tables need the same columns; a wide table may hold "
         "only the ID and the new periods' columns.",
@@ -95,14 +96,17 @@ def run_cmd(
     ),
     alpha: Optional[float] = _o(None, "--alpha", help="Significance level."),
     correction: Optional[str] = _o(None, "--correction", help="fdr, bonferroni or none."),
-    seed: Optional[int] = _o(None, "--seed", help="Seed of the permutation tests."),
+    seed: Optional[int] = _o(
+        None, "--seed", help="Seed of the permutation tests [default: the config's, else 20240917]."
+    ),
     title: Optional[str] = _o(None, "--title", help="Title of the report and slides."),
     unit_noun: Optional[str] = _o(
         None, "--unit-noun", help="What the units are called in titles, e.g. tracts."
     ),
-    settings: Optional[list[str]] = _o(
+    settings: Optional[list[str]] = typer.Option(
         None,
         "--set",
+        metavar="<section.key=value>",
         help="Override any config key: SECTION.KEY=VALUE (repeatable), e.g. --set animate.size=1920x1080.",
     ),
 ) -> None:
