@@ -497,7 +497,7 @@ def _plain_names(panel: Panel, spec: InputSpec) -> Panel:
         return panel
     pattern = spec.columns or spec.numerator
     msg = (
-        f"the column pattern {pattern!r} gives no name for titles, so {notes[0]}; pass "
+        f"the column pattern '{pattern}' gives no name for titles, so {notes[0]}; pass "
         "--variable (and --unit-label), e.g. --variable 'Filing rate', to name them"
     )
     return replace(

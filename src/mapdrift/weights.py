@@ -71,8 +71,9 @@ WEIGHT_KINDS: tuple[str, ...] = ("queen", "rook", "knn:K", "distance:M", "fuzzy"
 WEIGHT_FILES: tuple[str, ...] = (".gal", ".gwt")
 #: What to do with units that have no neighbour.
 ISLAND_RULES: tuple[str, ...] = ("nearest", "exclude")
-#: Version of the cache file layout (bump on change so old caches are ignored).
-_CACHE_VERSION = "mapdrift-weights/1"
+#: Version of the cache file layout and its findings' texts (bump on change so old caches are
+#: ignored).
+_CACHE_VERSION = "mapdrift-weights/2"
 #: Default fuzzy tolerance as a share of the median unit's bounding-box diagonal.
 FUZZY_SHARE = 0.005
 
