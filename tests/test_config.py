@@ -82,12 +82,17 @@ def test_set_overrides_any_key():
     assert cfg.section("animate")["size"] == (1920, 1080)
     # the small-base hint tells `run` users to pass --set clusters.smooth=eb: it must be valid
     section, key, value = parse_setting("clusters.smooth=eb")
-    assert load_config(DEMO / "demo.toml").with_values(section, {key: value}).section(
-        "clusters"
-    )["smooth"] == "eb"
+    assert (
+        load_config(DEMO / "demo.toml")
+        .with_values(section, {key: value})
+        .section("clusters")["smooth"]
+        == "eb"
+    )
     # ... and so for the other hints that point `run` to a config key
     for text in ("clusters.islands=exclude", "changes.bridge_gaps=true", "animate.min_unit_px=3"):
         section, key, value = parse_setting(text)
-        assert load_config(DEMO / "demo.toml").with_values(section, {key: value}).section(section)[key]
+        assert (
+            load_config(DEMO / "demo.toml").with_values(section, {key: value}).section(section)[key]
+        )
     with pytest.raises(ConfigError, match="SECTION.KEY=VALUE"):
         parse_setting("permutations")
