@@ -456,8 +456,8 @@ def _step_changes(state: RunState) -> str:
     write_changes(result, state.staging, units_table=False)
     change_pictures(result, panel, state.staging, look=_look(state))
     n_jump = int(result.units["jump"].sum())
-    up = int((result.net_change > 0).sum())
-    down = int((result.net_change < 0).sum())
+    net = result.credible_net_change
+    up, down = int((net > 0).sum()), int((net < 0).sum())
     if not result.tested:
         return (
             f"{plural(up, 'unit')} up, {down:,} down first to last; {plural(n_jump, 'unit')} "
@@ -466,8 +466,9 @@ def _step_changes(state: RunState) -> str:
         )
     noise = int(((result.units["n_noise_moves"] > 0) & ~result.units["jump"]).sum())
     return (
-        f"{plural(up, 'unit')} up, {down:,} down first to last; {plural(n_jump, 'unit')} "
-        f"credibly jumped {opt.jump}+ classes ({noise:,} more moved within count noise)"
+        f"{plural(up, 'unit')} credibly up, {down:,} down first to last ({result.n_net_noise:,} "
+        f"more moved within count noise); {plural(n_jump, 'unit')} credibly jumped {opt.jump}+ "
+        f"classes ({noise:,} more moved within count noise)"
     )
 
 
