@@ -379,3 +379,15 @@ def test_regex_pattern_never_becomes_the_title(layer_file, table_file):
         InputSpec(geometry=layer, table=table_file(rows, "w.csv"), id="unit_id", columns="rate_*")
     )
     assert p.meta.variable == "rate" and "variable-unnamed" not in codes(p)
+    # a long table's value column keeps its name even with regex-like characters in it
+    rows = [{"unit_id": u, "year": y, "cases+deaths": 1.0} for u in ids for y in (2018, 2019)]
+    p = load_panel(
+        InputSpec(
+            geometry=layer,
+            table=table_file(rows, "l.csv"),
+            id="unit_id",
+            period="year",
+            value="cases+deaths",
+        )
+    )
+    assert p.meta.variable == "cases+deaths" and "variable-unnamed" not in codes(p)

@@ -486,6 +486,9 @@ def _plain_names(panel: Panel, spec: InputSpec) -> Panel:
     """A variable name (or unit label) that would come out of a regex column pattern, such as
     ``(\\d{4})``, replaced by a plain word, with a note naming ``--variable``; names the user
     gave, and real column names, stay as written."""
+    pattern = (spec.numerator or spec.columns) if spec.period is None else None
+    if not pattern or "(" not in pattern:  # the loader reads a pattern with "(" as a regex
+        return panel
     meta, notes = panel.meta, []
     if spec.variable is None and _REGEX_MARKS & set(meta.variable):
         word = "rate" if spec.numerator else "value"
@@ -495,7 +498,6 @@ def _plain_names(panel: Panel, spec: InputSpec) -> Panel:
         meta = replace(meta, unit_label="")
     if not notes:
         return panel
-    pattern = spec.columns or spec.numerator
     msg = (
         f"the column pattern '{pattern}' gives no name for titles, so {notes[0]}; pass "
         "--variable (and --unit-label), e.g. --variable 'Filing rate', to name them"
