@@ -108,6 +108,7 @@ def _pipe_closed() -> int:
     try:
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
     except (OSError, ValueError, AttributeError):  # not a real file (e.g. a test runner's)
         pass
     return 141
