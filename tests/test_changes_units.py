@@ -147,6 +147,9 @@ def test_flag_categories_for_the_map():
     assert {"changes-spikes", "changes-jumps", "changes-gap-skipped"} <= codes
     spikes = next(f for f in res.findings if f.code == "changes-spikes")
     assert spikes.units == ("spike",)
+    assert spikes.message.startswith("1 unit jumped and came straight back")  # not "1 units"
+    gap = next(f for f in res.findings if f.code == "changes-gap-skipped")
+    assert "mapdrift changes --bridge-gaps" in gap.message and "bridge_gaps = true" in gap.message
 
 
 def test_bad_options_are_clear():

@@ -166,3 +166,57 @@ def test_run_usage_and_output_exists(runner, tmp_path):
     r = runner.invoke(app, ["run", str(DEMO / "demo.toml"), "--out", str(out)])
     assert r.exit_code == 3 and "--force" in r.output
     assert (out / "report.html").read_text() == "last year's"
+
+
+def test_closed_stdout_pipe_ends_quietly():
+    # `mapdrift check ... | head -1`: a reader that goes away ends the command without a
+    # traceback or "internal error", exit 141 as for SIGPIPE (common practice, no source).
+    args = ["check", "--config", str(DEMO / "demo.toml"), "--min-base", "4000"]
+    code = "import sys; from mapdrift.cli import console; console()"
+    proc = subprocess.Popen(
+        [sys.executable, "-c", code, *args],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+    )
+    proc.stdout.close()  # the reader is gone before the first line is written
+    err = proc.stderr.read().decode()
+    proc.wait(timeout=120)
+    assert proc.returncode in (0, 141), err
+    assert "internal error" not in err and "Traceback" not in err and "Broken" not in err
+
+
+def test_global_flags_after_the_command(runner, layer_file):
+    # the error hints say "run with --debug": it must work after the command name too
+    missing = str(layer_file(n_side=2).with_name("nope.gpkg"))
+    r = runner.invoke(app, ["check", missing, "--debug"])
+    assert r.exit_code != 0 and r.exception is not None and "No such option" not in r.output
+    r = runner.invoke(app, ["check", missing, "-q"])
+    assert r.exit_code == 1 and "No such option" not in r.output
+    for cmd in ("check", "breaks", "animate", "changes", "clusters", "run", "demo", "explore"):
+        out = runner.invoke(app, [cmd, "--help"]).output
+        assert "--debug" in out and "--quiet" in out and "--verbose" in out, cmd
+
+
+def test_values_without_manual_scheme_is_a_usage_error(runner):
+    # --values are manual bounds: fitting quantiles instead would ignore them silently
+    args = ["breaks", "--config", str(DEMO / "demo.toml"), "--values", "1,2,3"]
+    r = runner.invoke(app, args)
+    assert r.exit_code == 2 and "--scheme manual" in r.output and "1,2,3" in r.output
+    assert len(r.output.strip().splitlines()) == 1
+    r = runner.invoke(app, [*args, "--scheme", "manual"])
+    assert r.exit_code == 0, r.output
+    assert "manual" in r.output
+
+
+def test_help_texts_are_consistent(runner):
+    # every default written as [default: ...], placeholders readable, the seed's real value;
+    # exit codes of Ctrl-C (130) and a closed pipe (141) listed
+    from mapdrift.clusters.core import DEFAULT_SEED
+
+    top = runner.invoke(app, ["--help"]).output
+    assert "130" in top and "141" in top
+    for cmd in ("check", "breaks", "animate", "changes", "clusters", "run", "demo", "explore"):
+        out = runner.invoke(app, [cmd, "--help"]).output
+        assert "(default:" not in out and "<list" not in out and "default: fixed" not in out, cmd
+    assert f"[default: {DEFAULT_SEED}]" in runner.invoke(app, ["clusters", "--help"]).output
+    assert "--append <path>" in runner.invoke(app, ["check", "--help"]).output

@@ -80,5 +80,19 @@ def test_set_overrides_any_key():
     assert parse_setting("previous=outputs/2024") == ("run", "previous", "outputs/2024")
     cfg = load_config(DEMO / "demo.toml").with_values("animate", {"size": "1920x1080"})
     assert cfg.section("animate")["size"] == (1920, 1080)
+    # the small-base hint tells `run` users to pass --set clusters.smooth=eb: it must be valid
+    section, key, value = parse_setting("clusters.smooth=eb")
+    assert (
+        load_config(DEMO / "demo.toml")
+        .with_values(section, {key: value})
+        .section("clusters")["smooth"]
+        == "eb"
+    )
+    # ... and so for the other hints that point `run` to a config key
+    for text in ("clusters.islands=exclude", "changes.bridge_gaps=true", "animate.min_unit_px=3"):
+        section, key, value = parse_setting(text)
+        assert (
+            load_config(DEMO / "demo.toml").with_values(section, {key: value}).section(section)[key]
+        )
     with pytest.raises(ConfigError, match="SECTION.KEY=VALUE"):
         parse_setting("permutations")

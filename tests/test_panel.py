@@ -187,6 +187,10 @@ def test_rates_from_counts(layer_file, table_file):
     assert p.values[0, 0] == pytest.approx(5.0) and p.values[3, 0] == pytest.approx(5.0)
     assert np.isnan(p.values[2, 0])
     assert "rates-zero-base" in codes(p) and find(p, "rates-small-base").units == ("00002",)
+    # the hint names only what exists: --smooth on `clusters`, the config key / --set for `run`
+    hint = find(p, "rates-small-base").message
+    assert "mapdrift clusters --smooth eb" in hint and "--set clusters.smooth=eb" in hint
+    assert "(--smooth" not in hint
     assert p.numerator is not None and p.denominator[0, 0] == 1000
 
 
@@ -353,3 +357,37 @@ def test_rows_without_id_or_period_are_counted(layer_file, table_file):
     p = load_panel(spec(layer, table_file(csv)))
     assert find(p, "ids-blank-rows").message.endswith("1 row with no unit ID left out")
     assert "1 row with no period" in find(p, "periods-blank-rows").message
+
+
+def test_regex_pattern_never_becomes_the_title(layer_file, table_file):
+    # --columns '(\d{4})' matches 2018, 2019, ...: the pattern itself is no name for a title
+    # or legend; a plain word and a note naming --variable instead
+    layer = layer_file(n_side=2)
+    ids = [f"{i + 1:05d}" for i in range(4)]
+    rows = [{"unit_id": u, "2018": 1.0 + i, "2019": 2.0 + i} for i, u in enumerate(ids)]
+    table = table_file(rows)
+    p = load_panel(InputSpec(geometry=layer, table=table, id="unit_id", columns=r"(\d{4})"))
+    assert p.meta.variable == "value"
+    assert "--variable" in find(p, "variable-unnamed").message
+    # a name the user gave, or a plain pattern's words, stay as written
+    p = load_panel(
+        InputSpec(geometry=layer, table=table, id="unit_id", columns=r"(\d{4})", variable="Rate")
+    )
+    assert p.meta.variable == "Rate" and "variable-unnamed" not in codes(p)
+    rows = [{"unit_id": u, "rate_2018": 1.0, "rate_2019": 2.0} for u in ids]
+    p = load_panel(
+        InputSpec(geometry=layer, table=table_file(rows, "w.csv"), id="unit_id", columns="rate_*")
+    )
+    assert p.meta.variable == "rate" and "variable-unnamed" not in codes(p)
+    # a long table's value column keeps its name even with regex-like characters in it
+    rows = [{"unit_id": u, "year": y, "cases+deaths": 1.0} for u in ids for y in (2018, 2019)]
+    p = load_panel(
+        InputSpec(
+            geometry=layer,
+            table=table_file(rows, "l.csv"),
+            id="unit_id",
+            period="year",
+            value="cases+deaths",
+        )
+    )
+    assert p.meta.variable == "cases+deaths" and "variable-unnamed" not in codes(p)

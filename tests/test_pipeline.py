@@ -172,3 +172,16 @@ def test_demo_stories_found_and_noise_named(demo_run):
         assert len(hh & hot) >= 0.6 * len(hot), (year, sorted(hh & hot))
     report = (out / "report.md").read_text()
     assert "credibly jumped" in report and "within count noise" in report
+
+
+def test_tables_and_wording_read_cleanly(demo_run):
+    # every CSV of a run writes booleans as true / false (README's outputs table), never as
+    # pandas' True / False; the report's cluster line reads as a phrase
+    for path in sorted(demo_run.out.glob("*.csv")):
+        text = path.read_text(encoding="utf-8")
+        assert not re.search(r"(^|,)(True|False)(,|$)", text, re.M), path.name
+    jumps = (demo_run.out / "jumps.csv").read_text(encoding="utf-8")
+    assert ",true," in jumps or ",false," in jumps
+    report = (demo_run.out / "report.md").read_text(encoding="utf-8")
+    assert not re.search(r"\(\d[\d,]* in one in", report)
+    assert re.search(r"\(\d[\d,]* of them still in one in \d{4}\)", report)

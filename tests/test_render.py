@@ -178,6 +178,9 @@ def test_sub_pixel_units_are_reported_and_drawn_as_dots():
     )
     assert [f.code for f in r.findings] == ["units-below-pixel"]
     assert r.findings[0].units == ("u60",) and "--min-unit-px" in r.findings[0].message
+    # the flag exists on `animate` only; `run` reads the config key (test_config checks keys)
+    assert "mapdrift animate --min-unit-px 3" in r.findings[0].message
+    assert "[animate] min_unit_px = 3" in r.findings[0].message
     r.close()
     r = FrameRenderer(
         geo, codes, ["#dddddd", "#13266f"], ["a", "b"], ["x"], units=ids, title="t", min_unit_px=5

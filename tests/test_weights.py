@@ -81,7 +81,11 @@ def test_island_rules(rule):
     assert w.islands == (9,)
     codes = [f.code for f in w.findings]
     assert "weights-islands" in codes
-    assert "u9" in next(f for f in w.findings if f.code == "weights-islands").units
+    island = next(f for f in w.findings if f.code == "weights-islands")
+    assert "u9" in island.units
+    if rule == "nearest":  # the flag exists on `clusters` only; `run` takes the config key
+        assert "mapdrift clusters --islands exclude" in island.message
+        assert "--set clusters.islands=exclude" in island.message
     if rule == "nearest":
         # nearest polygon to (10..11, 10..11) is the top-right lattice cell (index 8)
         assert w.neighbours(9).tolist() == [8] and 9 in w.neighbours(8)

@@ -55,6 +55,12 @@ class ClassSpec:
             raise ConfigError(f"k = {self.k} classes is out of range; choose k from 2 to 9")
         if scheme is Scheme.MANUAL and not self.values:
             raise ConfigError("scheme manual needs break values, e.g. --values 0,2,5,10")
+        if self.values and scheme is not Scheme.MANUAL:  # never fit quantiles over given bounds
+            bounds = ",".join(f"{v:g}" for v in self.values)
+            raise ConfigError(
+                f"--values {bounds} are the upper bounds of the manual scheme, but the scheme is "
+                f'{scheme.value}: add --scheme manual ([classes] scheme = "manual") or drop --values'
+            )
         parse_basis(self.basis)
 
 

@@ -62,4 +62,6 @@ EXIT_CODES: dict[int, str] = {
     3: "output exists (pass --force to replace an earlier run), or --out is not an earlier run's "
     "folder, or another run is writing to it",
     4: "a step or encoder failed (e.g. ffmpeg missing); earlier outputs untouched",
+    130: "interrupted (Ctrl-C)",
+    141: "the reader of the output closed it early (e.g. `| head -1`); nothing more printed",
 }

@@ -90,6 +90,27 @@ def _defuse_column(col: pd.Series) -> pd.Series | None:
     return pd.Series(values, index=col.index, name=col.name, dtype=object)
 
 
+def _bool_text(col: pd.Series) -> pd.Series | None:
+    """A column of booleans (with blanks allowed) as ``true``/``false`` text, else None.
+
+    pandas writes ``True``/``False``; the tables say ``true``/``false`` throughout, as JSON
+    and most readers do (pandas reads both back as booleans).
+    """
+    import numpy as np
+    import pandas as pd
+
+    kind = str(col.dtype)
+    if kind == "bool":
+        return pd.Series(
+            np.where(col.to_numpy(), "true", "false"), index=col.index, name=col.name, dtype=object
+        )
+    if kind != "boolean" and kind != "object":
+        return None
+    if pd.api.types.infer_dtype(col, skipna=True) != "boolean":
+        return None
+    return col.map({True: "true", False: "false"}).astype(object)
+
+
 def write_csv(
     df: pd.DataFrame,
     path: Path,
@@ -104,6 +125,10 @@ def write_csv(
     vectorised (see :func:`_defuse_column`).
     """
     out = df.copy(deep=False)
+    for col in out.columns:  # booleans as true / false in every table (README, outputs)
+        text = _bool_text(out[col])
+        if text is not None:
+            out[col] = text
     for col in out.columns:
         if out[col].dtype == object or str(out[col].dtype) in ("string", "str", "category"):
             fixed = _defuse_column(out[col])

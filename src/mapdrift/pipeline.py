@@ -460,14 +460,15 @@ def _step_changes(state: RunState) -> str:
     up, down = int((net > 0).sum()), int((net < 0).sum())
     if not result.tested:
         return (
-            f"{up:,} units up, {down:,} down first to last; {n_jump:,} units jumped {opt.jump}+ "
+            f"{plural(up, 'unit')} up, {down:,} down first to last; {plural(n_jump, 'unit')} "
+            f"jumped {opt.jump}+ "
             "classes (not tested against noise: no counts)"
         )
     noise = int(((result.units["n_noise_moves"] > 0) & ~result.units["jump"]).sum())
     return (
-        f"{up:,} units credibly up, {down:,} down first to last ({result.n_net_noise:,} more "
-        f"moved within count noise); {n_jump:,} units credibly jumped {opt.jump}+ classes "
-        f"({noise:,} more moved within count noise)"
+        f"{plural(up, 'unit')} credibly up, {down:,} down first to last ({result.n_net_noise:,} "
+        f"more moved within count noise); {plural(n_jump, 'unit')} credibly jumped {opt.jump}+ "
+        f"classes ({noise:,} more moved within count noise)"
     )
 
 

@@ -71,8 +71,9 @@ WEIGHT_KINDS: tuple[str, ...] = ("queen", "rook", "knn:K", "distance:M", "fuzzy"
 WEIGHT_FILES: tuple[str, ...] = (".gal", ".gwt")
 #: What to do with units that have no neighbour.
 ISLAND_RULES: tuple[str, ...] = ("nearest", "exclude")
-#: Version of the cache file layout (bump on change so old caches are ignored).
-_CACHE_VERSION = "mapdrift-weights/1"
+#: Version of the cache file layout and its findings' texts (bump on change so old caches are
+#: ignored).
+_CACHE_VERSION = "mapdrift-weights/2"
 #: Default fuzzy tolerance as a share of the median unit's bounding-box diagonal.
 FUZZY_SHARE = 0.005
 
@@ -448,9 +449,13 @@ def build_weights(
         shown = ", ".join(_unit_ids(ids, island_idx[:5]))
         if islands == "nearest":
             m = _attach_nearest(geoms, m, island_idx)
-            what = 'linked to the nearest unit (--islands nearest; --islands exclude or [clusters] islands = "exclude" leaves them out)'
+            what = (
+                "linked to the nearest unit; to leave them out pass `mapdrift clusters "
+                '--islands exclude`, or for `mapdrift run` set [clusters] islands = "exclude" '
+                "(--set clusters.islands=exclude)"
+            )
         else:
-            what = "left without neighbours and labelled isolated (--islands exclude)"
+            what = "left without neighbours and labelled isolated (islands = exclude)"
         findings.append(
             Finding(
                 "warning",

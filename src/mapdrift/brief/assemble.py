@@ -108,7 +108,7 @@ def headline(state: BriefInputs) -> list[tuple[str, str]]:
         out.append(
             (
                 f"{u} that entered (or re-entered) a high-high cluster between {per[0]} and "
-                f"{per[-1]} ({int(still.sum()):,} in one in {per[-1]})",
+                f"{per[-1]} ({int(still.sum()):,} of them still in one in {per[-1]})",
                 f"{int(joined.sum()):,}",
             )
         )

@@ -37,7 +37,7 @@ from mapdrift.changes.trajectories import (
 )
 from mapdrift.changes.transitions import Transitions, class_labels, count_transitions
 from mapdrift.errors import ConfigError
-from mapdrift.findings import Finding, examples
+from mapdrift.findings import Finding, examples, plural
 
 if TYPE_CHECKING:
     import geopandas as gpd
@@ -327,7 +327,8 @@ def _findings(
                 "warning",
                 "changes-gap-skipped",
                 f"{len(pairs)} step(s) between periods span missing periods "
-                f"({examples(pairs)}) and were not counted; pass --bridge-gaps to count them",
+                f"({examples(pairs)}) and were not counted; to count them pass `mapdrift changes "
+                "--bridge-gaps`, or for `mapdrift run` set [changes] bridge_gaps = true",
             )
         )
     if any(tr.gap_steps):
@@ -388,7 +389,7 @@ def _findings(
             Finding(
                 "warning",
                 "changes-spikes",
-                f"{len(ids)} units jumped and came straight back ({examples(ids)}); "
+                f"{plural(len(ids), 'unit')} jumped and came straight back ({examples(ids)}); "
                 "check these values for data errors",
                 ids,
             )
@@ -401,7 +402,7 @@ def _findings(
             Finding(
                 "note",
                 "changes-jumps",
-                f"{len(ids)} units {what} {jump} or more classes in one step ({examples(ids)})",
+                f"{plural(len(ids), 'unit')} {what} {jump} or more classes in one step ({examples(ids)})",
                 ids,
             )
         )

@@ -205,6 +205,7 @@ _INPUT_PARAMS = [
         _opt(
             None,
             "--append",
+            metavar="<path>",
             help="Another table of the same columns to add (repeatable), e.g. next year's release.",
         ),
     ),
@@ -288,7 +289,11 @@ _CLASS_PARAMS = [
         "values",
         Optional[str],
         _opt(
-            None, "--values", help="Manual scheme: upper bounds, e.g. '0,2,5,10'.", panel="Classes"
+            None,
+            "--values",
+            help="Upper bounds of the classes, e.g. '0,2,5,10'; needs --scheme manual (with "
+            "another scheme it is an error, never ignored).",
+            panel="Classes",
         ),
     ),
     _param(

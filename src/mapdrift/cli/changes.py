@@ -18,6 +18,7 @@ from mapdrift.cli._app import command
 from mapdrift.cli._data import load_data, summarise
 from mapdrift.cli._options import class_options, input_options
 from mapdrift.cli._print import echo, print_findings
+from mapdrift.findings import plural
 
 
 class Relative(str, Enum):
@@ -43,22 +44,22 @@ def changes(
     config: Any = None,
     out: Path = typer.Option(..., "--out", help="Folder for the tables, charts and maps."),
     jump: Optional[int] = typer.Option(
-        None, "--jump", help="Flag moves of this many classes or more in one step (default: 2)."
+        None, "--jump", help="Flag moves of this many classes or more in one step [default: 2]."
     ),
     spike_window: Optional[int] = typer.Option(
         None,
         "--spike-window",
-        help="A jump undone within this many periods is a spike, often a data error (default: 2).",
+        help="A jump undone within this many periods is a spike, often a data error [default: 2].",
     ),
     persist: Optional[int] = typer.Option(
         None,
         "--persist",
-        help="Flag units in the top/bottom class for each of the last N periods (default: 3).",
+        help="Flag units in the top/bottom class for each of the last N periods [default: 3].",
     ),
     bridge_gaps: Optional[bool] = typer.Option(
         None,
         "--bridge-gaps/--no-bridge-gaps",
-        help="Count steps across missing periods (e.g. 2016 -> 2018) (default: no).",
+        help="Count steps across missing periods (e.g. 2016 -> 2018) [default: no].",
     ),
     relative: Optional[Relative] = typer.Option(
         None,
@@ -70,12 +71,12 @@ def changes(
         None,
         "--weights",
         help="Neighbours for the spatially conditioned transitions: queen, rook, knn:6, "
-        "distance:2500 (metres), fuzzy, or a .gal/.gwt file (default: queen).",
+        "distance:2500 (metres), fuzzy, or a .gal/.gwt file [default: queen].",
     ),
     spatial: Optional[bool] = typer.Option(
         None,
         "--spatial/--no-spatial",
-        help="Compute transitions conditioned on the neighbours' class (default: yes).",
+        help="Compute transitions conditioned on the neighbours' class [default: yes].",
     ),
     pictures: bool = typer.Option(
         True, "--pictures/--no-pictures", help="Draw the charts and maps (PNG)."
@@ -144,11 +145,11 @@ def changes(
     u = result.units
     noise = int(((u["n_noise_moves"] > 0) & ~u["jump"]).sum())
     echo(
-        f"flagged: {int(u['jump'].sum())} units {'credibly ' if result.tested else ''}jumped "
+        f"flagged: {plural(int(u['jump'].sum()), 'unit')} {'credibly ' if result.tested else ''}jumped "
         f"{options.jump}+ classes"
-        + (f" ({noise} more moved within count noise)" if result.tested else "")
-        + f", {int(u['spike'].sum())} spikes, {int(u['stayed_top'].sum())} stayed in top class, "
-        f"{int(u['stayed_bottom'].sum())} stayed in bottom class"
+        + (f" ({noise:,} more moved within count noise)" if result.tested else "")
+        + f", {plural(int(u['spike'].sum()), 'spike')}, {int(u['stayed_top'].sum()):,} stayed in "
+        f"top class, {int(u['stayed_bottom'].sum()):,} stayed in bottom class"
     )
     echo(result.noise_text)
     if cls.warning:  # (result.warning also names the view, said in the summary above)

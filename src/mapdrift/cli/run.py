@@ -59,9 +59,10 @@ def run_cmd(
     previous: Optional[Path] = _o(
         None, "--previous", help="Last year's run folder: reuse its breaks and report what is new."
     ),
-    append: Optional[list[Path]] = _o(
+    append: Optional[list[Path]] = typer.Option(
         None,
         "--append",
+        metavar="<path>",
         help="Another values table to add, e.g. next year's release (repeatable; added to the "
         "config's [inputs] append). Long tables need the same columns; a wide table may hold "
         "only the ID and the new periods' columns.",
@@ -82,7 +83,9 @@ def run_cmd(
     basis: Optional[str] = _o(None, "--basis", help="pooled, per-period or period:YEAR."),
     breaks_file: Optional[Path] = _o(None, "--breaks-file", help="Reuse saved breaks."),
     values: Optional[str] = _o(
-        None, "--values", help="Manual scheme: upper bounds, e.g. '0,2,5,10'."
+        None,
+        "--values",
+        help="Upper bounds of the classes, e.g. '0,2,5,10'; needs --scheme manual.",
     ),
     jump: Optional[int] = _o(None, "--jump", help="Classes moved in one step that flag a jump."),
     weights: Optional[str] = _o(
@@ -93,14 +96,17 @@ def run_cmd(
     ),
     alpha: Optional[float] = _o(None, "--alpha", help="Significance level."),
     correction: Optional[str] = _o(None, "--correction", help="fdr, bonferroni or none."),
-    seed: Optional[int] = _o(None, "--seed", help="Seed of the permutation tests."),
+    seed: Optional[int] = _o(
+        None, "--seed", help="Seed of the permutation tests [default: the config's, else 20240917]."
+    ),
     title: Optional[str] = _o(None, "--title", help="Title of the report and slides."),
     unit_noun: Optional[str] = _o(
         None, "--unit-noun", help="What the units are called in titles, e.g. tracts."
     ),
-    settings: Optional[list[str]] = _o(
+    settings: Optional[list[str]] = typer.Option(
         None,
         "--set",
+        metavar="<section.key=value>",
         help="Override any config key: SECTION.KEY=VALUE (repeatable), e.g. --set animate.size=1920x1080.",
     ),
 ) -> None:

@@ -252,7 +252,8 @@ class LabelRaster:
             fix = (
                 f"they are drawn as {min_unit_px:g}-pixel dots"
                 if min_unit_px > 0
-                else "pass --min-unit-px 3 to draw them as dots, or a larger --size"
+                else "to draw them as dots pass `mapdrift animate --min-unit-px 3` (or a larger "
+                "--size), or for `mapdrift run` set [animate] min_unit_px = 3"
             )
             findings.append(
                 Finding(
