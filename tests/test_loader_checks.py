@@ -158,7 +158,7 @@ def test_negative_checks_alone():
 
 
 # -- 3. a typo period --------------------------------------------------------------------------
-def test_typo_year_is_named_kept_and_not_counted_as_gaps(layer_file, table_file):
+def test_stray_rows_of_a_typo_year_are_named_and_left_out(layer_file, table_file):
     rows = long_rows(IDS, YEARS)
     for k in (1, 10, 19):  # units 00001-00003, 2016 written 2109
         rows[k]["year"] = 2109
@@ -166,14 +166,15 @@ def test_typo_year_is_named_kept_and_not_counted_as_gaps(layer_file, table_file)
     f = _find(p, "periods-outlying")
     assert f.level == "warning"
     assert f.message.startswith("rates.csv column 'year': period 2109 sits 86 years after")
-    assert "(2015 to 2023, 1 year apart) in 3 rows" in f.message
-    assert "correct those rows in the source" in f.message
+    assert "(2015 to 2023, 1 year apart) in 3 rows (units 00001, 00002, 00003)" in f.message
+    assert "left out of the map" in f.message and "correct the period" in f.message
     assert set(f.units) == {"00001", "00002", "00003"}
-    # kept (nothing dropped silently): 10 periods, the typo's three values in the last column
-    assert p.periods[-1] == 2109 and p.n_periods == 10
-    assert np.isfinite(p.values[:, -1]).sum() == 3
-    # the gap 2024..2108 is not listed; the real gap (2016 lost to the typo for 3 units) is not
-    # a gap either, since other units have 2016
+    # 3 rows among 9 a year would make a last frame of their own ("2015 to 2109" in every
+    # headline): they are left out, counted in the warning; the units keep their other years
+    assert p.periods == tuple(YEARS) and p.n_units == 9
+    assert np.isnan(p.values[:3, 1]).all() and np.isfinite(p.values[3:, 1]).all()
+    assert np.isfinite(p.values[:3, [0, *range(2, 9)]]).all()
+    # neither 2024..2108 nor anything else is listed as a gap
     assert "periods-gap" not in _codes(p)
 
 
@@ -202,6 +203,9 @@ def test_missing_year_and_typo_in_a_wide_column(layer_file, table_file):
     f = _find(p, "periods-outlying")
     assert "period 2042 (column rate_2042) sits 18 years after the others" in f.message
     assert "in 9 rows" in f.message and len(f.units) == 9
+    # a whole column of values is a period's data: kept as its own period
+    assert "kept as its own period" in f.message and "(rename the column)" in f.message
+    assert p.periods[-1] == 2042 and np.isfinite(p.values[:, -1]).all()
 
 
 def test_mexico_decades_with_a_typo_column():

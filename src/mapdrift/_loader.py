@@ -463,7 +463,16 @@ def periods_stage(long: Long, spec: InputSpec, where: str, findings: list[Findin
     )
     f = f.assign(period=col_of_uniq[codes])
     labels = tuple(parsed.labels.get(p, str(p)) for p in periods)
-    far = _outlying_periods(f, periods, labels, parsed.mapping, long, label, findings)
+    far, stray = _outlying_periods(f, periods, labels, parsed.mapping, long, label, findings)
+    if stray:  # a few stray rows of a typo period are left out (counted in the warning)
+        keep = np.ones(len(periods), dtype=bool)
+        keep[sorted(stray)] = False
+        new_col = np.cumsum(keep) - 1
+        f = f[keep[f["period"].to_numpy()]]
+        f = f.assign(period=new_col[f["period"].to_numpy()])
+        periods = tuple(p for p, k in zip(periods, keep) if k)
+        labels = tuple(lab for lab, k in zip(labels, keep) if k)
+        far = {int(new_col[j]) for j in far - stray}
     sp = spacing([p for j, p in enumerate(periods) if j not in far])
     if sp.gaps:
         findings.append(
@@ -494,23 +503,32 @@ def _outlying_periods(
     long: Long,
     label: str,
     findings: list[Finding],
-) -> set[int]:
-    """Periods far outside the run of the others (a typo such as 2109 among 2015-2023), each
-    reported with its rows and units. They are kept (a period is never dropped silently): the
-    fix belongs in the source, and the warning says so."""
+) -> tuple[set[int], set[int]]:
+    """Periods far outside the run of the others (:func:`mapdrift.periods.outlying`: a typo
+    such as 2109 among 2015-2023), each reported as ``periods-outlying`` with its rows and units.
+
+    Returns the outlying periods and, among them, the stray ones to leave out: a period with
+    under half the run's usual rows per period (3 rows among 85,000 a year) would become
+    the first or last frame and every "first to last" comparison, so its rows are left out and
+    counted in the warning. An outlying period with as many rows as the others (a whole
+    mislabelled column) holds a period's data, so it is kept as its own period. Either way no
+    unit is dropped, and the fix (correct the source) is named.
+    """
     import pandas as pd
 
     col = f["period"].to_numpy()
     rows = np.bincount(col, minlength=len(periods))
     far = outlying(periods, rows)
     if not far:
-        return set()
+        return set(), set()
     core = [j for j in range(len(periods)) if j not in far]
+    usual = float(np.median(rows[core]))
     sp = spacing([periods[j] for j in core])
     unit = sp.unit or "step"
     step = f", {plural(sp.step, unit)} apart" if sp.step is not None and sp.unit else ""
     run = f"{labels[core[0]]} to {labels[core[-1]]}{step}"
     pos = {p: i for i, p in enumerate(periods)}
+    stray: set[int] = set()
     for j in far:
         gap = _distance(periods[j], periods[core[0] if j < core[0] else core[-1]])
         side = "before" if j < core[0] else "after"
@@ -518,18 +536,28 @@ def _outlying_periods(
         cols = [long.columns[t] for t in texts if t in long.columns]
         origin = f" (column {examples(cols, 2)})" if cols else ""
         units = pd.unique(long.ids[f["uid"].to_numpy()[col == j]]) if long.ids is not None else []
+        if rows[j] < 0.5 * usual:
+            stray.add(j)
+            fate = (
+                "looks like a typo; with so few rows it is left out of the map (those units "
+                "keep their other periods): correct the period of those rows in the source"
+            )
+        else:
+            fate = (
+                "looks like a typo; it is kept as its own period since it holds a period's worth of "
+                "rows: correct the period in the source" + (" (rename the column)" if cols else "")
+            )
         findings.append(
             Finding(
                 "warning",
                 "periods-outlying",
                 f"{label}: period {labels[j]}{origin} sits {plural(gap, unit)} {side} the others "
                 f"({run}) in {plural(int(rows[j]), 'row')} (units {examples(list(units), 3)}); it "
-                "looks like a typo and is kept as its own period: correct those rows in the "
-                "source, or drop them if they do not belong",
+                + fate,
                 tuple(str(u) for u in units),
             )
         )
-    return set(far)
+    return set(far), stray
 
 
 def _distance(a: Any, b: Any) -> int:
@@ -617,9 +645,10 @@ def negative_checks(
                 "warning",
                 "values-negative-code",
                 f"{where}: {plural(n_code, 'cell')} of {column!r} hold {code:g} (units "
-                f"{examples(units.tolist())}); a value repeated like that is most likely a "
-                f"missing-value code: pass --missing {code:g} ([inputs] missing = [{code:g}] in "
-                "a config) to show them as no data, or blank those cells in the source",
+                f"{examples(units.tolist())}); a negative value repeated like that is most likely "
+                "a missing-value code, yet it is read as a number: pass "
+                f"--missing {code:g} ([inputs] missing = [{code:g}] in a config) to show those "
+                "cells as no data, or blank them in the source",
                 tuple(units.tolist()),
             )
         )
