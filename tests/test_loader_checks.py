@@ -111,6 +111,8 @@ def test_repeated_negative_value_is_named_as_a_missing_code(layer_file, table_fi
     assert f.level == "warning" and f.message.startswith("rates.csv: 4 cells of 'rate' hold -999")
     assert "--missing -999" in f.message and "[inputs] missing = [-999]" in f.message
     assert set(f.units) == {"00001", "00003", "00005", "00008"}
+    # rows 3, 20, 41, 70 of 9 years per unit: 2018, 2017, 2020, 2022
+    assert "periods 2017, 2018, 2020, 2022)" in f.message
     assert "values-negative" not in _codes(p)  # every negative is the code
     # with the code passed, the cells are missing and no negative finding remains
     fixed = load_panel(_rate_spec(layer, table, missing=(-999,)))

@@ -591,6 +591,7 @@ def numbers_stage(long: Long, spec: InputSpec, table: Table, findings: list[Find
             )
         )
     ids = long.row_ids()
+    row_periods = np.asarray(long.labels, dtype=object)[f["period"].to_numpy()]
     new = {}
     for r in long.roles:
         nums, fs = to_numbers(
@@ -604,7 +605,9 @@ def numbers_stage(long: Long, spec: InputSpec, table: Table, findings: list[Find
         )
         new[r] = nums
         findings += fs
-        findings += negative_checks(nums, ids, where=table.where, column=str(label[r]), role=r)
+        findings += negative_checks(
+            nums, ids, where=table.where, column=str(label[r]), role=r, periods=row_periods
+        )
     return replace(long, frame=f.assign(**new))
 
 
@@ -613,9 +616,16 @@ CODE_MIN_CELLS = 3
 
 
 def negative_checks(
-    nums: np.ndarray, ids: np.ndarray, *, where: str, column: str, role: str = "value"
+    nums: np.ndarray,
+    ids: np.ndarray,
+    *,
+    where: str,
+    column: str,
+    role: str = "value",
+    periods: np.ndarray | None = None,
 ) -> list[Finding]:
-    """Negative numbers in one column of values or counts (``role`` as in :class:`Long`).
+    """Negative numbers in one column of values or counts (``role`` as in :class:`Long`);
+    ``ids`` and ``periods`` (labels) name each cell's unit and period for the messages.
 
     One negative value repeated (at least :data:`CODE_MIN_CELLS` cells, whole, and most of the
     column's negatives), e.g. ``-999``, is reported as a probable missing-value code
@@ -640,12 +650,17 @@ def negative_checks(
     if n_code >= CODE_MIN_CELLS and 2 * n_code > n_neg and code == round(code):
         hit = nums == code
         units = pd.unique(ids[hit]).astype(str)
+        when = (
+            f"; periods {examples(sorted(pd.unique(periods[hit]).astype(str)))}"
+            if periods is not None
+            else ""
+        )
         out.append(
             Finding(
                 "warning",
                 "values-negative-code",
                 f"{where}: {plural(n_code, 'cell')} of {column!r} hold {code:g} (units "
-                f"{examples(units.tolist())}); a negative value repeated like that is most likely "
+                f"{examples(units.tolist())}{when}); a negative value repeated like that is most likely "
                 "a missing-value code, yet it is read as a number: pass "
                 f"--missing {code:g} ([inputs] missing = [{code:g}] in a config) to show those "
                 "cells as no data, or blank them in the source",
