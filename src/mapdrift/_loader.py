@@ -510,7 +510,7 @@ def _outlying_periods(
     Returns the outlying periods and, among them, the stray ones to leave out: a period with
     under half the run's usual rows per period (3 rows among 85,000 a year) would become
     the first or last frame and every "first to last" comparison, so its rows are left out and
-    counted in the warning. An outlying period with as many rows as the others (a whole
+    counted in the warning. An outlying period with at least half the usual rows (a whole
     mislabelled column) holds a period's data, so it is kept as its own period. Either way no
     unit is dropped, and the fix (correct the source) is named.
     """
@@ -591,7 +591,7 @@ def numbers_stage(long: Long, spec: InputSpec, table: Table, findings: list[Find
             )
         )
     ids = long.row_ids()
-    row_periods = np.asarray(long.labels, dtype=object)[f["period"].to_numpy()]
+    row_periods = f["period"].to_numpy()
     new = {}
     for r in long.roles:
         nums, fs = to_numbers(
@@ -606,7 +606,12 @@ def numbers_stage(long: Long, spec: InputSpec, table: Table, findings: list[Find
         new[r] = nums
         findings += fs
         findings += negative_checks(
-            nums, ids, where=table.where, column=str(label[r]), role=r, periods=row_periods
+            nums,
+            ids,
+            where=table.where,
+            column=str(label[r]),
+            role=r,
+            periods=(row_periods, long.labels),
         )
     return replace(long, frame=f.assign(**new))
 
@@ -622,10 +627,11 @@ def negative_checks(
     where: str,
     column: str,
     role: str = "value",
-    periods: np.ndarray | None = None,
+    periods: tuple[np.ndarray, Sequence[str]] | None = None,
 ) -> list[Finding]:
     """Negative numbers in one column of values or counts (``role`` as in :class:`Long`);
-    ``ids`` and ``periods`` (labels) name each cell's unit and period for the messages.
+    ``ids`` and ``periods`` (each cell's period code and the labels of the codes) name each
+    cell's unit and period for the messages.
 
     One negative value repeated (at least :data:`CODE_MIN_CELLS` cells, whole, and most of the
     column's negatives), e.g. ``-999``, is reported as a probable missing-value code
@@ -651,7 +657,7 @@ def negative_checks(
         hit = nums == code
         units = pd.unique(ids[hit]).astype(str)
         when = (
-            f"; periods {examples(sorted(pd.unique(periods[hit]).astype(str)))}"
+            f"; periods {examples([periods[1][j] for j in np.unique(periods[0][hit])])}"
             if periods is not None
             else ""
         )
