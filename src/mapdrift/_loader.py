@@ -544,8 +544,9 @@ def _outlying_periods(
             )
         else:
             fate = (
-                "looks like a typo; it is kept as its own period since it holds a period's worth of "
-                "rows: correct the period in the source" + (" (rename the column)" if cols else "")
+                "may be a typo; it is kept as its own period since it holds a period's worth of "
+                "rows: if it is one, correct the period in the source"
+                + (" (rename the column)" if cols else "")
             )
         findings.append(
             Finding(
