@@ -203,6 +203,29 @@ def test_bases_pooled_per_period_reference_and_file(tmp_path):
     assert (reused.codes[:, 2] == 2).all()  # above the old range: open-ended last class
 
 
+def test_reused_breaks_of_other_data_are_questioned(tmp_path):
+    # a new user's report: last year's breaks.json of another rate was accepted without a word,
+    # leaving classes empty in every period (common practice, no source: say so, never refit)
+    from dataclasses import replace
+
+    rng = np.random.default_rng(3)
+    v = rng.uniform(0, 30, size=(40, 3))
+    own = _panel(v)
+    own = replace(own, meta=replace(own.meta, variable="Filing rate"))
+    path = classify(own, "quantile", 5).breaks[0].save(tmp_path / "breaks.json")
+    same = classify(own, breaks_file=path)
+    codes = {f.code for f in same.findings}
+    assert not codes & {"breaks-other-variable", "breaks-empty-classes"}
+    other = _panel(v / 10)  # another rate: all below 3, in the lowest classes
+    other = replace(other, meta=replace(other.meta, variable="SID rate"))
+    res = classify(other, breaks_file=path)
+    found = {f.code: f.message for f in res.findings}
+    assert "'Filing rate'" in found["breaks-other-variable"]
+    assert "'SID rate'" in found["breaks-other-variable"]
+    assert "classes of the reused breaks" in found["breaks-empty-classes"]
+    assert res.breaks[0].edges == same.breaks[0].edges  # reused as asked, never refitted
+
+
 def test_bad_breaks_file(tmp_path):
     (tmp_path / "b.json").write_text('{"edges": [1, 2]}')
     with pytest.raises(InputError, match="not a mapdrift breaks file"):

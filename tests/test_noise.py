@@ -231,6 +231,29 @@ def test_planted_jumps_credible_and_noise_is_not(synthetic):
     assert not ch.units["spike"].to_numpy()[s.tiny]
 
 
+def test_first_to_last_moves_within_noise_are_not_shown_as_change(synthetic):
+    # planted truth (our generator): the jumpers' rate is six-fold from jump_year to the last
+    # year on 3,000-6,000 parcels; everyone else has the same true rate first and last (but for
+    # a 3 % county-wide year factor), so their class moves first to last are count noise
+    s, _, ch, _ = synthetic
+    net, shown = ch.net_change, ch.credible_net_change
+    jumpers = np.array(s.jumpers)
+    moved_j = jumpers[np.nan_to_num(net[jumpers]) > 0]
+    assert len(moved_j) >= 4 and (shown[moved_j] == net[moved_j]).all()
+    assert ch.net_credible[moved_j].all()
+    others = np.ones(s.panel.n_units, dtype=bool)
+    others[jumpers] = False
+    moved = others & (np.nan_to_num(net) != 0)
+    assert moved.sum() > 200  # the noise a plain class-change map would show
+    assert ch.net_credible[moved].mean() < 0.05
+    assert ch.n_net_noise == int((moved & ~ch.net_credible).sum()) + int(
+        ((np.nan_to_num(net) != 0) & ~others & ~ch.net_credible).sum()
+    )
+    assert shown[s.tiny] == 0 or np.isnan(shown[s.tiny])
+    col = ch.units["net_change_credible"].to_numpy()
+    assert set(col[moved]) <= {"true", "false"} and set(col[~(np.nan_to_num(net) != 0)]) == {""}
+
+
 def test_hot_spot_found_every_year_and_tiny_tract_erases_nothing(synthetic):
     s, _, _, cl = synthetic
     hot = set(s.hot)

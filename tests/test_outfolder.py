@@ -81,6 +81,23 @@ def test_force_refuses_unknown_and_edited_files(tmp_path):
     assert (out / "breaks.json").read_text() == "{}\n"
 
 
+def test_explore_into_a_run_keeps_the_folder_replaceable(tmp_path, runner):
+    # `explore RUN --force` rewrites explorer.html inside the run: the manifest must follow, or
+    # the next `run --force` would refuse the folder as edited by hand (a new user's report)
+    from mapdrift.cli import app
+
+    cfg = _quick().with_values("brief", {"formats": ["explorer", "gpkg"]})
+    out = tmp_path / "run"
+    run(cfg, out=out, steps=[s for s in STEPS if s[0] not in ("animate", "brief")])
+    before = (out / "explorer.html").read_bytes()
+    res = runner.invoke(app, ["explore", str(out), "--force", "--raster-px", "300"])
+    assert res.exit_code == 0, res.output
+    assert (out / "explorer.html").read_bytes() != before  # rebuilt, smaller grid
+    assert blockers(out) == []
+    run(cfg, out=out, force=True, steps=TO_CLASSIFY)  # replaceable as any earlier run
+    assert not (out / "explorer.html").exists()
+
+
 def test_unknown_folder_refused_even_with_force(tmp_path):
     out = tmp_path / "mine"
     out.mkdir()

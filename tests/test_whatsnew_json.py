@@ -93,3 +93,11 @@ def test_sentences_cut_and_items_complete():
     assert f["code"] == "ids-table-only" and f["units"] == ["07999"]
     for item in doc["items"]:
         assert {"kind", "unit", "name", "what", "from", "to"} <= set(item)
+
+
+def test_cluster_news_of_a_small_base_unit_carries_the_caution():
+    # a unit on a small base entering or leaving a cluster is read with care, as its jumps are
+    # (a new user's report: 07038 "left a high-high cluster" with no caveat)
+    cluster = next(b for b in _news().bullets() if "newly entered a high-high cluster" in b)
+    assert "07003 Place 3 (2025, small base: unstable)" in cluster
+    assert "07001 Place 1 (2025)" in cluster

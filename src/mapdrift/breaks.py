@@ -24,7 +24,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from mapdrift.errors import ConfigError, InputError
-from mapdrift.findings import Finding
+from mapdrift.findings import Finding, plural
 
 if TYPE_CHECKING:
     import geopandas as gpd
@@ -604,6 +604,38 @@ def parse_basis(basis: str) -> tuple[str, str | None]:
     )
 
 
+def _reuse_checks(b: Breaks, vals: np.ndarray, variable: str, source: str) -> list[Finding]:
+    """Signs that saved breaks belong to other data: another variable, or classes left empty
+    in every period (a new user reused last year's breaks.json of another rate)."""
+    out: list[Finding] = []
+    theirs = (b.variable or "").strip()
+    if theirs and variable and theirs.casefold() != str(variable).strip().casefold():
+        out.append(
+            Finding(
+                "warning",
+                "breaks-other-variable",
+                f"the reused breaks ({source}) were fitted to {theirs!r} but these values are "
+                f"{variable!r}; their classes may not mean the same here: check the breaks file, "
+                "or fit new ones (leave out --breaks-file; after --previous, add --rebreak)",
+            )
+        )
+    codes = b.classify(vals[np.isfinite(vals)])
+    empty = [lab for i, lab in enumerate(b.labels) if not (codes == i).any()]
+    if codes.size and empty:
+        out.append(
+            Finding(
+                "warning",
+                "breaks-empty-classes",
+                f"{plural(len(empty), 'class', 'classes')} of the reused breaks ({source}) "
+                f"{'holds' if len(empty) == 1 else 'hold'} no value in any period ({', '.join(repr(e) for e in empty[:4])}"
+                f"{', ...' if len(empty) > 4 else ''}); the breaks may come from other data: "
+                "check the breaks file, or fit new ones (leave out --breaks-file; after "
+                "--previous, add --rebreak)",
+            )
+        )
+    return out
+
+
 def classify(
     panel: Panel,
     scheme: str | Scheme = Scheme.QUANTILE,
@@ -642,6 +674,7 @@ def classify(
                     "--rebreak to refit deliberately",
                 )
             )
+        findings += _reuse_checks(reused, vals, variable, source)
         all_b: tuple[Breaks, ...] = (reused,)
     else:
         kind, ref = parse_basis(basis)

@@ -214,6 +214,29 @@ def lock_out(out: Path) -> Iterator[None]:
         os.close(fd)
 
 
+def list_output(out: Path, path: Path) -> bool:
+    """Record ``path`` (a file mapdrift just wrote inside the run folder ``out``) in the run's
+    manifest with its current hash, so the folder stays replaceable by ``--force``.
+
+    ``mapdrift explore RUN_FOLDER --force`` rewrites ``explorer.html`` inside a run: without
+    this the next ``run --force`` would refuse the folder ("an output changed since the run").
+    Returns False (and changes nothing) when ``out`` is not a run folder of ours. Call it while
+    holding :func:`lock_out`.
+    """
+    from mapdrift.atomic import write_text
+    from mapdrift.brief.manifest import sha256
+
+    doc = _manifest_doc(out)
+    if not doc or _manifest_outputs(out) is None:
+        return False
+    rel = path.resolve().relative_to(out.resolve()).as_posix()
+    entry = {"path": rel, "sha256": sha256(path), "bytes": path.stat().st_size}
+    outputs = [e for e in doc.get("outputs", []) if e.get("path") != rel] + [entry]
+    doc["outputs"] = sorted(outputs, key=lambda e: str(e["path"]))
+    write_text(out / MANIFEST, json.dumps(doc, indent=2, sort_keys=False) + "\n")
+    return True
+
+
 # ------------------------------------------------------------------------------------------
 # recovery of killed runs, and the swap
 # ------------------------------------------------------------------------------------------

@@ -456,17 +456,18 @@ def _step_changes(state: RunState) -> str:
     write_changes(result, state.staging, units_table=False)
     change_pictures(result, panel, state.staging, look=_look(state))
     n_jump = int(result.units["jump"].sum())
-    up = int((result.net_change > 0).sum())
-    down = int((result.net_change < 0).sum())
+    net = result.credible_net_change
+    up, down = int((net > 0).sum()), int((net < 0).sum())
     if not result.tested:
         return (
-            f"{up} units up, {down} down first to last; {n_jump} units jumped {opt.jump}+ "
+            f"{up:,} units up, {down:,} down first to last; {n_jump:,} units jumped {opt.jump}+ "
             "classes (not tested against noise: no counts)"
         )
     noise = int(((result.units["n_noise_moves"] > 0) & ~result.units["jump"]).sum())
     return (
-        f"{up} units up, {down} down first to last; {n_jump} units credibly jumped {opt.jump}+ "
-        f"classes ({noise} more moved within count noise)"
+        f"{up:,} units credibly up, {down:,} down first to last ({result.n_net_noise:,} more "
+        f"moved within count noise); {n_jump:,} units credibly jumped {opt.jump}+ classes "
+        f"({noise:,} more moved within count noise)"
     )
 
 

@@ -52,13 +52,27 @@ def headline(state: BriefInputs) -> list[tuple[str, str]]:
     out: list[tuple[str, str]] = []
     ch = state.changes
     if ch is not None:
-        net = ch.net_change
+        net = ch.credible_net_change
+        cred = "credibly " if ch.tested else ""
         out.append(
-            (f"{u} in a higher class in {per[-1]} than in {per[0]}", f"{int((net > 0).sum()):,}")
+            (
+                f"{u} {cred}in a higher class in {per[-1]} than in {per[0]}",
+                f"{int((net > 0).sum()):,}",
+            )
         )
         out.append(
-            (f"{u} in a lower class in {per[-1]} than in {per[0]}", f"{int((net < 0).sum()):,}")
+            (
+                f"{u} {cred}in a lower class in {per[-1]} than in {per[0]}",
+                f"{int((net < 0).sum()):,}",
+            )
         )
+        if ch.tested:
+            out.append(
+                (
+                    f"{u} whose class moved from {per[0]} to {per[-1]} within count noise",
+                    f"{ch.n_net_noise:,}",
+                )
+            )
         spikes = int((ch.units["jump"] & ch.units["spike"]).sum())
         back = f" ({spikes:,} came straight back: check the data)" if spikes else ""
         if ch.tested:
@@ -609,11 +623,14 @@ def build_slides(state: BriefInputs, brief: Brief, pictures: Path | None = None)
             )
         )
     if ch is not None:
-        up, down = int((ch.net_change > 0).sum()), int((ch.net_change < 0).sum())
+        net = ch.credible_net_change
+        up, down = int((net > 0).sum()), int((net < 0).sum())
         n_jump = int(ch.units["jump"].sum())
         stay = np.trace(ch.transitions.counts) / max(ch.transitions.counts.sum(), 1)
         change_title = (
-            f"{noun_for(up, noun)} rose and {down:,} fell a class or more, {first} to {last}"
+            f"{noun_for(up, noun)} rose and {down:,} fell beyond count noise, {first} to {last}"
+            if ch.tested
+            else f"{noun_for(up, noun)} rose and {down:,} fell a class or more, {first} to {last}"
         )
         flag_title = f"{noun_for(n_jump, noun)} jumped {ch.options.jump}+ classes in one step"
         trans_title = f"{stay:.0%} of steps stay in their class"

@@ -170,7 +170,23 @@ def change_pictures(
             **chart,
         )
     )
-    codes, labels = change_categories(result.net_change, k)
+    # moves within count noise are shown as no change: a map of every move would let a few
+    # filings on a small base paint a unit as risen or fallen
+    codes, labels = change_categories(result.credible_net_change, k)
+    if result.tested:
+        labels = ["no credible change" if lab == "no change" else lab for lab in labels]
+        how = "conditional Poisson test" if result.noise_test == "poisson" else "margins of error"
+        from mapdrift.clusters.multiple import describe
+
+        change_caption = (
+            f"{result.n_net_noise:,} {noun} whose class moved within count noise are shown as no "
+            f"credible change ({how} of {first} against {last}, "
+            f"{describe(result.options.alpha, result.options.correction)} over all {noun}; "
+            "see units.csv)." + (f" {source}" if source else "")
+        )
+    else:
+        change_caption = "Moves not tested against noise (no counts): a move of a unit with few " \
+            "events may be noise." + (f" {source}" if source else "")  # fmt: skip
     written.append(
         static_map(
             panel.geometry,
@@ -186,7 +202,7 @@ def change_pictures(
                     if notice is None
                     else f"Class ranks moved between {first} and {last}; breaks differ by period"
                 ),
-                caption=source,
+                caption=change_caption,
                 legend_title="net change",
                 nodata_label=f"no data in {first} or {last}",
                 notice=notice,

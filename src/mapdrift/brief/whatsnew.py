@@ -93,8 +93,13 @@ class WhatsNew:
                 else self.cluster_events
             )
             if len(ev):
+                where = [
+                    f"{self._who(u)} ({p}"
+                    + (", small base: unstable)" if u in self.small_base else ")")
+                    for u, p in zip(ev["unit"], ev["period"])
+                ]
                 out.append(
-                    f"{plural(ev['unit'].nunique(), 'unit')} newly {words}: {examples([f'{self._who(u)} ({p})' for u, p in zip(ev['unit'], ev['period'])])}."
+                    f"{plural(ev['unit'].nunique(), 'unit')} newly {words}: {examples(where)}."
                 )
         if len(self.new_trends):
             ex = [

@@ -146,6 +146,35 @@ class ChangeResult:
     warning: str | None = None
     findings: tuple[Finding, ...] = field(default=())
     noise_test: str = ""
+    net_p_adjusted: np.ndarray | None = None
+
+    @property
+    def net_credible(self) -> np.ndarray:
+        """Per unit: its first-to-last class move is beyond count noise (every move when the
+        moves could not be tested); False for units that did not move or lack data."""
+        net = np.asarray(self.net_change, dtype=np.float64)
+        with np.errstate(invalid="ignore"):
+            moved = ~np.isnan(net) & (net != 0)
+            if self.net_p_adjusted is None:
+                return moved
+            return moved & (self.net_p_adjusted <= self.options.alpha)
+
+    @property
+    def credible_net_change(self) -> np.ndarray:
+        """``net_change`` with moves within count noise set to 0 (NaN = no data stays NaN):
+        what the change map, the answer and the slides show."""
+        net = np.asarray(self.net_change, dtype=np.float64).copy()
+        with np.errstate(invalid="ignore"):
+            noise = ~np.isnan(net) & (net != 0) & ~self.net_credible
+        net[noise] = 0.0
+        return net
+
+    @property
+    def n_net_noise(self) -> int:
+        """Units whose first-to-last class move is within count noise."""
+        net = np.asarray(self.net_change, dtype=np.float64)
+        with np.errstate(invalid="ignore"):
+            return int((~np.isnan(net) & (net != 0) & ~self.net_credible).sum())
 
     @property
     def tested(self) -> bool:
@@ -172,13 +201,19 @@ class ChangeResult:
         tr, per = self.transitions, self.period_labels
         stay = float(np.trace(tr.counts) / max(tr.counts.sum(), 1))
         up, down = int((self.net_change > 0).sum()), int((self.net_change < 0).sum())
+        shown = self.credible_net_change
+        beyond = (
+            f" ({int((shown > 0).sum())} up, {int((shown < 0).sum())} down beyond count noise)"
+            if self.net_p_adjusted is not None
+            else ""
+        )
         hom = self.homogeneity
         test = f"p = {hom.p_LR:.3g}" if hom.p_LR is not None else "not testable"
         return (
             f"<ChangeResult: {len(self.net_change):,} units, {per[0]} to {per[-1]}, "
             f"{len(self.labels)} classes\n"
             f"  {tr.n_pairs:,} unit steps, {stay:.0%} stay in their class; first to last "
-            f"{up} up, {down} down\n"
+            f"{up} up, {down} down{beyond}\n"
             f"  {int(self.units['jump'].sum())} units {'credibly ' if self.tested else ''}"
             f"jumped {self.options.jump}+ classes ({len(self.jumps)} moves of {self.options.jump}+ "
             f"listed); same probabilities every step: {test}>"
@@ -432,6 +467,15 @@ def analyse_changes(
         alpha=options.alpha,
         correction=options.correction,
     )
+    net_p_adj = _net_change_p(tester, uc.net_change, panel.n_periods, options.correction)
+    if net_p_adj is not None:
+        with np.errstate(invalid="ignore"):
+            cred = np.where(
+                np.isnan(net_p_adj), "", np.where(net_p_adj <= options.alpha, "true", "false")
+            )
+        moved = ~np.isnan(uc.net_change) & (np.nan_to_num(uc.net_change) != 0)
+        uc.table["net_change_p_adjusted"] = net_p_adj
+        uc.table["net_change_credible"] = np.where(moved, cred, "").astype(object)
     rm = rank_mobility(panel.values, tr.steps, per)
     sm = None
     if options.spatial and tr.steps:
@@ -467,7 +511,31 @@ def analyse_changes(
         warning=classes.warning,
         findings=tuple(findings),
         noise_test=test_kind,
+        net_p_adjusted=net_p_adj,
     )
+
+
+def _net_change_p(
+    tester: Any, net_change: np.ndarray, n_periods: int, correction: str
+) -> np.ndarray | None:
+    """Adjusted p of each unit's change from the first to the last period (NaN without data).
+
+    Every unit with data in both periods is tested with the same test as the jumps (one
+    family, ``correction`` over it), whether or not its class moved, so that picking the
+    movers does not shrink the family. None when the values cannot be tested.
+    """
+    if tester is None or n_periods < 2:
+        return None
+    from mapdrift.clusters.multiple import adjust
+
+    net = np.asarray(net_change, dtype=np.float64)
+    rows = np.flatnonzero(~np.isnan(net))
+    out = np.full(net.shape, np.nan)
+    if rows.size:
+        first = np.zeros(rows.size, dtype=np.int64)
+        last = np.full(rows.size, n_periods - 1, dtype=np.int64)
+        out[rows] = adjust(np.asarray(tester(rows, first, last), dtype=np.float64), correction)
+    return out
 
 
 def write_changes(*args: Any, **kwargs: Any) -> list[Any]:

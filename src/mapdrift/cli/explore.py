@@ -54,8 +54,17 @@ def explore(
     if target.is_dir():
         from mapdrift.brief.explorer import write_explorer
         from mapdrift.brief.explorer_folder import payload_from_folder
+        from mapdrift.outfolder import list_output, lock_out
 
-        write_explorer(payload_from_folder(target, raster_px=raster_px), dest)
+        payload = payload_from_folder(target, raster_px=raster_px)
+        if dest.resolve().parent == target.resolve():
+            # inside the run: no run may swap the folder meanwhile, and the manifest keeps
+            # listing the page with its new hash (so `run --force` may still replace the folder)
+            with lock_out(target):
+                write_explorer(payload, dest)
+                list_output(target, dest)
+        else:
+            write_explorer(payload, dest)
     else:
         import shutil
         import tempfile
