@@ -33,7 +33,7 @@ from mapdrift.findings import Finding, examples, plural, raise_errors
 from mapdrift.geo import prepare_geometry, read_layer
 from mapdrift.ids import closest, locate, normalise, pad_ids, zfill
 from mapdrift.panel import InputSpec, Panel, PanelMeta
-from mapdrift.periods import find_year, read_periods, spacing
+from mapdrift.periods import find_year, outlying, read_periods, spacing
 
 if TYPE_CHECKING:
     import geopandas as gpd
@@ -463,7 +463,17 @@ def periods_stage(long: Long, spec: InputSpec, where: str, findings: list[Findin
     )
     f = f.assign(period=col_of_uniq[codes])
     labels = tuple(parsed.labels.get(p, str(p)) for p in periods)
-    sp = spacing(periods)
+    far, stray = _outlying_periods(f, periods, labels, parsed.mapping, long, label, findings)
+    if stray:  # a few stray rows of a typo period are left out (counted in the warning)
+        keep = np.ones(len(periods), dtype=bool)
+        keep[sorted(stray)] = False
+        new_col = np.cumsum(keep) - 1
+        f = f[keep[f["period"].to_numpy()]]
+        f = f.assign(period=new_col[f["period"].to_numpy()])
+        periods = tuple(p for p, k in zip(periods, keep) if k)
+        labels = tuple(lab for lab, k in zip(labels, keep) if k)
+        far = {int(new_col[j]) for j in far - stray}
+    sp = spacing([p for j, p in enumerate(periods) if j not in far])
     if sp.gaps:
         findings.append(
             Finding(
@@ -483,6 +493,79 @@ def periods_stage(long: Long, spec: InputSpec, where: str, findings: list[Findin
             )
         )
     return replace(long, frame=f, periods=periods, labels=labels)
+
+
+def _outlying_periods(
+    f: pd.DataFrame,
+    periods: tuple[Any, ...],
+    labels: tuple[str, ...],
+    mapping: dict[str, Any],
+    long: Long,
+    label: str,
+    findings: list[Finding],
+) -> tuple[set[int], set[int]]:
+    """Periods far outside the run of the others (:func:`mapdrift.periods.outlying`: a typo
+    such as 2109 among 2015-2023), each reported as ``periods-outlying`` with its rows and units.
+
+    Returns the outlying periods and, among them, the stray ones to leave out: a period with
+    under half the run's usual rows per period (3 rows among 85,000 a year) would become
+    the first or last frame and every "first to last" comparison, so its rows are left out and
+    counted in the warning. An outlying period with at least half the usual rows (a whole
+    mislabelled column) holds a period's data, so it is kept as its own period. Either way no
+    unit is dropped, and the fix (correct the source) is named.
+    """
+    import pandas as pd
+
+    col = f["period"].to_numpy()
+    rows = np.bincount(col, minlength=len(periods))
+    far = outlying(periods, rows)
+    if not far:
+        return set(), set()
+    core = [j for j in range(len(periods)) if j not in far]
+    usual = float(np.median(rows[core]))
+    sp = spacing([periods[j] for j in core])
+    unit = sp.unit or "step"
+    step = f", {plural(sp.step, unit)} apart" if sp.step is not None and sp.unit else ""
+    run = f"{labels[core[0]]} to {labels[core[-1]]}{step}"
+    pos = {p: i for i, p in enumerate(periods)}
+    stray: set[int] = set()
+    for j in far:
+        gap = _distance(periods[j], periods[core[0] if j < core[0] else core[-1]])
+        side = "before" if j < core[0] else "after"
+        texts = [t for t, p in mapping.items() if pos[p] == j]
+        cols = [long.columns[t] for t in texts if t in long.columns]
+        origin = f" (column {examples(cols, 2)})" if cols else ""
+        units = pd.unique(long.ids[f["uid"].to_numpy()[col == j]]) if long.ids is not None else []
+        if rows[j] < 0.5 * usual:
+            stray.add(j)
+            fate = (
+                "looks like a typo; with so few rows it is left out of the map (those units "
+                "keep their other periods): correct the period of those rows in the source"
+            )
+        else:
+            fate = (
+                "may be a typo; it is kept as its own period since it holds a period's worth of "
+                "rows: if it is one, correct the period in the source"
+                + (" (rename the column)" if cols else "")
+            )
+        findings.append(
+            Finding(
+                "warning",
+                "periods-outlying",
+                f"{label}: period {labels[j]}{origin} sits {plural(gap, unit)} {side} the others "
+                f"({run}) in {plural(int(rows[j]), 'row')} (units {examples(list(units), 3)}); it "
+                + fate,
+                tuple(str(u) for u in units),
+            )
+        )
+    return set(far), stray
+
+
+def _distance(a: Any, b: Any) -> int:
+    """Calendar units between two periods of one kind (years, or a Period's own unit)."""
+    if hasattr(a, "ordinal"):
+        return abs(int(a.ordinal) - int(b.ordinal))
+    return abs(int(a) - int(b))
 
 
 # -- stage 5: numbers ---------------------------------------------------------------------------
@@ -509,6 +592,7 @@ def numbers_stage(long: Long, spec: InputSpec, table: Table, findings: list[Find
             )
         )
     ids = long.row_ids()
+    row_periods = f["period"].to_numpy()
     new = {}
     for r in long.roles:
         nums, fs = to_numbers(
@@ -522,7 +606,90 @@ def numbers_stage(long: Long, spec: InputSpec, table: Table, findings: list[Find
         )
         new[r] = nums
         findings += fs
+        findings += negative_checks(
+            nums,
+            ids,
+            where=table.where,
+            column=str(label[r]),
+            role=r,
+            periods=(row_periods, long.labels),
+        )
     return replace(long, frame=f.assign(**new))
+
+
+#: the fewest cells of one negative value that make it look like a missing-value code
+CODE_MIN_CELLS = 3
+
+
+def negative_checks(
+    nums: np.ndarray,
+    ids: np.ndarray,
+    *,
+    where: str,
+    column: str,
+    role: str = "value",
+    periods: tuple[np.ndarray, Sequence[str]] | None = None,
+) -> list[Finding]:
+    """Negative numbers in one column of values or counts (``role`` as in :class:`Long`);
+    ``ids`` and ``periods`` (each cell's period code and the labels of the codes) name each
+    cell's unit and period for the messages.
+
+    One negative value repeated (at least :data:`CODE_MIN_CELLS` cells, whole, and most of the
+    column's negatives), e.g. ``-999``, is reported as a probable missing-value code
+    (``values-negative-code``) with the ``--missing`` fix; any other negatives as
+    ``values-negative`` (rates and counts cannot be negative). Negative bases are left to the
+    rates' own ``rates-negative-base``; margins of error get only the code check.
+
+    >>> x = np.array([3.0, -999, 2.5, -999, -999, 4.0])
+    >>> [f.code for f in negative_checks(x, np.array(list("aabbcc")), where="t.csv", column="rate")]
+    ['values-negative-code']
+    """
+    import pandas as pd
+
+    neg = nums < 0
+    n_neg = int(neg.sum())
+    if not n_neg:
+        return []
+    out: list[Finding] = []
+    vals, counts = np.unique(nums[neg], return_counts=True)
+    top = int(np.argmax(counts))
+    code, n_code = float(vals[top]), int(counts[top])
+    if n_code >= CODE_MIN_CELLS and 2 * n_code > n_neg and code == round(code):
+        hit = nums == code
+        units = pd.unique(ids[hit]).astype(str)
+        when = (
+            f"; periods {examples([periods[1][j] for j in np.unique(periods[0][hit])])}"
+            if periods is not None
+            else ""
+        )
+        out.append(
+            Finding(
+                "warning",
+                "values-negative-code",
+                f"{where}: {plural(n_code, 'cell')} of {column!r} hold {code:g} (units "
+                f"{examples(units.tolist())}{when}); a negative value repeated like that is most likely "
+                "a missing-value code, yet it is read as a number: pass "
+                f"--missing {code:g} ([inputs] missing = [{code:g}] in a config) to show those "
+                "cells as no data, or blank them in the source",
+                tuple(units.tolist()),
+            )
+        )
+        neg &= ~hit
+    if neg.any() and role in ("value", "num"):
+        units = pd.unique(ids[neg]).astype(str)
+        shown = examples(sorted({f"{x:g}" for x in nums[neg][:50]}), 3, total=False)
+        what = "counts" if role == "num" else "rates and counts"
+        out.append(
+            Finding(
+                "warning",
+                "values-negative",
+                f"{where}: {plural(int(neg.sum()), 'cell')} of {column!r} {'is' if neg.sum() == 1 else 'are'} negative ({shown}; "
+                f"units {examples(units.tolist())}); {what} cannot be: fix them in the source, or "
+                "pass them to --missing if they mark missing values",
+                tuple(units.tolist()),
+            )
+        )
+    return out
 
 
 # -- stage 6: duplicates ------------------------------------------------------------------------
@@ -703,17 +870,6 @@ def _value_checks(
     spec: InputSpec,
     findings: list[Finding],
 ) -> None:
-    neg = values < 0
-    if neg.any():
-        units_neg = _units_with(neg, units)
-        findings.append(
-            Finding(
-                "warning",
-                "values-negative",
-                f"{int(neg.sum())} values are negative (units {examples(units_neg)}); rates should not be",
-                units_neg,
-            )
-        )
     zf = detect_zero_block(
         values, tuple(units.tolist()), labels, denominator=denominator, per=spec.per
     )
@@ -790,7 +946,9 @@ def _chain(
     if counts:
         numerator = _grid(shape, rows, cols, long.frame["num"].to_numpy())
         denominator = _grid(shape, rows, cols, long.frame["den"].to_numpy())
-        values, rate_findings = _rates(numerator, denominator, spec, layer.ids)
+        values, rate_findings = _rates(
+            numerator, denominator, spec, layer.ids, labels=long.labels, where=table.where
+        )
         findings += rate_findings
     else:
         values = _grid(shape, rows, cols, long.frame["value"].to_numpy())
@@ -940,12 +1098,22 @@ def detect_zero_block(
 
 
 def _rates(
-    num: np.ndarray, den: np.ndarray, spec: InputSpec, units: np.ndarray
+    num: np.ndarray,
+    den: np.ndarray,
+    spec: InputSpec,
+    units: np.ndarray,
+    *,
+    labels: Sequence[str] = (),
+    where: str = "table",
 ) -> tuple[np.ndarray, list[Finding]]:
-    """Counts to rates per ``spec.per``; zero bases -> missing, small bases flagged."""
+    """Counts to rates per ``spec.per``; zero bases -> missing, small bases flagged, counts
+    above their base reported (``rates-over-base``)."""
     findings: list[Finding] = []
     with np.errstate(divide="ignore", invalid="ignore"):
         rate = num / den * spec.per
+    over = rates_over_base(num, den, spec, units, labels=labels, where=where)
+    if over is not None:
+        findings.append(over)
     zero = den == 0
     if zero.any():
         uz = _units_with(zero, units)
@@ -980,3 +1148,54 @@ def _rates(
             )
         )
     return rate, findings
+
+
+def rates_over_base(
+    num: np.ndarray,
+    den: np.ndarray,
+    spec: InputSpec,
+    units: np.ndarray,
+    *,
+    labels: Sequence[str] = (),
+    where: str = "table",
+) -> Finding | None:
+    """A ``rates-over-base`` warning when counts exceed their base in some unit-periods.
+
+    A count of events among the base (filings among mortgaged parcels) cannot exceed the base,
+    so its rate cannot exceed ``per``; when it does, the columns are swapped (said outright when
+    most pairs are over) or the base is wrong. The rates are kept as computed.
+
+    >>> spec = InputSpec(geometry="x.gpkg", numerator="filings", denominator="parcels")
+    >>> f = rates_over_base(np.array([[3.0, 90]]), np.array([[50.0, 40]]), spec,
+    ...                     np.array(["07001"]), labels=("2019", "2020"), where="t.csv")
+    >>> f.code, f.units
+    ('rates-over-base', ('07001',))
+    """
+    over = (num > den) & (den > 0)
+    n_over = int(over.sum())
+    if not n_over:
+        return None
+    pairs = int(((den > 0) & np.isfinite(num)).sum())
+    r, c = np.nonzero(over)
+    shown = ", ".join(
+        f"{units[i]} in {labels[j] if j < len(labels) else j}: {num[i, j]:,g} > {den[i, j]:,g}"
+        for i, j in zip(r[:3].tolist(), c[:3].tolist())
+    )
+    if n_over > 3:
+        shown += ", ..."
+    swapped = (
+        f"in {n_over / pairs:.0%} of the pairs, so the columns look swapped: pass "
+        f"--numerator {spec.denominator} --denominator {spec.numerator}"
+        if 2 * n_over > pairs
+        else "check whether the columns are swapped or the base is wrong in those rows"
+    )
+    affected = _units_with(over, units)
+    return Finding(
+        "warning",
+        "rates-over-base",
+        f"{where}: {plural(n_over, 'unit-period')} {'has' if n_over == 1 else 'have'} more "
+        f"{spec.numerator!r} than {spec.denominator!r} (e.g. {shown}): a rate above "
+        f"{spec.per:,g} per {spec.per:,g} is impossible when {spec.numerator!r} counts events "
+        f"among {spec.denominator!r}; {swapped} (rates are kept as computed)",
+        affected,
+    )

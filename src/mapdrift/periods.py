@@ -21,6 +21,10 @@ difference when it is a multiple of 5 years, e.g. 2000 and 2010). Periods whose 
 not multiples of one step (1984, 1988, 1993) are *irregular*: every consecutive pair is one step
 and nothing is a gap. ``check``, ``changes``, trends and the report use this one rule; words for a
 step come from :attr:`Spacing.step_label` (never "one year" when steps are not years).
+
+**Outlying periods.** :func:`outlying` finds one or two periods at either end that sit far
+outside the run of the others (``2109`` among 2015-2023: a typo), measured in the run's own
+step, so decadal, quarterly and multi-year series are judged alike.
 """
 
 from __future__ import annotations
@@ -39,6 +43,7 @@ __all__ = [
     "Spacing",
     "find_year",
     "missing_periods",
+    "outlying",
     "parse_periods",
     "read_periods",
     "spacing",
@@ -348,3 +353,75 @@ def missing_periods(periods: Sequence[Any]) -> list[str]:
     []
     """
     return list(spacing(periods).gaps)
+
+
+#: an end period is outlying when its gap to the run is at least this many of the run's steps...
+OUTLYING_STEPS = 10
+#: ... and wider than this many times the run's whole span (or see ``rows`` in :func:`outlying`)
+OUTLYING_SPAN = 1.5
+
+
+def outlying(periods: Sequence[Any], rows: Sequence[int] | None = None) -> tuple[int, ...]:
+    """Indices of the (sorted, typed) ``periods`` that sit far outside the run of the others,
+    such as a typo ``2109`` among 2015-2023.
+
+    The run is the longest stretch of periods whose consecutive differences stay under 5 times
+    the median difference; it needs at least 3 periods. The periods before it (or after it),
+    if there are only one or two, are outlying when the gap that separates them from the run is
+
+    - at least :data:`OUTLYING_STEPS` of the run's usual step (its median difference) and wider
+      than :data:`OUTLYING_SPAN` times the run's span, or
+    - at least 5 steps, when ``rows`` (the number of table rows of each period) is given and
+      each of them has under a tenth of the run's median rows (a few stray rows).
+
+    The thresholds are our own rule (common practice, no source): a real panel with a missing
+    year (gap of 2 steps), a decadal census series, or a few census years before annual
+    estimates (1990, 2000, 2010, 2015-2023) is not flagged; a transposed digit (2019 -> 2109,
+    2091) or a wrong century (1915) is.
+
+    >>> outlying([2015, 2016, 2017, 2018, 2019, 2020, 2021, 2022, 2023, 2109])
+    (9,)
+    >>> outlying([1940, 1950, 1960, 1970, 1980, 1990, 2000, 2100])
+    (7,)
+    >>> outlying([1990, 2000, 2010, 2015, 2016, 2017, 2018, 2019])
+    ()
+    >>> outlying([2015, 2016, 2017, 2018, 2019, 2020, 2021, 2022, 2024])
+    ()
+    >>> outlying([2015, 2016, 2017, 2018, 2027], rows=[900, 900, 900, 900, 3])
+    (4,)
+    """
+    pos, _ = _positions(periods)
+    n = len(periods)
+    if pos is None or n < 4:
+        return ()
+    d = np.diff(pos)
+    if (d <= 0).any():
+        return ()
+    breaks = np.flatnonzero(d >= 5 * float(np.median(d)))
+    starts = np.r_[0, breaks + 1]
+    ends = np.r_[breaks + 1, n]
+    run = int(np.argmax(ends - starts))
+    lo, hi = int(starts[run]), int(ends[run])
+    if hi - lo < 3:
+        return ()
+    step = float(np.median(d[lo : hi - 1]))
+    span = float(pos[hi - 1] - pos[lo])
+    counts = None if rows is None else np.asarray(rows, dtype=np.float64)
+    usual = None if counts is None else float(np.median(counts[lo:hi]))
+    out: list[int] = []
+    for side, gap in (
+        (range(0, lo), d[lo - 1] if lo else 0),
+        (range(hi, n), d[hi - 1] if hi < n else 0),
+    ):
+        if not 1 <= len(side) <= 2:
+            continue
+        far = gap >= OUTLYING_STEPS * step and gap > OUTLYING_SPAN * span
+        stray = (
+            usual is not None
+            and counts is not None
+            and gap >= 5 * step
+            and bool((counts[list(side)] < 0.1 * usual).all())
+        )
+        if far or stray:
+            out.extend(side)
+    return tuple(out)
