@@ -47,6 +47,14 @@ _NAME_GUESSES = ("name", "unit_name", "label")
 _ROLES = ("value", "num", "den")
 
 
+#: How to smooth small-base rates, in words true for every command that prints it: only
+#: ``mapdrift clusters`` has ``--smooth``; ``mapdrift run`` takes it from its config or ``--set``.
+SMOOTH_HINT = (
+    "smooth them (`mapdrift clusters --smooth eb`; for `mapdrift run`, [clusters] "
+    'smooth = "eb" in the config or --set clusters.smooth=eb)'
+)
+
+
 def _units_with(mask: np.ndarray, units: Sequence[str]) -> tuple[str, ...]:
     """IDs of the units with any True cell in a ``[units, periods]`` mask (for findings)."""
     return tuple(np.asarray(units, dtype=object)[mask.any(axis=1)].tolist())
@@ -1143,7 +1151,7 @@ def _rates(
                 "warning",
                 "rates-small-base",
                 f"{int(small.sum())} rates rest on fewer than {spec.min_base:g} {spec.denominator} "
-                f"(units {examples(us)}); such rates are unstable — read them with care or smooth them (--smooth eb, [clusters] smooth = 'eb')",
+                f"(units {examples(us)}); such rates are unstable — read them with care or {SMOOTH_HINT}",
                 us,
             )
         )

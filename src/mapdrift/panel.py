@@ -459,25 +459,6 @@ class InputSpec:
             parse_view(self.view)
 
 
-#: How to smooth small-base rates, in words true for every command that prints it: only
-#: ``mapdrift clusters`` has ``--smooth``; ``mapdrift run`` takes it from its config or ``--set``.
-SMOOTH_HINT = (
-    "smooth them (`mapdrift clusters --smooth eb`; for `mapdrift run`, [clusters] "
-    'smooth = "eb" in the config or --set clusters.smooth=eb)'
-)
-
-
-def _with_smooth_hint(panel: Panel) -> Panel:
-    """The small-base finding with :data:`SMOOTH_HINT` in place of a bare ``--smooth`` hint."""
-    fixed = []
-    for f in panel.findings:
-        head, sep, _ = f.message.partition("smooth them (")
-        if f.code == "rates-small-base" and sep:
-            f = replace(f, message=head + SMOOTH_HINT)
-        fixed.append(f)
-    return replace(panel, findings=tuple(fixed))
-
-
 # characters of a regex that never belong in a title (a glob's '*' is dropped by the loader)
 _REGEX_MARKS = frozenset("\\[](){}+?^$|")
 
@@ -511,4 +492,4 @@ def load_panel(spec: InputSpec) -> Panel:
     """Read, align and validate; raise InputError on error-level findings."""
     from mapdrift._loader import load
 
-    return _plain_names(_with_smooth_hint(load(spec)), spec)
+    return _plain_names(load(spec), spec)
