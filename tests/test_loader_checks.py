@@ -292,3 +292,28 @@ def test_libpysal_panels_raise_none_of_the_new_warnings():
     ]
     for spec in specs:
         assert not NEW & _codes(load_panel(spec)), spec.geometry.name
+
+
+def test_a_cp1252_table_is_named_never_guessed(layer_file, tmp_path):
+    # Excel on Windows saves "CSV" as cp1252 (common practice, no source): without --encoding
+    # the error points at the byte and line and names the flag; with it the file reads as written
+    import pandas as pd
+
+    from mapdrift.errors import ConfigError, InputError
+    from mapdrift.panel import InputSpec, load_panel
+
+    layer = layer_file()
+    rows = pd.DataFrame(long_rows([f"{i:05d}" for i in range(1, 17)], [2019, 2020, 2021]))
+    rows = rows.rename(columns={"rate": "tasa_año"})
+    path = tmp_path / "tasas.csv"
+    path.write_bytes(rows.to_csv(index=False).encode("cp1252"))
+    spec = dict(geometry=layer, table=path, id="unit_id", period="year", value="tasa_año")
+    with pytest.raises(InputError) as err:
+        load_panel(InputSpec(**spec))
+    msg = str(err.value)
+    assert "not UTF-8" in msg and "line 1" in msg and "0xf1" in msg
+    assert "--encoding cp1252" in msg and "\n" not in msg
+    panel = load_panel(InputSpec(**spec, encoding="cp1252"))
+    assert panel.n_units == 16 and panel.n_periods == 3
+    with pytest.raises(ConfigError, match="not a text encoding"):
+        InputSpec(**spec, encoding="klingon")

@@ -208,13 +208,13 @@ def table_stage(spec: InputSpec, layer: Layer, path: Path | None) -> Table:
         df = layer.gdf.drop(columns=layer.gdf.geometry.name)
         df[layer.id_col] = layer.ids
         return Table(df, Path(layer.where).name, None, layer.id_col, from_layer=True)
-    df = read_table(path)
+    df = read_table(path, spec.encoding)
     sep = df.attrs.get("sep", ",")
     wide_id = None
     if spec.append:
         if not spec.period:  # wide: a new release may hold only the new periods' columns
             wide_id = _table_id(df, spec, layer, path)
-        df = _append_tables(df, path, spec.append, wide_id=wide_id)
+        df = _append_tables(df, path, spec.append, wide_id=wide_id, encoding=spec.encoding)
     where = " + ".join(p.name for p in (path, *spec.append))
     t_id = _table_id(df, spec, layer, path)
     return Table(df, where, path, t_id, sep, wide_append=wide_id is not None)
@@ -238,7 +238,12 @@ def _table_id(df: pd.DataFrame, spec: InputSpec, layer: Layer, where: Any) -> st
 
 
 def _append_tables(
-    df: pd.DataFrame, first: Path, more: tuple[Path, ...], *, wide_id: str | None = None
+    df: pd.DataFrame,
+    first: Path,
+    more: tuple[Path, ...],
+    *,
+    wide_id: str | None = None,
+    encoding: str | None = None,
 ) -> pd.DataFrame:
     """Stack further tables (e.g. next year's release) below the first.
 
@@ -251,7 +256,7 @@ def _append_tables(
 
     parts = [df]
     for path in more:
-        extra = read_table(path)
+        extra = read_table(path, encoding)
         if wide_id is not None:
             col = _column(extra, wide_id, path, "--id")
             if len(extra.columns) < 2:

@@ -81,24 +81,43 @@ def sniff_separator(sample: str) -> str:
     return best
 
 
-def _sample(path: Path) -> str:
+def not_utf8(path: Path) -> InputError:
+    """The error for a table that is not UTF-8: where the first bad byte is, and the fix."""
+    raw = path.read_bytes()
+    try:
+        raw.decode("utf-8-sig")
+        where = ""
+    except UnicodeDecodeError as exc:
+        line = raw.count(b"\n", 0, exc.start) + 1
+        start = raw.rfind(b"\n", 0, exc.start) + 1
+        text = raw[start : exc.start + 12].decode("utf-8", errors="replace").rstrip("\r\n")
+        where = f" (byte 0x{raw[exc.start]:02x} on line {line:,}: {text[:60]!r})"
+    return InputError(
+        f"{path}: not UTF-8 text{where}; a file saved by Excel on Windows is usually cp1252: "
+        'pass --encoding cp1252 ([inputs] encoding = "cp1252"), or re-save it as UTF-8 CSV'
+    )
+
+
+def _sample(path: Path, encoding: str = "utf-8-sig") -> str:
     with path.open("rb") as fh:
         raw = fh.read(_SAMPLE_BYTES)
     if len(raw) == _SAMPLE_BYTES and b"\n" in raw:
         raw = raw[: raw.rindex(b"\n")]
     try:
-        return raw.decode("utf-8-sig")
+        return raw.decode(encoding)
     except UnicodeDecodeError as exc:
         if exc.start < len(raw) - 4:
-            raise InputError(f"{path}: not UTF-8 text; re-save the table as UTF-8 CSV") from None
-        return raw[: exc.start].decode("utf-8-sig")
+            raise not_utf8(path) from None
+        return raw[: exc.start].decode(encoding)
 
 
-def _read_csv(path: Path, sep: str) -> pd.DataFrame:
+def _read_csv(path: Path, sep: str, encoding: str = "utf-8-sig") -> pd.DataFrame:
     """All columns as text with the pyarrow engine when present (multi-threaded), else C."""
     import pandas as pd
 
-    kw: dict[str, Any] = dict(dtype=str, keep_default_na=False, sep=sep, encoding="utf-8-sig")
+    kw: dict[str, Any] = dict(dtype=str, keep_default_na=False, sep=sep, encoding=encoding)
+    if encoding != "utf-8-sig":  # another encoding, named by the user: the C engine decodes it
+        return pd.read_csv(path, engine="c", na_filter=False, **kw)
     try:
         import pyarrow as pa
         import pyarrow.csv as pacsv
@@ -123,11 +142,16 @@ def _read_csv(path: Path, sep: str) -> pd.DataFrame:
     return pd.read_csv(path, engine="c", na_filter=False, **kw)
 
 
-def read_table(path: Path) -> pd.DataFrame:
+def read_table(path: Path, encoding: str | None = None) -> pd.DataFrame:
     """Read CSV/TSV/Parquet/XLSX with every column as text (empty cells as '').
 
     The separator found is kept in ``df.attrs["sep"]`` (the decimal question names it).
+    ``encoding`` names the text encoding of a CSV/TSV (default UTF-8, with or without a BOM);
+    it is never guessed: a file that is not UTF-8 stops with the byte and line to look at.
     """
+    enc = "utf-8-sig" if encoding is None or encoding.lower().replace("_", "-") in (
+        "utf-8", "utf8", "utf-8-sig"
+    ) else encoding  # fmt: skip
     import pandas as pd
 
     if not path.exists():
@@ -136,11 +160,11 @@ def read_table(path: Path) -> pd.DataFrame:
     sep = ","
     try:
         if suffix in (".csv", ".txt"):
-            sep = sniff_separator(_sample(path))
-            df = _read_csv(path, sep)
+            sep = sniff_separator(_sample(path, enc))
+            df = _read_csv(path, sep, enc)
         elif suffix == ".tsv":
             sep = "\t"
-            df = _read_csv(path, sep)
+            df = _read_csv(path, sep, enc)
         elif suffix == ".parquet":
             need_pyarrow(path)
             df = pd.read_parquet(path)
@@ -160,7 +184,12 @@ def read_table(path: Path) -> pd.DataFrame:
     except InputError:
         raise
     except UnicodeDecodeError:
-        raise InputError(f"{path}: not UTF-8 text; re-save the table as UTF-8 CSV") from None
+        if enc != "utf-8-sig":
+            raise InputError(
+                f"{path}: not {encoding} text either; check the file's encoding "
+                "(--encoding, [inputs] encoding)"
+            ) from None
+        raise not_utf8(path) from None
     except Exception as exc:
         msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise InputError(f"{path}: cannot read the table ({msg})") from None

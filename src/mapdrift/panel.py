@@ -403,7 +403,8 @@ class InputSpec:
     loading; the loader ignores it, :func:`mapdrift.views.apply_view` applies it.
     ``columns`` may also be a regular expression with one capture group around the period
     (``PO(\\d+)``, so that ``POLY_ID`` is not caught). ``decimal`` (``","`` or ``"."``) settles the
-    decimal mark when a file's cells read either way (``1,234``).
+    decimal mark when a file's cells read either way (``1,234``). ``encoding`` names the text
+    encoding of CSV tables that are not UTF-8 (e.g. ``"cp1252"``); it is never guessed.
     """
 
     geometry: Path
@@ -432,9 +433,21 @@ class InputSpec:
     append: tuple[Path, ...] = ()
     view: str | None = None
     decimal: str | None = None
+    encoding: str | None = None
 
     def __post_init__(self) -> None:
+        import codecs
+
         from mapdrift.errors import ConfigError
+
+        if self.encoding is not None:
+            try:
+                codecs.lookup(self.encoding)
+            except LookupError:
+                raise ConfigError(
+                    f"encoding = {self.encoding!r} is not a text encoding Python knows; use e.g. "
+                    "cp1252 (Excel on Windows), latin-1 or utf-8"
+                ) from None
 
         if not self.per > 0:
             raise ConfigError(

@@ -186,6 +186,15 @@ _INPUT_PARAMS = [
         ),
     ),
     _param(
+        "encoding",
+        Optional[str],
+        _opt(
+            None,
+            "--encoding",
+            help="Text encoding of a CSV that is not UTF-8, e.g. cp1252 (Excel on Windows) [default: UTF-8].",
+        ),
+    ),
+    _param(
         "crs",
         Optional[str],
         _opt(None, "--crs", help="CRS of a layer that has none, e.g. EPSG:26915."),
