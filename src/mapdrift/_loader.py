@@ -33,7 +33,7 @@ from mapdrift.findings import Finding, examples, plural, raise_errors
 from mapdrift.geo import prepare_geometry, read_layer
 from mapdrift.ids import closest, locate, normalise, pad_ids, zfill
 from mapdrift.panel import InputSpec, Panel, PanelMeta
-from mapdrift.periods import find_year, outlying, read_periods, spacing
+from mapdrift.periods import distance, find_year, outlying, read_periods, spacing
 
 if TYPE_CHECKING:
     import geopandas as gpd
@@ -543,7 +543,7 @@ def _outlying_periods(
     pos = {p: i for i, p in enumerate(periods)}
     stray: set[int] = set()
     for j in far:
-        gap = _distance(periods[j], periods[core[0] if j < core[0] else core[-1]])
+        gap = distance(periods[j], periods[core[0] if j < core[0] else core[-1]])
         side = "before" if j < core[0] else "after"
         texts = [t for t, p in mapping.items() if pos[p] == j]
         cols = [long.columns[t] for t in texts if t in long.columns]
@@ -572,13 +572,6 @@ def _outlying_periods(
             )
         )
     return set(far), stray
-
-
-def _distance(a: Any, b: Any) -> int:
-    """Calendar units between two periods of one kind (years, or a Period's own unit)."""
-    if hasattr(a, "ordinal"):
-        return abs(int(a.ordinal) - int(b.ordinal))
-    return abs(int(a) - int(b))
 
 
 # -- stage 5: numbers ---------------------------------------------------------------------------
@@ -926,6 +919,44 @@ class _Clock:
         return value
 
 
+# characters of a regex that never belong in a title (a glob's '*' is dropped by _words)
+_REGEX_MARKS = frozenset("\\[](){}+?^$|")
+
+
+def _names(spec: InputSpec, counts: bool, findings: list[Finding]) -> tuple[str, str]:
+    """The variable name and unit label of titles and legends: as given, else from the columns.
+
+    A name that would come out of a regex column pattern, such as ``(\\d{4})``, becomes a plain
+    word ("value", or "rate" for counts) with a ``variable-unnamed`` note naming ``--variable``;
+    names the user gave, and real column names, stay as written.
+    """
+    variable = spec.variable or (
+        f"{_words(spec.numerator)} rate"
+        if counts
+        else _words(spec.value or spec.columns or "value")
+    )
+    unit_label = spec.unit_label or (
+        f"{_words(spec.numerator)} per {spec.per:,g} {_words(spec.denominator)}" if counts else ""
+    )
+    pattern = (spec.numerator or spec.columns) if spec.period is None else None
+    if not pattern or "(" not in pattern:  # a pattern with "(" is read as a regex
+        return variable, unit_label
+    if spec.unit_label is None and _REGEX_MARKS & set(unit_label):
+        unit_label = ""
+    if spec.variable is None and _REGEX_MARKS & set(variable):
+        variable = "rate" if spec.numerator else "value"
+        findings.append(
+            Finding(
+                "note",
+                "variable-unnamed",
+                f"the column pattern '{pattern}' gives no name for titles, so titles and legends "
+                f"call the values {variable!r}; pass --variable (and --unit-label), e.g. "
+                "--variable 'Filing rate', to name them",
+            )
+        )
+    return variable, unit_label
+
+
 def _words(col: str | None) -> str:
     """Column names (or patterns) read as words in titles: ``rate_*`` -> ``rate``,
     ``HR(\\d+)`` -> ``HR``."""
@@ -976,14 +1007,7 @@ def _chain(
         )
     raise_errors(findings, InputError)
 
-    variable = spec.variable or (
-        f"{_words(spec.numerator)} rate"
-        if counts
-        else _words(spec.value or spec.columns or "value")
-    )
-    unit_label = spec.unit_label or (
-        f"{_words(spec.numerator)} per {spec.per:,g} {_words(spec.denominator)}" if counts else ""
-    )
+    variable, unit_label = _names(spec, counts, findings)
     log.info("loaded %d units x %d periods from %s", shape[0], shape[1], examples(inputs))
     labels = long.labels if any(lab != str(p) for lab, p in zip(long.labels, long.periods)) else ()
     return Panel(

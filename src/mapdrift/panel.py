@@ -472,37 +472,8 @@ class InputSpec:
             parse_view(self.view)
 
 
-# characters of a regex that never belong in a title (a glob's '*' is dropped by the loader)
-_REGEX_MARKS = frozenset("\\[](){}+?^$|")
-
-
-def _plain_names(panel: Panel, spec: InputSpec) -> Panel:
-    """A variable name (or unit label) that would come out of a regex column pattern, such as
-    ``(\\d{4})``, replaced by a plain word, with a note naming ``--variable``; names the user
-    gave, and real column names, stay as written."""
-    pattern = (spec.numerator or spec.columns) if spec.period is None else None
-    if not pattern or "(" not in pattern:  # the loader reads a pattern with "(" as a regex
-        return panel
-    meta, notes = panel.meta, []
-    if spec.variable is None and _REGEX_MARKS & set(meta.variable):
-        word = "rate" if spec.numerator else "value"
-        notes.append(f"titles and legends call the values {word!r}")
-        meta = replace(meta, variable=word)
-    if spec.unit_label is None and _REGEX_MARKS & set(meta.unit_label):
-        meta = replace(meta, unit_label="")
-    if not notes:
-        return panel
-    msg = (
-        f"the column pattern '{pattern}' gives no name for titles, so {notes[0]}; pass "
-        "--variable (and --unit-label), e.g. --variable 'Filing rate', to name them"
-    )
-    return replace(
-        panel, meta=meta, findings=(*panel.findings, Finding("note", "variable-unnamed", msg))
-    )
-
-
 def load_panel(spec: InputSpec) -> Panel:
     """Read, align and validate; raise InputError on error-level findings."""
     from mapdrift._loader import load
 
-    return _plain_names(load(spec), spec)
+    return load(spec)

@@ -41,6 +41,7 @@ from mapdrift.findings import Finding
 __all__ = [
     "PeriodParse",
     "Spacing",
+    "distance",
     "find_year",
     "missing_periods",
     "outlying",
@@ -310,6 +311,18 @@ def _positions(periods: Sequence[Any]) -> tuple[np.ndarray | None, str | None]:
             return None, None
         unit = u
     return np.asarray(out, dtype=np.int64), unit
+
+
+def distance(a: Any, b: Any) -> int:
+    """Calendar units between two typed periods of one kind (years, or a Period's own unit).
+
+    >>> distance(2109, 2023)
+    86
+    """
+    pos, _ = _positions([a, b])
+    if pos is None:
+        raise ValueError(f"periods {a!r} and {b!r} are not of one calendar kind")
+    return abs(int(pos[1] - pos[0]))
 
 
 def spacing(periods: Sequence[Any]) -> Spacing:
