@@ -81,11 +81,32 @@ def sniff_separator(sample: str) -> str:
     return best
 
 
+#: how a table's text is read unless ``--encoding`` names another (a BOM is skipped)
+UTF8 = "utf-8-sig"
+
+
+def _text_encoding(encoding: str | None) -> str:
+    """The codec to read a table with: UTF-8 (BOM or not) unless the user named another."""
+    if encoding is None or encoding.lower().replace("_", "-") in ("utf-8", "utf8", UTF8):
+        return UTF8
+    return encoding
+
+
+def _undecodable(path: Path, encoding: str) -> InputError:
+    """The error for a table its encoding cannot read (UTF-8 unless the user named another)."""
+    if encoding != UTF8:
+        return InputError(
+            f"{path}: not {encoding} text either; check the file's encoding "
+            "(--encoding, [inputs] encoding)"
+        )
+    return not_utf8(path)
+
+
 def not_utf8(path: Path) -> InputError:
     """The error for a table that is not UTF-8: where the first bad byte is, and the fix."""
     raw = path.read_bytes()
     try:
-        raw.decode("utf-8-sig")
+        raw.decode(UTF8)
         where = ""
     except UnicodeDecodeError as exc:
         line = raw.count(b"\n", 0, exc.start) + 1
@@ -98,7 +119,7 @@ def not_utf8(path: Path) -> InputError:
     )
 
 
-def _sample(path: Path, encoding: str = "utf-8-sig") -> str:
+def _sample(path: Path, encoding: str = UTF8) -> str:
     with path.open("rb") as fh:
         raw = fh.read(_SAMPLE_BYTES)
     if len(raw) == _SAMPLE_BYTES and b"\n" in raw:
@@ -107,22 +128,22 @@ def _sample(path: Path, encoding: str = "utf-8-sig") -> str:
         return raw.decode(encoding)
     except UnicodeDecodeError as exc:
         if exc.start < len(raw) - 4:
-            raise not_utf8(path) from None
+            raise _undecodable(path, encoding) from None
         return raw[: exc.start].decode(encoding)
 
 
-def _read_csv(path: Path, sep: str, encoding: str = "utf-8-sig") -> pd.DataFrame:
+def _read_csv(path: Path, sep: str, encoding: str = UTF8) -> pd.DataFrame:
     """All columns as text with the pyarrow engine when present (multi-threaded), else C."""
     import pandas as pd
 
     kw: dict[str, Any] = dict(dtype=str, keep_default_na=False, sep=sep, encoding=encoding)
-    if encoding != "utf-8-sig":  # another encoding, named by the user: the C engine decodes it
+    if encoding != UTF8:  # another encoding, named by the user: the C engine decodes it
         return pd.read_csv(path, engine="c", na_filter=False, **kw)
     try:
         import pyarrow as pa
         import pyarrow.csv as pacsv
 
-        with path.open(encoding="utf-8-sig", newline="") as fh:
+        with path.open(encoding=UTF8, newline="") as fh:
             header = next(csv.reader(fh, delimiter=sep), [])
         if header and len(set(header)) == len(header):
             table = pacsv.read_csv(
@@ -149,10 +170,9 @@ def read_table(path: Path, encoding: str | None = None) -> pd.DataFrame:
     ``encoding`` names the text encoding of a CSV/TSV (default UTF-8, with or without a BOM);
     it is never guessed: a file that is not UTF-8 stops with the byte and line to look at.
     """
-    enc = "utf-8-sig" if encoding is None or encoding.lower().replace("_", "-") in (
-        "utf-8", "utf8", "utf-8-sig"
-    ) else encoding  # fmt: skip
     import pandas as pd
+
+    enc = _text_encoding(encoding)
 
     if not path.exists():
         raise InputError(f"{path}: values table not found; check the path")
@@ -184,12 +204,7 @@ def read_table(path: Path, encoding: str | None = None) -> pd.DataFrame:
     except InputError:
         raise
     except UnicodeDecodeError:
-        if enc != "utf-8-sig":
-            raise InputError(
-                f"{path}: not {encoding} text either; check the file's encoding "
-                "(--encoding, [inputs] encoding)"
-            ) from None
-        raise not_utf8(path) from None
+        raise _undecodable(path, enc) from None
     except Exception as exc:
         msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise InputError(f"{path}: cannot read the table ({msg})") from None
