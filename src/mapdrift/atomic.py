@@ -40,30 +40,36 @@ def atomic_path(target: Path | str, suffix: str | None = None) -> Iterator[Path]
             tmp_path.unlink()
 
 
-def _read_umask() -> int:
-    """The process umask, read without changing it where the system allows."""
-    try:  # Linux: a read-only look, safe while another thread creates files
+def _proc_umask() -> int | None:
+    """The process umask from ``/proc`` (Linux): a read-only look, safe while another thread
+    creates files; None where it cannot be read."""
+    try:
         with open("/proc/self/status", encoding="ascii") as f:
             for line in f:
                 if line.startswith("Umask:"):
                     return int(line.split()[1], 8)
     except (OSError, ValueError):
         pass
-    mask = os.umask(0)  # elsewhere: set and restore, once, at import (before any worker thread)
-    os.umask(mask)
+    return None
+
+
+def _umask_at_import() -> int:
+    mask = _proc_umask()
+    if mask is None:  # set and restore, once, at import (before any worker thread)
+        mask = os.umask(0)
+        os.umask(mask)
     return mask
 
 
-_UMASK_AT_IMPORT = _read_umask()
+_UMASK_AT_IMPORT = _umask_at_import()
 
 
 def _umask() -> int:
     """The umask for new outputs. PNGs are written from a worker thread (``pngwrite``): setting
     the umask to read it would, for an instant, let the main thread create world-writable
     files, so where ``/proc`` cannot be read the value read at import is used."""
-    if os.path.exists("/proc/self/status"):
-        return _read_umask()
-    return _UMASK_AT_IMPORT
+    mask = _proc_umask()
+    return _UMASK_AT_IMPORT if mask is None else mask
 
 
 def write_bytes(target: Path, data: bytes) -> Path:

@@ -43,13 +43,11 @@ from mapdrift._lazy import lazy_module
 from mapdrift.errors import ConfigError
 from mapdrift.findings import Finding, examples, plural
 
-if TYPE_CHECKING:  # imported on first use (see mapdrift._lazy)
+if TYPE_CHECKING:  # scipy.sparse is imported on first use (see mapdrift._lazy)
+    import geopandas as gpd
     import scipy.sparse as sp
 else:
     sp = lazy_module("scipy.sparse")
-
-if TYPE_CHECKING:
-    import geopandas as gpd
 
 __all__ = [
     "ISLAND_RULES",

@@ -402,7 +402,6 @@ def write_png_frames(
     force: bool = False,
 ) -> list[Path]:
     """Write ``frame_000_<period>.png``, ... into ``folder``; returns the paths in order."""
-
     folder = Path(folder)
     names = [folder / f"frame_{j:03d}_{_safe(p)}.png" for j, p in enumerate(period_labels)]
     if not force:

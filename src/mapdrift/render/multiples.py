@@ -389,7 +389,6 @@ class _Panels:
 
 def _save_png(fig: Any, panels: _Panels, cells: list[Any], path: Path, dpi: float) -> None:
     """Texts and lines drawn once (transparent) at ``dpi`` over the pasted panel images."""
-
     ppx = dpi / 72.0
     fig.patch.set_alpha(0.0)
     fig.set_dpi(dpi)
