@@ -456,8 +456,7 @@ def _step_changes(state: RunState) -> str:
     write_changes(result, state.staging, units_table=False)
     change_pictures(result, panel, state.staging, look=_look(state))
     n_jump = int(result.units["jump"].sum())
-    net = result.credible_net_change
-    up, down = int((net > 0).sum()), int((net < 0).sum())
+    up, down = result.net_moves
     if not result.tested:
         return (
             f"{plural(up, 'unit')} up, {down:,} down first to last; {plural(n_jump, 'unit')} "

@@ -52,20 +52,10 @@ def headline(state: BriefInputs) -> list[tuple[str, str]]:
     out: list[tuple[str, str]] = []
     ch = state.changes
     if ch is not None:
-        net = ch.credible_net_change
+        up, down = ch.net_moves
         cred = "credibly " if ch.tested else ""
-        out.append(
-            (
-                f"{u} {cred}in a higher class in {per[-1]} than in {per[0]}",
-                f"{int((net > 0).sum()):,}",
-            )
-        )
-        out.append(
-            (
-                f"{u} {cred}in a lower class in {per[-1]} than in {per[0]}",
-                f"{int((net < 0).sum()):,}",
-            )
-        )
+        out.append((f"{u} {cred}in a higher class in {per[-1]} than in {per[0]}", f"{up:,}"))
+        out.append((f"{u} {cred}in a lower class in {per[-1]} than in {per[0]}", f"{down:,}"))
         if ch.tested:
             out.append(
                 (
@@ -279,21 +269,18 @@ def build_brief(state: BriefInputs) -> Brief:
     )
     ch = state.changes
     if ch is not None:
+        tested_how = (
+            f"The change map shows only moves beyond {ch.noise_words}: each unit's {per[0]} and {per[-1]} {'counts' if ch.noise_test == 'poisson' else 'values'} were compared with the same test as the jumps; {noun_for(ch.n_net_noise, noun)} whose class moved within {ch.noise_words} are drawn as no credible change (units.csv: net_change_credible)."
+            if ch.tested
+            else "Class moves were not tested against noise (no counts given): a move of a unit with few events may be noise."
+        )
         sections.append(
             Section(
                 "change",
                 f"Which {noun} changed",
                 paragraphs=(
                     f"Net class change from {per[0]} to {per[-1]}, and the {noun} whose path is worth a look (jumps, spikes, stayed in the top or bottom class).",
-                    *(
-                        (
-                            f"The change map shows only moves beyond {ch.noise_words}: each unit's {per[0]} and {per[-1]} {'counts' if ch.noise_test == 'poisson' else 'values'} were compared with the same test as the jumps; {noun_for(ch.n_net_noise, noun)} whose class moved within {ch.noise_words} are drawn as no credible change (units.csv: net_change_credible).",
-                        )
-                        if ch.tested
-                        else (
-                            "Class moves were not tested against noise (no counts given): a move of a unit with few events may be noise.",
-                        )
-                    ),
+                    tested_how,
                 ),
                 figures=(
                     _fig(state, "change_map.png", f"Class change {per[0]} to {per[-1]}"),
@@ -632,8 +619,7 @@ def build_slides(state: BriefInputs, brief: Brief, pictures: Path | None = None)
             )
         )
     if ch is not None:
-        net = ch.credible_net_change
-        up, down = int((net > 0).sum()), int((net < 0).sum())
+        up, down = ch.net_moves
         n_jump = int(ch.units["jump"].sum())
         stay = np.trace(ch.transitions.counts) / max(ch.transitions.counts.sum(), 1)
         change_title = (

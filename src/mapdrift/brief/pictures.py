@@ -174,19 +174,18 @@ def change_pictures(
     # filings on a small base paint a unit as risen or fallen
     codes, labels = change_categories(result.credible_net_change, k)
     if result.tested:
-        labels = ["no credible change" if lab == "no change" else lab for lab in labels]
-        how = "conditional Poisson test" if result.noise_test == "poisson" else "margins of error"
         from mapdrift.clusters.multiple import describe
 
-        change_caption = (
-            f"{result.n_net_noise:,} {noun} whose class moved within {result.noise_words} are shown as no "
-            f"credible change ({how} of {first} against {last}, "
+        labels = ["no credible change" if lab == "no change" else lab for lab in labels]
+        tested_how = (
+            f"{result.n_net_noise:,} {noun} whose class moved within {result.noise_words} are "
+            f"shown as no credible change ({result.noise_how} of {first} against {last}, "
             f"{describe(result.options.alpha, result.options.correction)} over all {noun}; "
-            "see units.csv)." + (f" {source}" if source else "")
+            "see units.csv)."
         )
     else:
-        change_caption = "Moves not tested against noise (no counts): a move of a unit with few " \
-            "events may be noise." + (f" {source}" if source else "")  # fmt: skip
+        tested_how = "Moves not tested against noise (no counts): a move of a unit with few events may be noise."
+    change_caption = tested_how + (f" {source}" if source else "")
     written.append(
         static_map(
             panel.geometry,

@@ -149,25 +149,39 @@ class ChangeResult:
     net_p_adjusted: np.ndarray | None = None
 
     @property
+    def _moved(self) -> np.ndarray:
+        """Per unit: its class differs first to last (False without data in either)."""
+        net = np.asarray(self.net_change, dtype=np.float64)
+        with np.errstate(invalid="ignore"):
+            return ~np.isnan(net) & (net != 0)
+
+    @property
     def net_credible(self) -> np.ndarray:
         """Per unit: its first-to-last class move is beyond count noise (every move when the
         moves could not be tested); False for units that did not move or lack data."""
-        net = np.asarray(self.net_change, dtype=np.float64)
+        if self.net_p_adjusted is None:
+            return self._moved
         with np.errstate(invalid="ignore"):
-            moved = ~np.isnan(net) & (net != 0)
-            if self.net_p_adjusted is None:
-                return moved
-            return moved & (self.net_p_adjusted <= self.options.alpha)
+            return self._moved & (self.net_p_adjusted <= self.options.alpha)
 
     @property
     def credible_net_change(self) -> np.ndarray:
         """``net_change`` with moves within count noise set to 0 (NaN = no data stays NaN):
         what the change map, the answer and the slides show."""
         net = np.asarray(self.net_change, dtype=np.float64).copy()
-        with np.errstate(invalid="ignore"):
-            noise = ~np.isnan(net) & (net != 0) & ~self.net_credible
-        net[noise] = 0.0
+        net[self._moved & ~self.net_credible] = 0.0
         return net
+
+    @property
+    def net_moves(self) -> tuple[int, int]:
+        """Units whose class rose, and fell, first to last beyond count noise."""
+        net = self.credible_net_change
+        return int((net > 0).sum()), int((net < 0).sum())
+
+    @property
+    def n_net_noise(self) -> int:
+        """Units whose first-to-last class move is within count noise."""
+        return int((self._moved & ~self.net_credible).sum())
 
     @property
     def noise_words(self) -> str:
@@ -175,11 +189,9 @@ class ChangeResult:
         return "the margins of error" if self.noise_test == "moe" else "count noise"
 
     @property
-    def n_net_noise(self) -> int:
-        """Units whose first-to-last class move is within count noise."""
-        net = np.asarray(self.net_change, dtype=np.float64)
-        with np.errstate(invalid="ignore"):
-            return int((~np.isnan(net) & (net != 0) & ~self.net_credible).sum())
+    def noise_how(self) -> str:
+        """The test of moves against noise, in a few words (for captions)."""
+        return "conditional Poisson test" if self.noise_test == "poisson" else "margins of error"
 
     @property
     def tested(self) -> bool:
@@ -191,9 +203,9 @@ class ChangeResult:
         """A short form of :attr:`noise_text` for captions."""
         if not self.noise_test:
             return "Jumps not tested against noise (no counts)."
-        how = "conditional Poisson test" if self.noise_test == "poisson" else "margins of error"
         return (
-            f"Jumps tested against count noise ({how}, {self.options.correction} over all steps)."
+            f"Jumps tested against count noise ({self.noise_how}, {self.options.correction} "
+            "over all steps)."
         )
 
     @property
@@ -206,9 +218,8 @@ class ChangeResult:
         tr, per = self.transitions, self.period_labels
         stay = float(np.trace(tr.counts) / max(tr.counts.sum(), 1))
         up, down = int((self.net_change > 0).sum()), int((self.net_change < 0).sum())
-        shown = self.credible_net_change
         beyond = (
-            f" ({int((shown > 0).sum())} up, {int((shown < 0).sum())} down beyond count noise)"
+            " ({} up, {} down beyond count noise)".format(*self.net_moves)
             if self.net_p_adjusted is not None
             else ""
         )
