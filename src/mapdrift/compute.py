@@ -24,7 +24,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
-from mapdrift.errors import ConfigError
+from mapdrift.errors import ConfigError, check_choice
 
 __all__ = ["ComputeSpec", "DaskExecutor", "Executor", "SerialExecutor", "executor_for"]
 
@@ -40,11 +40,7 @@ class ComputeSpec:
     workers: int = 2
 
     def __post_init__(self) -> None:
-        if self.scheduler not in SCHEDULERS:
-            raise ConfigError(
-                f"[compute] scheduler {self.scheduler!r} is not a valid option, must be one of "
-                f"{', '.join(SCHEDULERS)}"
-            )
+        check_choice("[compute] scheduler", self.scheduler, SCHEDULERS)
         if self.workers < 1:
             raise ConfigError(f"[compute] workers must be 1 or more, got {self.workers}")
 

@@ -7,7 +7,10 @@ Subclasses are also builtins so that notebook users can catch ``ValueError`` or 
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+
 __all__ = [
+    "check_choice",
     "EXIT_CODES",
     "ConfigError",
     "EncoderError",
@@ -34,6 +37,17 @@ class ConfigError(MapdriftError, ValueError):
     """A run configuration or a command-line combination is wrong (unknown key, bad type...)."""
 
     exit_code = 2
+
+
+def check_choice(flag: str, value: object, valid: Sequence[str]) -> None:
+    """Raise the one ConfigError every option shares when ``value`` is not one of ``valid``.
+
+    >>> check_choice("--islands", "nearest", ("nearest", "exclude"))
+    """
+    if value not in valid:
+        raise ConfigError(
+            f"{flag} {value!r} is not a valid option, must be one of {', '.join(valid)}"
+        )
 
 
 class OutputExistsError(MapdriftError, FileExistsError):

@@ -35,7 +35,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from mapdrift._lazy import lazy_module
-from mapdrift.errors import ConfigError
+from mapdrift.errors import ConfigError, check_choice
 from mapdrift.findings import Finding
 
 if TYPE_CHECKING:  # imported on first use (see mapdrift._lazy)
@@ -171,10 +171,7 @@ def smooth(
     weights: SpatialWeights | None = None,
 ) -> Smoothed:
     """Smooth ``events / bases`` ([units, periods]) period by period with ``method``."""
-    if method not in SMOOTHERS:
-        raise ConfigError(
-            f"--smooth {method!r} is not a valid option, must be one of {', '.join(SMOOTHERS)}"
-        )
+    check_choice("--smooth", method, SMOOTHERS)
     if method == "spatial-eb" and weights is None:
         raise ConfigError(
             "--smooth spatial-eb needs spatial weights; pass weights=build_weights(...)"

@@ -40,7 +40,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from mapdrift._lazy import lazy_module
-from mapdrift.errors import ConfigError
+from mapdrift.errors import ConfigError, check_choice
 from mapdrift.findings import Finding, examples, plural
 
 if TYPE_CHECKING:  # scipy.sparse is imported on first use (see mapdrift._lazy)
@@ -382,20 +382,14 @@ def build_weights(
     geometry`` (warning), ``weights-components`` (note, more than one connected group).
     """
     if not isinstance(kind, str) or str(kind).strip().lower().endswith(WEIGHT_FILES):
-        if islands not in ISLAND_RULES:
-            raise ConfigError(
-                f"--islands {islands!r} is not a valid option, must be one of {', '.join(ISLAND_RULES)}"
-            )
+        check_choice("--islands", islands, ISLAND_RULES)
         ids = list(units) if units is not None else [str(i) for i in range(len(geometry))]
         if isinstance(kind, str):
             parse_kind(kind)
             return read_weights_file(kind, ids)
         return from_libpysal(kind, ids)
     name, number = parse_kind(kind)
-    if islands not in ISLAND_RULES:
-        raise ConfigError(
-            f"--islands {islands!r} is not a valid option, must be one of {', '.join(ISLAND_RULES)}"
-        )
+    check_choice("--islands", islands, ISLAND_RULES)
     kind_text = name if number is None else f"{name}:{number:g}"
     n = len(geometry)
     ids = list(units) if units is not None else [str(i) for i in range(n)]

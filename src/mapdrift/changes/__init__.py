@@ -36,7 +36,7 @@ from mapdrift.changes.trajectories import (
     unit_changes,
 )
 from mapdrift.changes.transitions import Transitions, class_labels, count_transitions
-from mapdrift.errors import ConfigError
+from mapdrift.errors import ConfigError, check_choice
 from mapdrift.findings import Finding, examples, plural
 
 if TYPE_CHECKING:
@@ -102,11 +102,7 @@ class ChangeOptions:
     def __post_init__(self) -> None:
         from mapdrift.clusters.multiple import CORRECTIONS
 
-        if self.correction not in CORRECTIONS:
-            raise ConfigError(
-                f"--correction {self.correction!r} is not a valid option, must be one of "
-                f"{', '.join(CORRECTIONS)}"
-            )
+        check_choice("--correction", self.correction, CORRECTIONS)
         if not 0 < self.alpha < 1:
             raise ConfigError(f"--alpha must be between 0 and 1 (e.g. 0.05), got {self.alpha}")
         for name in ("jump", "spike_window", "persist"):
@@ -114,11 +110,8 @@ class ChangeOptions:
             if isinstance(v, bool) or not isinstance(v, int | np.integer) or v < 1:
                 flag = "--" + name.replace("_", "-")
                 raise ConfigError(f"{flag} must be a whole number >= 1, got {v!r}; e.g. {flag} 2")
-        if self.relative is not None and self.relative not in RELATIVE_CHOICES:
-            raise ConfigError(
-                f"--relative {self.relative!r} is not a valid option, must be one of "
-                f"{', '.join(RELATIVE_CHOICES)}"
-            )
+        if self.relative is not None:
+            check_choice("--relative", self.relative, RELATIVE_CHOICES)
 
 
 @dataclass(frozen=True, eq=False)
@@ -310,9 +303,7 @@ def relative_panel(panel: Panel, how: str = "mean") -> Panel:
     """
     from mapdrift.views import View, apply_view
 
-    if how not in RELATIVE_CHOICES:
-        valid = ", ".join(RELATIVE_CHOICES)
-        raise ConfigError(f"--relative {how!r} is not a valid option, must be one of {valid}")
+    check_choice("--relative", how, RELATIVE_CHOICES)
     return apply_view(panel, View("relative", how))
 
 

@@ -17,7 +17,7 @@ from mapdrift.clusters.moran import MoranGlobal, moran_global_panel
 from mapdrift.clusters.multiple import CORRECTIONS, adjust, describe
 from mapdrift.clusters.trends import TrendResult, period_times, trends
 from mapdrift.compute import Executor, SerialExecutor
-from mapdrift.errors import ConfigError
+from mapdrift.errors import ConfigError, check_choice
 from mapdrift.findings import Finding, examples, plural
 from mapdrift.weights import ISLAND_RULES, SpatialWeights, build_weights, parse_kind
 
@@ -72,21 +72,9 @@ class ClusterOptions:
 
     def __post_init__(self) -> None:
         parse_kind(self.weights)
-        if self.islands not in ISLAND_RULES:
-            raise ConfigError(
-                f"--islands {self.islands!r} is not a valid option, must be one of "
-                f"{', '.join(ISLAND_RULES)}"
-            )
-        if self.correction not in CORRECTIONS:
-            raise ConfigError(
-                f"--correction {self.correction!r} is not a valid option, must be one of "
-                f"{', '.join(CORRECTIONS)}"
-            )
-        if self.statistic not in STATISTICS:
-            raise ConfigError(
-                f"--statistic {self.statistic!r} is not a valid option, must be one of "
-                f"{', '.join(STATISTICS)}"
-            )
+        check_choice("--islands", self.islands, ISLAND_RULES)
+        check_choice("--correction", self.correction, CORRECTIONS)
+        check_choice("--statistic", self.statistic, STATISTICS)
         if not 0 < self.alpha < 1:
             raise ConfigError(f"--alpha must be between 0 and 1 (e.g. 0.05), got {self.alpha}")
         if self.permutations < 0 or self.permutations > 99_999:
@@ -108,16 +96,9 @@ class ClusterOptions:
                 f"{self.min_periods}"
             )
         for key, valid in (("standardise", STANDARDISE), ("p_value", P_VALUES)):
-            if getattr(self, key) not in valid:
-                flag = "--" + key.replace("_", "-")
-                raise ConfigError(
-                    f"{flag} {getattr(self, key)!r} is not a valid option, must be one of "
-                    f"{', '.join(valid)}"
-                )
-        if self.smooth not in (None, "eb", "spatial-eb"):
-            raise ConfigError(
-                f"--smooth {self.smooth!r} is not a valid option, must be one of eb, spatial-eb"
-            )
+            check_choice("--" + key.replace("_", "-"), getattr(self, key), valid)
+        if self.smooth is not None:
+            check_choice("--smooth", self.smooth, ("eb", "spatial-eb"))
 
     @property
     def significance(self) -> str:

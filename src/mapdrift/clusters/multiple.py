@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from mapdrift.errors import ConfigError
+from mapdrift.errors import check_choice
 
 __all__ = ["CORRECTIONS", "adjust", "describe", "significant"]
 
@@ -22,9 +22,7 @@ CORRECTIONS: tuple[str, ...] = ("fdr", "bonferroni", "none")
 
 
 def _check(method: str) -> str:
-    if method not in CORRECTIONS:
-        valid = ", ".join(CORRECTIONS)
-        raise ConfigError(f"--correction {method!r} is not a valid option, must be one of {valid}")
+    check_choice("--correction", method, CORRECTIONS)
     return method
 
 
